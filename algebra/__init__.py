@@ -1,0 +1,1 @@
+"""Max-plus algebra of timed event graphs."""

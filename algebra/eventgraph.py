@@ -1,0 +1,238 @@
+r"""The timed event graph in max-plus form.
+
+Representation
+--------------
+An event graph has ``n`` transitions, numbered ``0 .. n-1``, and ``m`` places. Place ``p`` is an
+arc ``source[p] -> target[p]`` with an initial marking ``tokens[p]`` (an integer ``>= 0``) and a
+holding time ``hold[p] >= 0``; transition ``t`` has a firing duration ``duration[t] >= 0``.
+Parallel places and self-loops are allowed. The firing times obey
+
+.. math::
+
+    x_t(k) = d_t + \max_{p = (u \to t)} \bigl[ x_u(k - m_p) + h_p \bigr],
+
+where the term of ``p`` is ``0`` when ``k <= m_p`` (initial tokens are available at time 0).
+
+Every quantity of the algebra is a finite float here: a place is an arc, and an arc that is not
+there is simply not in the arrays. ε = −∞ appears only in dense matrices built from the graph
+(:mod:`cyclecheck.algebra.semiring`), never as a stored weight.
+
+The weight of place ``p`` in the cycle-ratio problem is ``hold[p] + duration[target[p]]``: each
+transition of a circuit is the target of exactly one place of that circuit, so the circuit's
+weight is the sum of its durations and holds, and its ratio weight / tokens is its cycle time.
+
+References
+----------
+.. [1] F. Baccelli, G. Cohen, G. J. Olsder, J.-P. Quadrat, *Synchronization and Linearity*,
+   Wiley, 1992, ch. 2 (event graphs and their max-plus equations).
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass, field
+from functools import cached_property
+
+import numpy as np
+from scipy.sparse import csr_matrix
+from scipy.sparse.csgraph import connected_components
+
+from .exceptions import GraphStructureError, NotLive, Unfed
+
+__all__ = [
+    "EventGraph",
+    "check_live",
+    "find_token_free_circuit",
+    "strongly_connected_components",
+]
+
+
+@dataclass(frozen=True, eq=False)
+class EventGraph:
+    """A timed event graph with fixed durations and holds.
+
+    Parameters
+    ----------
+    duration : array_like of float, shape (n,)
+        Firing duration of each transition.
+    source, target : array_like of int, shape (m,)
+        Input and output transition of each place.
+    tokens : array_like of int, shape (m,)
+        Initial marking of each place.
+    hold : array_like of float, shape (m,)
+        Holding time of each place.
+    names : sequence of str, optional
+        Transition names, used only in messages and results.
+
+    Raises
+    ------
+    GraphStructureError
+        If shapes disagree, an index is out of range, or a number is negative, NaN or infinite.
+
+    Examples
+    --------
+    Two machines in a loop with one part circulating:
+
+    >>> g = EventGraph(duration=[2.0, 3.0], source=[0, 1], target=[1, 0], tokens=[0, 1],
+    ...                hold=[0.0, 0.0])
+    >>> g.n_transitions, g.n_places
+    (2, 2)
+    """
+
+    duration: np.ndarray
+    source: np.ndarray
+    target: np.ndarray
+    tokens: np.ndarray
+    hold: np.ndarray
+    names: tuple[str, ...] = field(default=())
+
+    def __post_init__(self) -> None:
+        set_ = object.__setattr__
+        set_(self, "duration", _float_array(self.duration, "duration"))
+        set_(self, "hold", _float_array(self.hold, "hold"))
+        n = self.duration.shape[0]
+        m = self.hold.shape[0]
+        for name in ("source", "target", "tokens"):
+            raw = np.asarray(getattr(self, name))
+            if raw.ndim != 1 or raw.shape[0] != m:
+                raise GraphStructureError(f"{name} must have shape ({m},), got {raw.shape}")
+            if raw.size and not np.all(np.equal(np.mod(raw, 1), 0)):
+                raise GraphStructureError(f"{name} must hold integers")
+            arr = raw.astype(np.int64)
+            arr.setflags(write=False)
+            set_(self, name, arr)
+        if m and (self.source.min() < 0 or self.source.max() >= n):
+            raise GraphStructureError(f"source must lie in 0..{n - 1}")
+        if m and (self.target.min() < 0 or self.target.max() >= n):
+            raise GraphStructureError(f"target must lie in 0..{n - 1}")
+        if m and self.tokens.min() < 0:
+            raise GraphStructureError("tokens must be >= 0")
+        names = tuple(str(s) for s in self.names) if len(self.names) else ()
+        if names and len(names) != n:
+            raise GraphStructureError(f"names must have {n} entries, got {len(names)}")
+        set_(self, "names", names)
+
+    @property
+    def n_transitions(self) -> int:
+        """Number of transitions ``n``."""
+        return int(self.duration.shape[0])
+
+    @property
+    def n_places(self) -> int:
+        """Number of places ``m``."""
+        return int(self.hold.shape[0])
+
+    def name(self, t: int) -> str:
+        """Name of transition ``t`` (its index when the graph carries no names)."""
+        return self.names[t] if self.names else str(t)
+
+    @cached_property
+    def weight(self) -> np.ndarray:
+        """Arc weight of each place in the cycle-ratio problem: ``hold + duration[target]``."""
+        w = self.hold + self.duration[self.target]
+        w.setflags(write=False)
+        return w
+
+    @cached_property
+    def by_target(self) -> tuple[np.ndarray, np.ndarray]:
+        """Places sorted by target transition, as ``(order, starts)``.
+
+        ``order[starts[t]:starts[t + 1]]`` are the input places of ``t``: the CSR layout that
+        lets a maximum over input places be one ``np.maximum.reduceat``.
+        """
+        order = np.argsort(self.target, kind="stable")
+        counts = np.bincount(self.target, minlength=self.n_transitions)
+        starts = np.zeros(self.n_transitions + 1, dtype=np.int64)
+        np.cumsum(counts, out=starts[1:])
+        order.setflags(write=False)
+        starts.setflags(write=False)
+        return order, starts
+
+    @cached_property
+    def in_degree(self) -> np.ndarray:
+        """Number of input places of each transition."""
+        return np.bincount(self.target, minlength=self.n_transitions)
+
+    def with_values(self, duration: np.ndarray, hold: np.ndarray) -> EventGraph:
+        """The same structure with other durations and holds (for example the mean values)."""
+        return EventGraph(duration, self.source, self.target, self.tokens, hold, self.names)
+
+
+def _float_array(values: object, name: str) -> np.ndarray:
+    arr = np.array(values, dtype=np.float64)
+    if arr.ndim != 1:
+        raise GraphStructureError(f"{name} must be one-dimensional, got shape {arr.shape}")
+    if not np.all(np.isfinite(arr)):
+        raise GraphStructureError(f"{name} must be finite (no NaN or infinity)")
+    if arr.size and arr.min() < 0:
+        raise GraphStructureError(f"{name} must be >= 0")
+    arr.setflags(write=False)
+    return arr
+
+
+def strongly_connected_components(graph: EventGraph) -> tuple[int, np.ndarray]:
+    """Strongly connected components of the transition graph.
+
+    Returns
+    -------
+    count : int
+        Number of components.
+    labels : ndarray of int, shape (n,)
+        Component of each transition.
+    """
+    n = graph.n_transitions
+    adj = csr_matrix(
+        (np.ones(graph.n_places, dtype=np.int8), (graph.source, graph.target)), shape=(n, n)
+    )
+    count, labels = connected_components(adj, directed=True, connection="strong")
+    return int(count), labels
+
+
+def find_token_free_circuit(graph: EventGraph) -> list[int] | None:
+    """One circuit made only of places without tokens, in circuit order, or ``None``.
+
+    Such a circuit is a deadlock: none of its transitions can ever fire. Self-loops without a
+    token count as circuits of length one.
+    """
+    empty = graph.tokens == 0
+    src, dst = graph.source[empty], graph.target[empty]
+    loops = src[src == dst]
+    if loops.size:
+        return [int(loops[0])]
+    n = graph.n_transitions
+    adj = csr_matrix((np.ones(src.size, dtype=np.int8), (src, dst)), shape=(n, n))
+    count, labels = connected_components(adj, directed=True, connection="strong")
+    sizes = np.bincount(labels, minlength=count)
+    cyclic = np.flatnonzero(sizes > 1)
+    if cyclic.size == 0:
+        return None
+    # Walk inside one cyclic component until a transition repeats: that closes a circuit.
+    comp = cyclic[0]
+    inside = (labels[src] == comp) & (labels[dst] == comp)
+    succ = dict(zip(src[inside].tolist(), dst[inside].tolist(), strict=True))
+    start = int(np.flatnonzero(labels == comp)[0])
+    seen: dict[int, int] = {}
+    walk: list[int] = []
+    node = start
+    while node not in seen:
+        seen[node] = len(walk)
+        walk.append(node)
+        node = succ[node]
+    return walk[seen[node] :]
+
+
+def check_live(graph: EventGraph) -> None:
+    """Raise if the graph cannot run forever at a bounded rate.
+
+    Raises
+    ------
+    NotLive
+        If a circuit holds no token (deadlock).
+    Unfed
+        If a transition has no input place: nothing would bound its firing rate.
+    """
+    unfed = np.flatnonzero(graph.in_degree == 0)
+    if unfed.size:
+        raise Unfed(unfed.tolist())
+    circuit = find_token_free_circuit(graph)
+    if circuit is not None:
+        raise NotLive(circuit)

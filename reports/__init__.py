@@ -1,0 +1,1 @@
+"""Review pages rendered from result documents."""

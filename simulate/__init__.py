@@ -1,0 +1,1 @@
+"""The application: model files, engines, estimation, CLI."""
