@@ -1,0 +1,274 @@
+r"""What follows from the cycle time: critical graph, cyclicity, slack, schedule, certificate.
+
+All of it is read off a generalised eigenmode ``(eta, v)`` of the event graph (see
+:mod:`cyclecheck.algebra.spectral`). With the *reduced weight* of place ``p = (u -> t)``
+
+.. math::
+
+    r_p = w_p - \eta_t m_p + v_u - v_t, \qquad w_p = h_p + d_t,
+
+every place between transitions of equal cycle time has ``r_p <= 0``, and the places with
+``r_p = 0`` form the *critical graph*: the circuits made of them are exactly the circuits of
+largest ratio. Around any circuit the potentials ``v`` cancel, so the slack of a circuit, how much
+weight it can take before its ratio exceeds ``eta``, is ``-sum(r_p)``, a sum of non-negative
+numbers; the slack of a place is the least slack of the circuits through it, a shortest-path
+problem with lengths ``-r >= 0``.
+
+References
+----------
+.. [1] F. Baccelli, G. Cohen, G. J. Olsder, J.-P. Quadrat, *Synchronization and Linearity*,
+   Wiley, 1992, §3.7 (cyclicity of the critical graph and the periodic regime).
+.. [2] B. Heidergott, G. J. Olsder, J. van der Woude, *Max Plus at Work*, Princeton University
+   Press, 2006, ch. 3–4 (eigenvectors, critical graph, cyclicity, transient).
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass
+
+import numpy as np
+from scipy.sparse import csr_matrix
+from scipy.sparse.csgraph import breadth_first_order, connected_components, dijkstra
+
+from .eventgraph import EventGraph, strongly_connected_components
+from .spectral import HowardResult, chain_sums
+
+__all__ = [
+    "SLACK_EXACT_LIMIT",
+    "Certificate",
+    "Slack",
+    "certify",
+    "critical_places",
+    "cyclicity",
+    "periodic_schedule",
+    "reduced_weights",
+    "slack",
+]
+
+#: Largest ``n_transitions * n_places`` for which slack is computed exactly (one Dijkstra per
+#: transition); above it the reduced weight, a lower bound, is reported instead.
+SLACK_EXACT_LIMIT = 2_000_000
+
+
+def reduced_weights(graph: EventGraph, result: HowardResult) -> np.ndarray:
+    r"""Reduced weight ``r_p = w_p - eta_t m_p + v_u - v_t`` of every place."""
+    eta_t = result.cycle_time[graph.target]
+    return graph.weight - eta_t * graph.tokens + result.bias[graph.source] - result.bias[graph.target]
+
+
+def _tolerance(graph: EventGraph, result: HowardResult) -> float:
+    scale = max(1.0, float(np.abs(result.bias).max(initial=0.0)), float(graph.weight.max(initial=0.0)))
+    return 1e-9 * scale
+
+
+def _same_cycle_time(graph: EventGraph, result: HowardResult, tol: float) -> np.ndarray:
+    eta = result.cycle_time
+    return np.abs(eta[graph.source] - eta[graph.target]) <= tol
+
+
+def critical_places(graph: EventGraph, result: HowardResult) -> np.ndarray:
+    """Boolean mask of the places on circuits of largest ratio (the critical graph's arcs).
+
+    A place is critical when its reduced weight is zero and it lies on a circuit of such places:
+    raising its hold by any amount raises the cycle time.
+    """
+    tol = _tolerance(graph, result)
+    tight = _same_cycle_time(graph, result, tol) & (reduced_weights(graph, result) >= -tol)
+    n = graph.n_transitions
+    src, dst = graph.source[tight], graph.target[tight]
+    adj = csr_matrix((np.ones(src.size, dtype=np.int8), (src, dst)), shape=(n, n))
+    count, labels = connected_components(adj, directed=True, connection="strong")
+    sizes = np.bincount(labels, minlength=count)
+    in_circuit = (labels[src] == labels[dst]) & ((sizes[labels[src]] > 1) | (src == dst))
+    mask = np.zeros(graph.n_places, dtype=bool)
+    mask[np.flatnonzero(tight)[in_circuit]] = True
+    return mask
+
+
+def cyclicity(graph: EventGraph, result: HowardResult, critical: np.ndarray | None = None) -> int:
+    r"""Cyclicity of the critical graph, counted in firings.
+
+    For each strongly connected component of the critical graph, the gcd of the token counts of
+    its circuits; the cyclicity is the lcm of these over the components. The firing times then
+    become periodic: ``x_t(k + c) = x_t(k) + c * eta_t`` for all large ``k``.
+
+    Notes
+    -----
+    The gcd of circuit lengths of a strongly connected component is the gcd of
+    ``level_u + m_p - level_t`` over its arcs, for any levels given by a spanning tree.
+
+    Examples
+    --------
+    Two transitions exchanging tokens, one token in all, critical circuit of two places:
+
+    >>> from cyclecheck.algebra.spectral import howard
+    >>> g = EventGraph([1.0, 1.0], [0, 1], [1, 0], [1, 1], [0.0, 0.0])
+    >>> cyclicity(g, howard(g))
+    2
+    """
+    if critical is None:
+        critical = critical_places(graph, result)
+    n = graph.n_transitions
+    src, dst = graph.source[critical], graph.target[critical]
+    tok = graph.tokens[critical]
+    adj = csr_matrix((np.ones(src.size, dtype=np.int8), (src, dst)), shape=(n, n))
+    count, labels = connected_components(adj, directed=True, connection="strong")
+    inside = labels[src] == labels[dst]
+    src, dst, tok = src[inside], dst[inside], tok[inside]
+    if src.size == 0:
+        return 1
+    # Spanning forest of each critical component by breadth-first search from one of its nodes.
+    parent = np.arange(n)
+    link_tokens = np.zeros(n)
+    first_place: dict[tuple[int, int], int] = {}
+    for s, t, m in zip(src.tolist(), dst.tolist(), tok.tolist(), strict=True):
+        first_place.setdefault((s, t), m)
+    sub = csr_matrix((np.ones(src.size, dtype=np.int8), (src, dst)), shape=(n, n))
+    comps = np.unique(labels[src])
+    for comp in comps.tolist():
+        start = int(src[labels[src] == comp][0])
+        nodes, preds = breadth_first_order(sub, start, directed=True, return_predecessors=True)
+        for node in nodes[1:].tolist():
+            parent[node] = preds[node]
+            link_tokens[node] = first_place[(int(preds[node]), node)]
+    _, (level,) = chain_sums(parent, link_tokens[None, :])
+    gaps = np.abs(level[src] + tok - level[dst]).astype(np.int64)
+    period = 1
+    for comp in comps.tolist():
+        g = int(np.gcd.reduce(gaps[labels[src] == comp]))
+        period = math.lcm(period, max(g, 1))
+    return period
+
+
+@dataclass(frozen=True)
+class Slack:
+    """How much each hold and duration may grow before the cycle time changes.
+
+    Attributes
+    ----------
+    places, transitions : ndarray of float
+        Slack of each place's hold and of each transition's duration; ``inf`` where no circuit
+        goes through the element inside its strongly connected component (it never limits).
+    exact : bool
+        True when computed by shortest paths; False when the reduced weight (a lower bound)
+        was used because the graph exceeds :data:`SLACK_EXACT_LIMIT`.
+    """
+
+    places: np.ndarray
+    transitions: np.ndarray
+    exact: bool
+
+
+def slack(graph: EventGraph, result: HowardResult) -> Slack:
+    r"""Slack of every place and transition.
+
+    The slack of place ``p = (u -> t)`` inside a strongly connected component is
+
+    .. math::  s_p = -r_p + \operatorname{dist}_{-r}(t, u),
+
+    the smallest ``-sum(r)`` over circuits through ``p``; the slack of transition ``t`` is the
+    least slack of its input places inside its component (raising ``d_t`` raises all of them,
+    and each circuit through ``t`` uses exactly one).
+
+    Examples
+    --------
+    A single server of duration 3 (self-loop) feeding one of duration 2: the second may grow by 1.
+
+    >>> from cyclecheck.algebra.spectral import howard
+    >>> g = EventGraph([3.0, 2.0], [0, 0, 1], [0, 1, 1], [1, 0, 1], [0.0, 0.0, 0.0])
+    >>> slack(g, howard(g)).transitions.tolist()
+    [0.0, 1.0]
+    """
+    _, labels = strongly_connected_components(graph)
+    inside = labels[graph.source] == labels[graph.target]
+    tol = _tolerance(graph, result)
+    length = np.maximum(-reduced_weights(graph, result), 0.0)
+    length[np.abs(length) <= tol] = 0.0
+    place_slack = np.full(graph.n_places, np.inf)
+    n = graph.n_transitions
+    exact = n * graph.n_places <= SLACK_EXACT_LIMIT
+    idx = np.flatnonzero(inside)
+    if exact and idx.size:
+        # Shortest intra-component distances; parallel places keep their shortest length.
+        src, dst, ln = graph.source[idx], graph.target[idx], length[idx]
+        key = src * n + dst
+        order = np.lexsort((ln, key))
+        keep = order[np.r_[True, key[order][1:] != key[order][:-1]]]
+        adj = csr_matrix((ln[keep], (src[keep], dst[keep])), shape=(n, n))
+        targets = np.unique(dst)
+        dist = dijkstra(adj, directed=True, indices=targets)
+        row = np.searchsorted(targets, dst)
+        place_slack[idx] = ln + dist[row, src]
+    else:
+        place_slack[idx] = length[idx]
+    trans_slack = np.full(n, np.inf)
+    np.minimum.at(trans_slack, graph.target[idx], place_slack[idx])
+    return Slack(place_slack, trans_slack, exact)
+
+
+def periodic_schedule(graph: EventGraph, result: HowardResult) -> tuple[np.ndarray, np.ndarray]:
+    """A periodic schedule from the eigenvector: completion and start of the first firing.
+
+    Firing ``k`` of ``t`` completes at ``completion[t] + (k - 1) * eta_t`` and starts
+    ``duration[t]`` earlier. Times are shifted so that the earliest start is 0.
+    """
+    completion = result.bias.copy()
+    start = completion - graph.duration
+    shift = start.min() if start.size else 0.0
+    return completion - shift, start - shift
+
+
+@dataclass(frozen=True)
+class Certificate:
+    """Evidence, checked on every result, that the cycle times are right.
+
+    Attributes
+    ----------
+    circuit_gap : float
+        Largest ``|ratio(c) - eta_t|`` over the reported circuits ``c`` and their transitions,
+        ratios recomputed from the graph by exact summation: the lower bound is attained.
+    monotone_gap : float
+        Largest ``eta_u - eta_t`` over places ``u -> t``: cycle times never drop downstream.
+    max_reduced_weight : float
+        Largest reduced weight over places between transitions of equal cycle time: no circuit
+        has a larger ratio (sum ``r`` around any circuit ``<= 0``).
+    eigen_residual : float
+        Largest ``|v_t - max_p (w_p - eta_t m_p + v_u)|`` over transitions: ``v`` is an
+        eigenvector, the periodic regime ``x_t(k) = k eta_t + v_t`` solves the recursion.
+    tolerance : float
+        The threshold all four are held to.
+    """
+
+    circuit_gap: float
+    monotone_gap: float
+    max_reduced_weight: float
+    eigen_residual: float
+    tolerance: float
+
+    @property
+    def holds(self) -> bool:
+        """True when every check is within tolerance."""
+        return max(self.circuit_gap, self.monotone_gap, self.max_reduced_weight,
+                   self.eigen_residual) <= self.tolerance
+
+
+def certify(graph: EventGraph, result: HowardResult) -> Certificate:
+    """Check a Howard result independently of how it was found."""
+    tol = _tolerance(graph, result)
+    eta = result.cycle_time
+    gap = 0.0
+    for c in result.circuits:
+        ratio = math.fsum(float(graph.weight[p]) for p in c.places) / sum(
+            int(graph.tokens[p]) for p in c.places
+        )
+        gap = max(gap, float(np.abs(eta[list(c.transitions)] - ratio).max()))
+    monotone = float(np.max(eta[graph.source] - eta[graph.target], initial=0.0))
+    same = _same_cycle_time(graph, result, tol)
+    red = reduced_weights(graph, result)
+    max_red = float(np.max(red[same], initial=-np.inf))
+    order, starts = graph.by_target
+    value = np.where(same, graph.weight - eta[graph.target] * graph.tokens + result.bias[graph.source], -np.inf)
+    best = np.maximum.reduceat(value[order], starts[:-1])
+    residual = float(np.max(np.abs(best - result.bias), initial=0.0))
+    return Certificate(gap, max(monotone, 0.0), max(max_red, 0.0), residual, tol)
