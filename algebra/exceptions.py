@@ -7,7 +7,14 @@ catches these and re-raises them with the model file and the element names attac
 
 from __future__ import annotations
 
-__all__ = ["GraphStructureError", "MaxPlusError", "NotLive", "Unfed"]
+__all__ = [
+    "GraphStructureError",
+    "InvalidArray",
+    "MaxPlusError",
+    "NotLive",
+    "PositiveCircuit",
+    "Unfed",
+]
 
 
 class MaxPlusError(ValueError):
@@ -48,4 +55,30 @@ class Unfed(MaxPlusError):
         super().__init__(
             message
             or f"transitions {self.transitions} have no input place: their firing rate is unbounded"
+        )
+
+
+class InvalidArray(MaxPlusError):
+    """An array given to the algebra has the wrong shape or a value outside its domain.
+
+    Examples: a matrix with NaN or +inf (only finite numbers and ε = −inf are max-plus scalars),
+    a non-square matrix where a square one is needed, a block of random durations of the wrong
+    shape or with negative values.
+    """
+
+
+class PositiveCircuit(MaxPlusError):
+    """A circuit of positive weight: the Kleene star A* = E ⊕ A ⊕ A² ⊕ … diverges.
+
+    Attributes
+    ----------
+    nodes : list of int
+        Indices of the nodes that lie on a circuit of positive weight.
+    """
+
+    def __init__(self, nodes: list[int], message: str | None = None) -> None:
+        self.nodes = list(nodes)
+        super().__init__(
+            message
+            or f"nodes {self.nodes} lie on a circuit of positive weight: the Kleene star diverges"
         )
