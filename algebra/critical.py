@@ -132,7 +132,7 @@ def cyclicity(graph: EventGraph, result: HowardResult, critical: np.ndarray | No
         for node in nodes[1:].tolist():
             parent[node] = preds[node]
             link_tokens[node] = first_place[(int(preds[node]), node)]
-    _, (level,) = chain_sums(parent, link_tokens[None, :])
+    _, (level,) = chain_sums(parent, link_tokens)
     gaps = np.abs(level[src] + tok - level[dst]).astype(np.int64)
     period = 1
     for comp in comps.tolist():

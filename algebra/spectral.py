@@ -111,63 +111,89 @@ class HowardResult:
         return float(self.cycle_time.max())
 
 
-def chain_sums(parent: np.ndarray, values: np.ndarray) -> tuple[np.ndarray, ...]:
+def chain_sums(parent: np.ndarray, *values: np.ndarray) -> tuple[np.ndarray, list[np.ndarray]]:
     r"""Sums of ``values`` along parent chains of a forest, by pointer doubling.
 
     Parameters
     ----------
     parent : ndarray of int, shape (n,)
         Parent of each node; a root is its own parent. Every chain must end in a root.
-    values : ndarray, shape (k, n)
+    *values : ndarray of float, shape (n,)
         Quantities carried by each node's link to its parent (ignored at roots).
 
     Returns
     -------
     root : ndarray of int, shape (n,)
         The root each node's chain ends in.
-    sums : ndarray, shape (k, n)
-        For each node, the sum of ``values`` over the nodes of its chain, root excluded.
+    sums : list of ndarray, shape (n,)
+        For each of ``values``, the sum over the links of each node's chain.
 
     Notes
     -----
     ``ceil(log2 n)`` rounds of ``P <- P[P]``, ``S <- S + S[P]``: after round ``j`` every node
-    has summed the first ``2**j`` links of its chain (roots add zero).
+    has summed the first ``2**j`` links of its chain (roots add zero). One-dimensional gathers
+    only: gathering along the second axis of a 2-d array is an order of magnitude slower.
 
     Examples
     --------
-    >>> root, (s,) = chain_sums(np.array([0, 0, 1]), np.array([[9.0, 1.0, 2.0]]))
+    >>> root, (s,) = chain_sums(np.array([0, 0, 1]), np.array([9.0, 1.0, 2.0]))
     >>> root.tolist(), s.tolist()
     ([0, 0, 0], [0.0, 1.0, 3.0])
     """
     n = parent.shape[0]
     jump = parent.copy()
     is_root = jump == np.arange(n)
-    sums = np.array(values, dtype=np.float64, copy=True)
-    sums[:, is_root] = 0.0
+    sums = [np.where(is_root, 0.0, np.asarray(v, dtype=np.float64)) for v in values]
     for _ in range(max(1, math.ceil(math.log2(max(n, 2))))):
-        if np.array_equal(jump[jump], jump):
+        nxt = jump[jump]
+        if np.array_equal(nxt, jump):
             break
-        sums += sums[:, jump]
-        jump = jump[jump]
+        for s in sums:
+            s += s[jump]
+        jump = nxt
     return jump, sums
 
 
-def _policy_cycle_nodes(pred: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
-    """Nodes on circuits of a functional graph, and the smallest node of each one's circuit."""
+def _policy_cycles(pred: np.ndarray) -> np.ndarray:
+    """Mask of the one node per circuit of a functional graph that has the circuit's smallest index."""
     n = pred.shape[0]
-    rounds = max(1, math.ceil(math.log2(max(n, 2))))
-    jump = pred.copy()
-    for _ in range(rounds):
-        jump = jump[jump]
-    # pred^(2^rounds) with 2^rounds >= n lands every node on a circuit, and is onto each one.
-    on_cycle = np.zeros(n, dtype=bool)
-    on_cycle[jump] = True
     smallest = np.arange(n)
     jump = pred.copy()
-    for _ in range(rounds):
+    for _ in range(max(1, math.ceil(math.log2(max(n, 2))))):
         smallest = np.minimum(smallest, smallest[jump])
         jump = jump[jump]
-    return on_cycle, smallest
+    # jump = pred^(2^rounds) with 2^rounds >= n lands every node on a circuit and is onto each
+    # one; there the window of 2^rounds steps covers the whole circuit, so ``smallest`` is the
+    # circuit's least node.
+    on_cycle = np.zeros(n, dtype=bool)
+    on_cycle[jump] = True
+    return on_cycle & (smallest == np.arange(n))
+
+
+@dataclass(frozen=True)
+class _SortedPlaces:
+    """Places in the order of their target (CSR), so per-transition maxima need no gather."""
+
+    source: np.ndarray
+    target: np.ndarray
+    weight: np.ndarray
+    tokens: np.ndarray
+    starts: np.ndarray
+    order: np.ndarray  # sorted position -> original place index
+
+    @classmethod
+    def of(cls, graph: EventGraph) -> _SortedPlaces:
+        order, starts = graph.by_target
+        return cls(graph.source[order], graph.target[order], graph.weight[order],
+                   graph.tokens[order].astype(np.float64), starts, order)
+
+    def segment_argmax(self, values: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+        """Per transition, the max of ``values`` (one per sorted place) and the first place
+        attaining it."""
+        heads = self.starts[:-1]
+        seg_max = np.maximum.reduceat(values, heads)
+        position = np.where(values >= seg_max[self.target], np.arange(values.size), values.size)
+        return seg_max, np.minimum.reduceat(position, heads)
 
 
 @dataclass(frozen=True)
@@ -177,16 +203,15 @@ class _Evaluation:
     roots: np.ndarray  # one transition per policy circuit (its smallest index)
 
 
-def _evaluate(graph: EventGraph, policy: np.ndarray) -> _Evaluation:
-    n = graph.n_transitions
-    pred = graph.source[policy]
-    link_weight = graph.weight[policy]
-    link_tokens = graph.tokens[policy].astype(np.float64)
-    on_cycle, smallest = _policy_cycle_nodes(pred)
-    is_root = on_cycle & (smallest == np.arange(n))
+def _evaluate(places: _SortedPlaces, policy: np.ndarray) -> _Evaluation:
+    n = policy.shape[0]
+    pred = places.source[policy]
+    link_weight = places.weight[policy]
+    link_tokens = places.tokens[policy]
+    is_root = _policy_cycles(pred)
     roots = np.flatnonzero(is_root)
     parent = np.where(is_root, np.arange(n), pred)
-    root_of, (sum_w, sum_m) = chain_sums(parent, np.vstack([link_weight, link_tokens]))
+    root_of, (sum_w, sum_m) = chain_sums(parent, link_weight, link_tokens)
     # Circuit of root r: its own link plus the chain from pred[r] back to r.
     circ_w = link_weight[roots] + sum_w[pred[roots]]
     circ_m = link_tokens[roots] + sum_m[pred[roots]]
@@ -197,16 +222,6 @@ def _evaluate(graph: EventGraph, policy: np.ndarray) -> _Evaluation:
     eta = ratio[root_of]
     bias = sum_w - eta * sum_m
     return _Evaluation(eta, bias, roots)
-
-
-def _segment_argmax(values: np.ndarray, order: np.ndarray, starts: np.ndarray) -> tuple:
-    """Per transition, the max of ``values`` over its input places and one place attaining it."""
-    sorted_vals = values[order]
-    seg_max = np.maximum.reduceat(sorted_vals, starts[:-1])
-    owner = np.repeat(np.arange(starts.shape[0] - 1), np.diff(starts))
-    hit = np.flatnonzero(sorted_vals >= seg_max[owner])
-    first = np.unique(owner[hit], return_index=True)[1]
-    return seg_max, order[hit[first]]
 
 
 def _tolerance(graph: EventGraph) -> float:
@@ -251,35 +266,35 @@ def howard(graph: EventGraph, *, max_iterations: int | None = None) -> HowardRes
     [3.0, 3.0]
     """
     check_live(graph)
-    order, starts = graph.by_target
+    places = _SortedPlaces.of(graph)
     tol = _tolerance(graph)
-    limit = max_iterations if max_iterations is not None else 10 * (graph.n_transitions + graph.n_places) + 100
+    n, m = graph.n_transitions, graph.n_places
+    limit = max_iterations if max_iterations is not None else 10 * (n + m) + 100
 
-    # Start from the heaviest input place of each transition (per token, roughly).
-    initial = graph.weight / np.maximum(graph.tokens, 1)
-    _, policy = _segment_argmax(initial, order, starts)
+    # Start from the heaviest input place of each transition, per token.
+    _, policy = places.segment_argmax(places.weight / np.maximum(places.tokens, 1.0))
     iterations = 0
     while True:
-        ev = _evaluate(graph, policy)
-        eta_src = ev.eta[graph.source]
-        best_eta, arg_eta = _segment_argmax(eta_src, order, starts)
+        ev = _evaluate(places, policy)
+        eta_src = ev.eta[places.source]
+        best_eta, arg_eta = places.segment_argmax(eta_src)
         improve = best_eta > ev.eta + tol
-        if not improve.any():
-            same = eta_src >= ev.eta[graph.target] - tol
-            value = graph.weight - ev.eta[graph.target] * graph.tokens + ev.bias[graph.source]
-            value = np.where(same, value, -np.inf)
-            best_val, arg_val = _segment_argmax(value, order, starts)
+        if improve.any():
+            policy = np.where(improve, arg_eta, policy)
+        else:
+            eta_tgt = ev.eta[places.target]
+            value = places.weight - eta_tgt * places.tokens + ev.bias[places.source]
+            value[eta_src < eta_tgt - tol] = -np.inf
+            best_val, arg_val = places.segment_argmax(value)
             improve = best_val > ev.bias + tol * np.maximum(1.0, np.abs(ev.bias))
             if not improve.any():
                 break
-            new_policy = np.where(improve, arg_val, policy)
-        else:
-            new_policy = np.where(improve, arg_eta, policy)
-        policy = new_policy
+            policy = np.where(improve, arg_val, policy)
         iterations += 1
         if iterations > limit:
             raise MaxPlusError(f"Howard policy iteration did not converge in {limit} improvements")
 
+    policy = places.order[policy]
     circuits = [_extract_circuit(graph, policy, int(r)) for r in ev.roots]
     circuits.sort(key=lambda c: (-c.ratio, c.transitions))
     return HowardResult(ev.eta, ev.bias, policy, circuits, iterations)
