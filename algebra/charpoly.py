@@ -58,7 +58,7 @@ from typing import Any
 import numpy as np
 from numpy.typing import ArrayLike
 
-from .exceptions import MaxPlusError
+from .exceptions import InvalidArray, MaxPlusError
 
 __all__ = [
     "EPS",
@@ -93,13 +93,13 @@ def _as_matrix(A: ArrayLike, name: str = "A") -> np.ndarray:
     try:
         M = np.array(A, dtype=np.float64)
     except (TypeError, ValueError) as exc:
-        raise MaxPlusError(f"{name} must be a square array of numbers: {exc}") from None
+        raise InvalidArray(f"{name} must be a square array of numbers: {exc}") from None
     if M.ndim != 2 or M.shape[0] != M.shape[1]:
-        raise MaxPlusError(f"{name} must be a square 2-D array, got shape {M.shape}")
+        raise InvalidArray(f"{name} must be a square 2-D array, got shape {M.shape}")
     bad = np.isnan(M) | (M == np.inf)
     if bad.any():
         i, j = (int(v) for v in np.argwhere(bad)[0])
-        raise MaxPlusError(
+        raise InvalidArray(
             f"{name}[{i}, {j}] is {M[i, j]}: entries must be finite numbers or -inf (ε, no arc)"
         )
     return M
@@ -153,7 +153,7 @@ def tropical_permanent(A: ArrayLike) -> float:
 
     Raises
     ------
-    MaxPlusError
+    InvalidArray
         If ``A`` is not square or holds NaN or ``+inf``.
 
     Notes
@@ -220,7 +220,7 @@ def characteristic_value(A: ArrayLike, z: float) -> float:
 
     Raises
     ------
-    MaxPlusError
+    InvalidArray
         If ``A`` is not a valid matrix or ``z`` is NaN.
 
     Notes
@@ -247,7 +247,7 @@ def characteristic_value(A: ArrayLike, z: float) -> float:
     M = _as_matrix(A)
     z = float(z)
     if math.isnan(z):
-        raise MaxPlusError("z must be a number or ±inf, got nan")
+        raise InvalidArray("z must be a number or ±inf, got nan")
     if M.shape[0] == 0:
         return 0.0
     if z == -math.inf:
@@ -332,7 +332,7 @@ def essential_terms(A: ArrayLike) -> CharPoly:
 
     Raises
     ------
-    MaxPlusError
+    InvalidArray
         If ``A`` is not square or holds NaN or ``+inf``.
 
     Notes
@@ -452,7 +452,7 @@ def charpoly_or_none(
 
     Raises
     ------
-    MaxPlusError
+    InvalidArray
         If ``A`` is not a valid matrix (a bad matrix is an error, not a reason to skip).
 
     References
@@ -496,8 +496,10 @@ def poly_cycle_coefficients(A: ArrayLike) -> np.ndarray:
 
     Raises
     ------
+    InvalidArray
+        If ``A`` is not a valid matrix.
     MaxPlusError
-        If ``A`` is not a valid matrix or ``n > MAX_ENUMERATION_SIZE``.
+        If ``n > MAX_ENUMERATION_SIZE``.
 
     References
     ----------
