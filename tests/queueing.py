@@ -139,12 +139,18 @@ def _mm1(arrival_rate: float, service_rate: float) -> tuple[float, float]:
 
 
 def mm1_mean_wait(arrival_rate: float, service_rate: float) -> float:
-    r"""Mean wait in queue of M/M/1, :math:`W_q = \rho / (\mu - \lambda)`, ρ = λ/μ (Kleinrock [4]_ §3.2)."""
+    r"""Mean wait in queue of M/M/1, :math:`W_q = \rho / (\mu - \lambda)` with ρ = λ/μ.
+
+    Kleinrock [4]_ §3.2. Raises ValueError unless 0 < λ < μ (finite).
+    """
     lam, mu = _mm1(arrival_rate, service_rate)
     return (lam / mu) / (mu - lam)
 
 
 def mm1_mean_sojourn(arrival_rate: float, service_rate: float) -> float:
-    r"""Mean time in system of M/M/1, :math:`W = 1 / (\mu - \lambda)` (Kleinrock [4]_ §3.2)."""
+    r"""Mean time in system of M/M/1, :math:`W = 1 / (\mu - \lambda)`.
+
+    Kleinrock [4]_ §3.2. Raises ValueError unless 0 < λ < μ (finite).
+    """
     lam, mu = _mm1(arrival_rate, service_rate)
     return 1.0 / (mu - lam)

@@ -17,8 +17,9 @@ from tests.queueing import (
     mva_throughput,
 )
 
-rates = st.lists(st.floats(0.05, 20.0, allow_nan=False, allow_subnormal=False), min_size=1,
-                 max_size=8)
+rates = st.lists(
+    st.floats(0.05, 20.0, allow_nan=False, allow_subnormal=False), min_size=1, max_size=8
+)
 
 
 def ctmc_throughput(service_rates: list[float], n_customers: int) -> float:
@@ -27,11 +28,12 @@ def ctmc_throughput(service_rates: list[float], n_customers: int) -> float:
     States are the placements (n_1, ..., n_K) of the customers; station i serves at rate μ_i
     when it holds a customer, who then moves to station i + 1 (mod K). The throughput is the
     long-run departure rate from station 0. No product form is assumed (standard CTMC
-    balance equations, e.g. Kleinrock 1975, Queueing Systems Vol. 1, §2.4).
+    balance equations, e.g. Kleinrock 1975, Queueing Systems Vol. 1, ch. 2; from memory).
     """
     k = len(service_rates)
-    states = [s for s in itertools.product(range(n_customers + 1), repeat=k)
-              if sum(s) == n_customers]
+    states = [
+        s for s in itertools.product(range(n_customers + 1), repeat=k) if sum(s) == n_customers
+    ]
     index = {s: i for i, s in enumerate(states)}
     q = np.zeros((len(states), len(states)))
     for s, i in index.items():
