@@ -19,9 +19,6 @@ from collections import defaultdict
 import numpy as np
 import pytest
 import simpy
-from hypothesis import HealthCheck, given, settings
-from hypothesis import strategies as st
-
 from cyclecheck.algebra.eventgraph import EventGraph
 from cyclecheck.algebra.exceptions import NotLive, Unfed
 from cyclecheck.simulate.engine import (
@@ -30,6 +27,9 @@ from cyclecheck.simulate.engine import (
     SimulationRun,
     simulate_event_graph,
 )
+from hypothesis import HealthCheck, given, settings
+from hypothesis import strategies as st
+
 from tests.strategies import live_event_graphs
 
 RTOL = 1e-9
@@ -99,11 +99,12 @@ class StandInSampler:
             rng = np.random.Generator(
                 np.random.PCG64(np.random.SeedSequence(self.seed, spawn_key=(kind, e, b)))
             )
-            parts.append(rng.exponential(1.0, self.block) if kind == 0
-                         else rng.uniform(0.0, 2.0, self.block))
+            parts.append(
+                rng.exponential(1.0, self.block) if kind == 0 else rng.uniform(0.0, 2.0, self.block)
+            )
         values = np.concatenate(parts)
         offset = first - 1 - b0 * self.block
-        return values[offset: offset + count]
+        return values[offset : offset + count]
 
     def duration(self, t, first, count):
         self.calls.append(("duration", t, first, count))
@@ -149,19 +150,36 @@ def graph(duration, places, names=()):
 # hand-made graphs
 
 SINGLE_SERVER = graph([1.5], [(0, 0, 1, 0.0)], names=["machine"])
-CLOSED_LINE_3 = graph([2.0, 3.0, 1.0], [(0, 1, 0, 0.5), (1, 2, 1, 0.0), (2, 0, 1, 1.0),
-                                        (0, 0, 1, 0.0), (1, 1, 1, 0.0), (2, 2, 1, 0.0)])
+CLOSED_LINE_3 = graph(
+    [2.0, 3.0, 1.0],
+    [
+        (0, 1, 0, 0.5),
+        (1, 2, 1, 0.0),
+        (2, 0, 1, 1.0),
+        (0, 0, 1, 0.0),
+        (1, 1, 1, 0.0),
+        (2, 2, 1, 0.0),
+    ],
+)
 # A single server feeds an infinite server through a place with long random holds: tokens
 # overtake each other and firing k of "pack" may start before firing k - 1.
 OUT_OF_ORDER = graph([0.5, 1.0], [(0, 0, 1, 0.0), (0, 1, 0, 10.0)], names=["cut", "pack"])
 PARALLEL = graph([1.0, 2.0], [(0, 1, 0, 3.0), (0, 1, 2, 0.5), (1, 0, 1, 1.0), (0, 0, 1, 0.0)])
-MANY_TOKENS = graph([1.0, 4.0, 2.0], [(0, 1, 3, 1.0), (1, 2, 0, 2.0), (2, 0, 2, 0.5),
-                                      (1, 1, 2, 0.0), (2, 2, 3, 1.0)])
+MANY_TOKENS = graph(
+    [1.0, 4.0, 2.0],
+    [(0, 1, 3, 1.0), (1, 2, 0, 2.0), (2, 0, 2, 0.5), (1, 1, 2, 0.0), (2, 2, 3, 1.0)],
+)
 # two components: {0, 1} upstream feeds {2, 3}; nothing flows back
 NOT_STRONGLY_CONNECTED = graph(
     [1.0, 2.0, 3.0, 0.5],
-    [(0, 1, 0, 1.0), (1, 0, 2, 0.0), (1, 2, 0, 2.0), (2, 3, 1, 0.0), (3, 2, 1, 1.0),
-     (0, 0, 1, 0.0)],
+    [
+        (0, 1, 0, 1.0),
+        (1, 0, 2, 0.0),
+        (1, 2, 0, 2.0),
+        (2, 3, 1, 0.0),
+        (3, 2, 1, 1.0),
+        (0, 0, 1, 0.0),
+    ],
 )
 HAND_MADE = {
     "single server": SINGLE_SERVER,
@@ -209,8 +227,11 @@ def test_many_firings_cross_sampler_blocks():
 
 
 @settings(max_examples=60, deadline=None, suppress_health_check=[HealthCheck.too_slow])
-@given(g=live_event_graphs(max_transitions=6, max_places=14), seed=st.integers(0, 2**32 - 1),
-       random=st.booleans())
+@given(
+    g=live_event_graphs(max_transitions=6, max_places=14),
+    seed=st.integers(0, 2**32 - 1),
+    random=st.booleans(),
+)
 def test_live_graphs_follow_the_recursion(g, seed, random):
     """Property: on any live graph, fixed or random values, the engine equals the recursion."""
     if random:
@@ -223,8 +244,11 @@ def test_live_graphs_follow_the_recursion(g, seed, random):
 
 
 @settings(max_examples=40, deadline=None)
-@given(g=live_event_graphs(max_transitions=5, max_places=12), seed=st.integers(0, 2**32 - 1),
-       fraction=st.floats(0.05, 1.0))
+@given(
+    g=live_event_graphs(max_transitions=5, max_places=12),
+    seed=st.integers(0, 2**32 - 1),
+    fraction=st.floats(0.05, 1.0),
+)
 def test_until_keeps_exactly_the_firings_before_it(g, seed, fraction):
     """Property: a firing is recorded iff it starts / completes strictly before ``until``."""
     sampler = StandInSampler(g, seed)
@@ -237,6 +261,73 @@ def test_until_keeps_exactly_the_firings_before_it(g, seed, fraction):
     keep = time < until
     np.testing.assert_allclose(run.time[keep], time[keep], rtol=RTOL, atol=0)
     assert run.horizon == until
+
+
+# ---------------------------------------------------------------------------------------------
+# against the project's max-plus recursion and sampler (another implementation of the formula)
+
+LAWS = [
+    lambda v: {"dist": "exponential", "mean": v},
+    lambda v: {"dist": "uniform", "low": 0.0, "high": 2 * v},
+    lambda v: {"dist": "gamma", "mean": v, "cv": 2.0},
+]
+
+
+def project_sampler(g, seed, law_index):
+    """A Sampler of simulate/durations.py with random laws of the graph's values as means."""
+    durations = pytest.importorskip("cyclecheck.simulate.durations")
+    law = LAWS[law_index]
+    return durations.Sampler(
+        [law(v) if v > 0 else 0.0 for v in g.duration.tolist()],
+        [LAWS[(law_index + 1) % 3](v) if v > 0 else 0.0 for v in g.hold.tolist()],
+        seed=seed,
+    )
+
+
+@settings(max_examples=40, deadline=None)
+@given(g=live_event_graphs(max_transitions=6, max_places=14))
+def test_fixed_values_agree_with_algebra_firing_times(g):
+    """sampler=None: the engine equals cyclecheck.algebra.recursion.firing_times."""
+    recursion = pytest.importorskip("cyclecheck.algebra.recursion")
+    run = simulate_event_graph(g, n_firings=30)
+    np.testing.assert_allclose(run.time, recursion.firing_times(g, 30), rtol=RTOL, atol=0)
+
+
+@settings(max_examples=40, deadline=None)
+@given(
+    g=live_event_graphs(max_transitions=6, max_places=14),
+    seed=st.integers(0, 2**32 - 1),
+    law=st.integers(0, 2),
+)
+def test_random_values_agree_with_random_recursion(g, seed, law):
+    """Same Sampler, same draws: the engine equals RandomRecursion sample path by sample path."""
+    recursion = pytest.importorskip("cyclecheck.algebra.recursion")
+    sampler = project_sampler(g, seed, law)
+    run = simulate_event_graph(g, sampler, n_firings=30)
+    rec = recursion.RandomRecursion(
+        g,
+        lambda first, count: sampler.duration_block(first, count)[:, None, :],
+        lambda first, count: sampler.hold_block(first, count)[:, None, :],
+        replications=1,
+    )
+    out = rec.run(30, record=True)
+    np.testing.assert_allclose(run.time, out.times[:, 0, :], rtol=RTOL, atol=0)
+
+
+def test_long_random_run_agrees_with_random_recursion():
+    """Several thousand firings with overtaking tokens, across sampler blocks."""
+    recursion = pytest.importorskip("cyclecheck.algebra.recursion")
+    for g in (OUT_OF_ORDER, MANY_TOKENS, NOT_STRONGLY_CONNECTED):
+        sampler = project_sampler(g, 11, 0)
+        run = simulate_event_graph(g, sampler, n_firings=3 * BLOCK)
+        rec = recursion.RandomRecursion(
+            g,
+            lambda first, count, s=sampler: s.duration_block(first, count)[:, None, :],
+            lambda first, count, s=sampler: s.hold_block(first, count)[:, None, :],
+            replications=1,
+        )
+        out = rec.run(3 * BLOCK, record=True)
+        np.testing.assert_allclose(run.time, out.times[:, 0, :], rtol=RTOL, atol=0)
 
 
 # ---------------------------------------------------------------------------------------------
@@ -279,12 +370,33 @@ def test_closed_exponential_line_matches_gordon_newell_throughput():
     """
     stations, customers = 4, 3
     places = [(i, i, 1, 0.0) for i in range(stations)]
-    places += [(i, (i + 1) % stations, 1 if (i + 1) % stations < customers else 0, 0.0)
-               for i in range(stations)]
+    places += [
+        (i, (i + 1) % stations, 1 if (i + 1) % stations < customers else 0, 0.0)
+        for i in range(stations)
+    ]
     g = graph([1.0] * stations, places)
     run = simulate_event_graph(g, StandInSampler(g, seed=6), n_firings=20_000)
     cycle = (run.time[-1] - run.time[999]) / (20_000 - 1000)
     np.testing.assert_allclose(cycle, (customers + stations - 1) / customers, rtol=0.05)
+
+
+def test_closed_line_with_unequal_rates_matches_buzen():
+    """Closed line, rates (1, 0.5, 2, 1), N = 3: throughput from Buzen's convolution algorithm.
+
+    Source: Buzen (1973), Computational algorithms for closed queueing networks with exponential
+    servers, CACM 16(9) (through tests/queueing.py, itself checked against MVA, Reiser &
+    Lavenberg 1980). Tolerance 5 % for 20 000 firings (common practice, no source).
+    """
+    from tests.queueing import gordon_newell_throughput
+
+    rates, customers = [1.0, 0.5, 2.0, 1.0], 3
+    k = len(rates)
+    places = [(i, i, 1, 0.0) for i in range(k)]
+    places += [(i, (i + 1) % k, 1 if (i + 1) % k < customers else 0, 0.0) for i in range(k)]
+    g = graph([1.0 / r for r in rates], places)
+    run = simulate_event_graph(g, StandInSampler(g, seed=12), n_firings=20_000)
+    cycle = (run.time[-1] - run.time[999]) / (20_000 - 1000)
+    np.testing.assert_allclose(cycle, 1.0 / gordon_newell_throughput(rates, customers), rtol=0.05)
 
 
 def test_firings_overlap_without_a_self_loop():

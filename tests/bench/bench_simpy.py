@@ -26,7 +26,6 @@ import time
 
 import numpy as np
 import simpy
-
 from cyclecheck.algebra.eventgraph import EventGraph
 from cyclecheck.simulate.engine import simulate_event_graph
 
@@ -129,12 +128,16 @@ def main() -> None:
             fn(args.firings, SEED + r)
             rates[name].append(total / (time.perf_counter() - t0))
 
-    print(f"closed line: {STATIONS} stations, {CUSTOMERS} customers, "
-          f"{total} firings per run, {args.repeat} runs each (sample paths checked equal)")
+    print(
+        f"closed line: {STATIONS} stations, {CUSTOMERS} customers, "
+        f"{total} firings per run, {args.repeat} runs each (sample paths checked equal)"
+    )
     print(f"{'model':<15} {'median firings/s':>17} {'min':>10} {'max':>10}")
     for name, values in rates.items():
-        print(f"{name:<15} {statistics.median(values):>17,.0f} {min(values):>10,.0f} "
-              f"{max(values):>10,.0f}")
+        print(
+            f"{name:<15} {statistics.median(values):>17,.0f} {min(values):>10,.0f} "
+            f"{max(values):>10,.0f}"
+        )
     ratio = statistics.median(rates["engine"]) / statistics.median(rates["minimal SimPy"])
     print(f"ratio engine / minimal: {ratio:.2f} (target >= 0.60)")
 
