@@ -57,14 +57,21 @@ def reduced_weights(graph: EventGraph, result: HowardResult) -> np.ndarray:
     return graph.weight - eta_t * graph.tokens + result.bias[graph.source] - result.bias[graph.target]
 
 
-def _tolerance(graph: EventGraph, result: HowardResult) -> float:
-    scale = max(1.0, float(np.abs(result.bias).max(initial=0.0)), float(graph.weight.max(initial=0.0)))
-    return 1e-9 * scale
+#: Relative precision of the equalities read off the eigenmode: a reduced weight counts as zero,
+#: two cycle times as equal, when they differ by less than this times the size of their terms.
+RTOL = 1e-9
 
 
-def _same_cycle_time(graph: EventGraph, result: HowardResult, tol: float) -> np.ndarray:
-    eta = result.cycle_time
-    return np.abs(eta[graph.source] - eta[graph.target]) <= tol
+def _term_scale(graph: EventGraph, result: HowardResult) -> np.ndarray:
+    """Per place, the size of the terms of its reduced weight (what its rounding scales with)."""
+    eta, v = result.cycle_time, result.bias
+    return (graph.weight + np.abs(eta[graph.target]) * graph.tokens + np.abs(v[graph.source])
+            + np.abs(v[graph.target]))
+
+
+def _same_cycle_time(graph: EventGraph, result: HowardResult) -> np.ndarray:
+    eta_u, eta_t = result.cycle_time[graph.source], result.cycle_time[graph.target]
+    return np.abs(eta_u - eta_t) <= RTOL * (np.abs(eta_u) + np.abs(eta_t))
 
 
 def critical_places(graph: EventGraph, result: HowardResult) -> np.ndarray:
@@ -73,8 +80,9 @@ def critical_places(graph: EventGraph, result: HowardResult) -> np.ndarray:
     A place is critical when its reduced weight is zero and it lies on a circuit of such places:
     raising its hold by any amount raises the cycle time.
     """
-    tol = _tolerance(graph, result)
-    tight = _same_cycle_time(graph, result, tol) & (reduced_weights(graph, result) >= -tol)
+    tight = _same_cycle_time(graph, result) & (
+        reduced_weights(graph, result) >= -RTOL * _term_scale(graph, result)
+    )
     n = graph.n_transitions
     src, dst = graph.source[tight], graph.target[tight]
     adj = csr_matrix((np.ones(src.size, dtype=np.int8), (src, dst)), shape=(n, n))
@@ -182,9 +190,8 @@ def slack(graph: EventGraph, result: HowardResult) -> Slack:
     """
     _, labels = strongly_connected_components(graph)
     inside = labels[graph.source] == labels[graph.target]
-    tol = _tolerance(graph, result)
     length = np.maximum(-reduced_weights(graph, result), 0.0)
-    length[np.abs(length) <= tol] = 0.0
+    length[length <= RTOL * _term_scale(graph, result)] = 0.0
     place_slack = np.full(graph.n_places, np.inf)
     n = graph.n_transitions
     exact = n * graph.n_places <= SLACK_EXACT_LIMIT
@@ -223,21 +230,27 @@ def periodic_schedule(graph: EventGraph, result: HowardResult) -> tuple[np.ndarr
 class Certificate:
     """Evidence, checked on every result, that the cycle times are right.
 
+    Each check is a relative error: the violation divided by the size of the terms involved, so
+    that components of very different magnitudes are judged alike.
+
     Attributes
     ----------
     circuit_gap : float
-        Largest ``|ratio(c) - eta_t|`` over the reported circuits ``c`` and their transitions,
-        ratios recomputed from the graph by exact summation: the lower bound is attained.
+        Largest ``|ratio(c) - eta_t| / |ratio(c)|`` over the reported circuits ``c`` and their
+        transitions, ratios recomputed from the graph by exact summation: the cycle times are
+        attained.
     monotone_gap : float
-        Largest ``eta_u - eta_t`` over places ``u -> t``: cycle times never drop downstream.
+        Largest relative ``eta_u - eta_t`` over places ``u -> t``: cycle times never drop
+        downstream.
     max_reduced_weight : float
-        Largest reduced weight over places between transitions of equal cycle time: no circuit
-        has a larger ratio (sum ``r`` around any circuit ``<= 0``).
+        Largest relative reduced weight over places between transitions of equal cycle time:
+        no circuit has a larger ratio (the sum of ``r`` around any circuit is ``<= 0``).
     eigen_residual : float
-        Largest ``|v_t - max_p (w_p - eta_t m_p + v_u)|`` over transitions: ``v`` is an
-        eigenvector, the periodic regime ``x_t(k) = k eta_t + v_t`` solves the recursion.
+        Largest relative ``|v_t - max_p (w_p - eta_t m_p + v_u)|`` over transitions: ``v`` is a
+        generalised eigenvector, the periodic regime ``x_t(k) = k eta_t + v_t`` solves the
+        recursion.
     tolerance : float
-        The threshold all four are held to.
+        The bound all four are held to.
     """
 
     circuit_gap: float
@@ -253,22 +266,39 @@ class Certificate:
                    self.eigen_residual) <= self.tolerance
 
 
-def certify(graph: EventGraph, result: HowardResult) -> Certificate:
-    """Check a Howard result independently of how it was found."""
-    tol = _tolerance(graph, result)
-    eta = result.cycle_time
+def _relative(violation: np.ndarray, scale: np.ndarray) -> float:
+    """Largest ``violation / scale`` (0 where both vanish), at least 0."""
+    with np.errstate(divide="ignore", invalid="ignore"):
+        ratio = np.where(violation > 0, violation / scale, 0.0)
+    return float(np.max(ratio, initial=0.0))
+
+
+def certify(graph: EventGraph, result: HowardResult, tolerance: float = RTOL) -> Certificate:
+    """Check a Howard result independently of how it was found.
+
+    Examples
+    --------
+    >>> from cyclecheck.algebra.spectral import howard
+    >>> g = EventGraph([2.0, 3.0], [0, 1], [1, 0], [0, 1], [0.0, 0.0])
+    >>> certify(g, howard(g)).holds
+    True
+    """
+    eta, v = result.cycle_time, result.bias
     gap = 0.0
     for c in result.circuits:
         ratio = math.fsum(float(graph.weight[p]) for p in c.places) / sum(
             int(graph.tokens[p]) for p in c.places
         )
-        gap = max(gap, float(np.abs(eta[list(c.transitions)] - ratio).max()))
-    monotone = float(np.max(eta[graph.source] - eta[graph.target], initial=0.0))
-    same = _same_cycle_time(graph, result, tol)
-    red = reduced_weights(graph, result)
-    max_red = float(np.max(red[same], initial=-np.inf))
+        gap = max(gap, _relative(np.abs(eta[list(c.transitions)] - ratio), np.array(abs(ratio))))
+    eta_u, eta_t = eta[graph.source], eta[graph.target]
+    monotone = _relative(eta_u - eta_t, np.abs(eta_u) + np.abs(eta_t))
+    same = _same_cycle_time(graph, result)
+    scale = _term_scale(graph, result)
+    max_red = _relative(np.where(same, reduced_weights(graph, result), 0.0), scale)
     order, starts = graph.by_target
-    value = np.where(same, graph.weight - eta[graph.target] * graph.tokens + result.bias[graph.source], -np.inf)
+    value = np.where(same, graph.weight - eta_t * graph.tokens + v[graph.source], -np.inf)
     best = np.maximum.reduceat(value[order], starts[:-1])
-    residual = float(np.max(np.abs(best - result.bias), initial=0.0))
-    return Certificate(gap, max(monotone, 0.0), max(max_red, 0.0), residual, tol)
+    # The residual of transition t is judged against the largest term scale of its inputs.
+    t_scale = np.maximum.reduceat(scale[order], starts[:-1])
+    residual = _relative(np.abs(best - v), t_scale)
+    return Certificate(gap, monotone, max_red, residual, tolerance)

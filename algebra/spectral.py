@@ -180,12 +180,15 @@ class _SortedPlaces:
     tokens: np.ndarray
     starts: np.ndarray
     order: np.ndarray  # sorted position -> original place index
+    max_weight: np.ndarray  # per transition, the largest weight of its input places
 
     @classmethod
     def of(cls, graph: EventGraph) -> _SortedPlaces:
         order, starts = graph.by_target
-        return cls(graph.source[order], graph.target[order], graph.weight[order],
-                   graph.tokens[order].astype(np.float64), starts, order)
+        weight = graph.weight[order]
+        return cls(graph.source[order], graph.target[order], weight,
+                   graph.tokens[order].astype(np.float64), starts, order,
+                   np.maximum.reduceat(weight, starts[:-1]))
 
     def segment_argmax(self, values: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
         """Per transition, the max of ``values`` (one per sorted place) and the first place
@@ -224,9 +227,16 @@ def _evaluate(places: _SortedPlaces, policy: np.ndarray) -> _Evaluation:
     return _Evaluation(eta, bias, roots)
 
 
-def _tolerance(graph: EventGraph) -> float:
-    scale = max(1.0, float(graph.weight.max(initial=0.0)))
-    return 1e-12 * scale * max(1.0, math.sqrt(graph.n_transitions))
+#: Relative precision of the comparisons in policy improvement. Differences are judged against
+#: the magnitude of the numbers compared, never against a scale of the whole graph, so that a
+#: component with weights 1e6 does not hide ratio differences of 1e-6 in another one.
+RTOL = 1e-10
+
+
+def _exceeds(new: np.ndarray, old: np.ndarray, scale: np.ndarray | float = 0.0) -> np.ndarray:
+    """``new > old`` by more than rounding: ``RTOL`` times the size of the terms compared."""
+    with np.errstate(invalid="ignore"):
+        return new - old > RTOL * (np.abs(new) + np.abs(old) + scale)
 
 
 def howard(graph: EventGraph, *, max_iterations: int | None = None) -> HowardResult:
@@ -267,7 +277,6 @@ def howard(graph: EventGraph, *, max_iterations: int | None = None) -> HowardRes
     """
     check_live(graph)
     places = _SortedPlaces.of(graph)
-    tol = _tolerance(graph)
     n, m = graph.n_transitions, graph.n_places
     limit = max_iterations if max_iterations is not None else 10 * (n + m) + 100
 
@@ -278,15 +287,16 @@ def howard(graph: EventGraph, *, max_iterations: int | None = None) -> HowardRes
         ev = _evaluate(places, policy)
         eta_src = ev.eta[places.source]
         best_eta, arg_eta = places.segment_argmax(eta_src)
-        improve = best_eta > ev.eta + tol
+        improve = _exceeds(best_eta, ev.eta)
         if improve.any():
             policy = np.where(improve, arg_eta, policy)
         else:
             eta_tgt = ev.eta[places.target]
             value = places.weight - eta_tgt * places.tokens + ev.bias[places.source]
-            value[eta_src < eta_tgt - tol] = -np.inf
+            value[_exceeds(eta_tgt, eta_src)] = -np.inf
             best_val, arg_val = places.segment_argmax(value)
-            improve = best_val > ev.bias + tol * np.maximum(1.0, np.abs(ev.bias))
+            # The bias is a sum along a chain: its rounding scales with the weights summed.
+            improve = _exceeds(best_val, ev.bias, places.max_weight)
             if not improve.any():
                 break
             policy = np.where(improve, arg_val, policy)
