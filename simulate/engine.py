@@ -50,6 +50,7 @@ Two machines in a loop with one part circulating take 2 + 3 time units per cycle
 from __future__ import annotations
 
 import math
+from bisect import bisect_left
 from collections.abc import Callable
 from dataclasses import dataclass, field
 from typing import TYPE_CHECKING, Any, Protocol
@@ -231,26 +232,23 @@ class Transition:
         rows = 0 if math.isinf(model.last_firing) else int(model.last_firing)
         self.start: list[float] = [math.nan] * rows
         self.time: list[float] = [math.nan] * rows
-        # _needed[k] = number of input places whose token for firing k is not an initial one,
-        # for k <= max m_p; beyond that every input place must deliver a token.
-        top = max(input_tokens)
-        self._needed = [sum(1 for m in input_tokens if m < k) for k in range(top + 1)]
-        self._in_degree = len(input_tokens)
-        self._top = top
+        # Firing k needs a token from each input place with m_p < k: bisect in the sorted
+        # markings counts them (all input places once k > max m_p).
+        self._markings = sorted(input_tokens)
         # firing number -> tokens still missing, for the firings that have received some
         self._missing: dict[int, int] = {}
 
     @property
     def ready_at_start(self) -> int:
         """Number of firings whose tokens are all initial ones (``min m_p``): they start at 0."""
-        return self._needed.count(0) - 1
+        return self._markings[0]
 
     def token_arrived(self, event: simpy.Event) -> None:
         """Callback of a token's arrival; the event's value is the consuming firing number."""
         k = event.value
         missing = self._missing.pop(k, None)
         if missing is None:
-            missing = self._needed[k] if k <= self._top else self._in_degree
+            missing = bisect_left(self._markings, k)
         missing -= 1
         if missing:
             self._missing[k] = missing
@@ -313,7 +311,7 @@ class EventGraphModel:
     Raises
     ------
     ValueError
-        If the clock of ``env`` is not at 0.
+        If the clock of ``env`` is not at 0 or ``n_firings`` is not an integer >= 1.
     NotLive, Unfed
         If the graph is not live (:func:`~cyclecheck.algebra.eventgraph.check_live`).
     """
@@ -330,6 +328,12 @@ class EventGraphModel:
     ) -> None:
         if env.now != 0:
             raise ValueError(f"the environment's clock must be at 0, it is at {env.now}")
+        if n_firings is not None:
+            if isinstance(n_firings, bool) or not isinstance(n_firings, int | np.integer):
+                raise ValueError(f"n_firings must be an integer >= 1, got {n_firings!r}")
+            if n_firings < 1:
+                raise ValueError(f"n_firings must be an integer >= 1, got {n_firings!r}")
+            n_firings = int(n_firings)
         check_live(graph)
         self.env = env
         self.graph = graph
@@ -410,7 +414,14 @@ class SimulationRun:
         transition ``t``; NaN where the firing had not started / completed when the run stopped.
         ``K`` is ``n_firings`` when given, else the largest firing number started.
     horizon : float
-        Simulated time at the end of the run (``until``, or the last completion).
+        Simulated time at the end of the run: ``until`` when it was given (even if every firing
+        had ended before), else the last completion.
+    completed : ndarray of int, shape (n,)
+        Number of completed firings of each transition. With ``until`` they need not be firings
+        ``1 .. completed``: a firing may end before an earlier one of the same transition.
+    busy_time : ndarray of float, shape (n,)
+        Time spent firing, per transition, up to the horizon (firings in progress count up to
+        it); overlapping firings add up.
     """
 
     graph: EventGraph
@@ -428,8 +439,8 @@ class SimulationRun:
         set_(self, "busy_time", np.nansum(end - self.start, axis=0))
 
     @property
-    def n_firings(self) -> int:
-        """Total number of completed firings, all transitions together."""
+    def total_firings(self) -> int:
+        """Number of completed firings, all transitions together."""
         return int(self.completed.sum())
 
     def utilization(self) -> np.ndarray:
@@ -456,7 +467,7 @@ class SimulationRun:
         names = np.array([self.graph.name(t) for t in range(self.graph.n_transitions)], object)
         return pd.DataFrame(
             {
-                "transition": names[t_idx] if t_idx.size else np.array([], dtype=object),
+                "transition": names[t_idx],
                 "firing": k_idx + 1,
                 "start": self.start[k_idx, t_idx],
                 "time": self.time[k_idx, t_idx],
@@ -494,18 +505,17 @@ def simulate_event_graph(
     Raises
     ------
     ValueError
-        If neither stop is given, ``n_firings < 1`` or ``until <= 0``.
+        If neither stop is given, ``n_firings`` is not an integer >= 1 or ``until`` not a
+        finite number > 0.
     NotLive, Unfed
         If the graph is not live.
     """
     if n_firings is None and until is None:
         raise ValueError("give n_firings, until or both: the run must stop")
-    if n_firings is not None:
-        if isinstance(n_firings, bool) or int(n_firings) != n_firings or n_firings < 1:
-            raise ValueError(f"n_firings must be an integer >= 1, got {n_firings!r}")
-        n_firings = int(n_firings)
-    if until is not None and not until > 0:
-        raise ValueError(f"until must be > 0, got {until!r}")
+    if until is not None and not (
+        isinstance(until, int | float | np.number) and 0 < until < math.inf
+    ):
+        raise ValueError(f"until must be a finite number > 0, got {until!r}")
     env = simpy.Environment()
     model = EventGraphModel(env, graph, sampler, n_firings)
     env.run(until=until)

@@ -449,7 +449,7 @@ def test_until_alone_sizes_the_arrays_by_the_firings_started():
     keep = time[:rows] < 30.0
     np.testing.assert_array_equal(~np.isnan(run.time), keep)
     np.testing.assert_allclose(run.time[keep], time[:rows][keep], rtol=RTOL)
-    assert run.n_firings == int(keep.sum())
+    assert run.total_firings == int(keep.sum())
 
 
 def test_event_log_columns_and_order():
@@ -458,7 +458,7 @@ def test_event_log_columns_and_order():
     run = simulate_event_graph(g, StandInSampler(g, seed=8), n_firings=30, until=40.0)
     log = run.event_log()
     assert list(log.columns) == ["transition", "firing", "start", "time"]
-    assert len(log) == run.n_firings
+    assert len(log) == run.total_firings
     assert log["time"].is_monotonic_increasing
     assert set(log["transition"]) == {"cut", "pack"}
     for row in log.itertuples():
@@ -533,14 +533,33 @@ def test_user_processes_run_beside_the_model():
         ({}, "give n_firings, until or both: the run must stop"),
         ({"n_firings": 0}, "n_firings must be an integer >= 1, got 0"),
         ({"n_firings": 2.5}, "n_firings must be an integer >= 1, got 2.5"),
-        ({"until": -1.0}, "until must be > 0, got -1.0"),
-        ({"until": float("nan")}, "until must be > 0, got nan"),
+        ({"n_firings": True}, "n_firings must be an integer >= 1, got True"),
+        ({"n_firings": "5"}, "n_firings must be an integer >= 1, got '5'"),
+        ({"until": -1.0}, "until must be a finite number > 0, got -1.0"),
+        ({"until": float("nan")}, "until must be a finite number > 0, got nan"),
+        ({"until": "10"}, "until must be a finite number > 0, got '10'"),
+        ({"until": math.inf}, "until must be a finite number > 0, got inf"),
     ],
 )
 def test_bad_stop_arguments(kwargs, message):
     with pytest.raises(ValueError) as info:
         simulate_event_graph(SINGLE_SERVER, **kwargs)
     assert str(info.value) == message
+
+
+def test_model_needs_a_fresh_clock():
+    env = simpy.Environment(initial_time=5.0)
+    with pytest.raises(ValueError) as info:
+        EventGraphModel(env, SINGLE_SERVER, n_firings=3)
+    assert str(info.value) == "the environment's clock must be at 0, it is at 5.0"
+
+
+def test_horizon_is_until_even_when_the_firings_end_before():
+    """Both stops: the firings end at 6, the run lasts to ``until`` = 10 (utilization 0.6)."""
+    run = simulate_event_graph(SINGLE_SERVER, n_firings=4, until=10.0)
+    assert run.horizon == 10.0
+    assert run.completed.tolist() == [4]
+    np.testing.assert_allclose(run.utilization(), [0.6], rtol=1e-12)
 
 
 def test_not_live_graphs_are_refused():
