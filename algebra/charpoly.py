@@ -82,10 +82,11 @@ MAX_DENSE_SIZE: int = 400
 MAX_ENUMERATION_SIZE: int = 8
 """Largest ``n`` accepted by :func:`poly_cycle_coefficients` (about ``e · n!`` permutations)."""
 
-# Relative tolerance of the parametric search: a new line must rise above the intersection of
-# its neighbours by more than this (times the scale of the entries) to count as a vertex, and
-# corners closer than this are merged. Exact for integer data well inside float range.
-_RTOL = 1e-9
+# Relative tolerance of the parametric search, times n and the largest magnitude of the entries:
+# a new line must rise above the crossing of its neighbours by more than that to count as a
+# vertex, and corners closer than that are merged. Well above the rounding of sums of n entries
+# (about n·2^-52 of the scale); integer data well inside float range is exact.
+_RTOL = 1e-12
 
 
 def _as_matrix(A: ArrayLike, name: str = "A") -> np.ndarray:
@@ -125,7 +126,8 @@ def _best_permutation(W: np.ndarray) -> np.ndarray | None:
     lo, hi, scale = _scale(W)
     # A permutation through a `big` entry is worth at most big + (n-1)·hi < n·lo, less than any
     # finite permutation: the solver prefers finite ones, and meets `big` only when forced.
-    big = lo - (n + 1) * ((hi - lo) + scale)
+    # No larger than needed, so that the solver's sums keep the digits of the real entries.
+    big = lo - n * (hi - lo) - scale
     # Imported here: scipy.optimize costs ~0.4 s at start-up and the CLI may never need it.
     from scipy.optimize import linear_sum_assignment
 
@@ -349,9 +351,9 @@ def essential_terms(A: ArrayLike) -> CharPoly:
     ``2(n - k0) + 1 <= 2n + 1`` assignment problems of ``O(n^3)`` are solved: ``O(n^4)``.
     Burkard & Butkovič [2]_ give a polynomial method of the same kind.
 
-    A term that rises above its neighbours by less than about :math:`10^{-9}` times the scale
-    of the entries is treated as inessential, and corners closer than that are merged; integer
-    matrices are exact.
+    A term that rises above its neighbours by less than about :math:`10^{-12} n` times the
+    largest magnitude of the entries is treated as inessential, and corners closer than that
+    are merged: the answer is then exact to that level. Integer matrices are exact.
 
     References
     ----------
@@ -396,7 +398,7 @@ def essential_terms(A: ArrayLike) -> CharPoly:
     lines = {k0: c0, n: 0.0}
     found: list[tuple[float, int, int]] = []
     stack = [(k0, n)] if k0 < n else []
-    gain_tol = _RTOL * scale * n
+    tol = _RTOL * n * scale
     while stack:
         k1, k2 = stack.pop()
         c1, c2 = lines[k1], lines[k2]
@@ -405,7 +407,7 @@ def essential_terms(A: ArrayLike) -> CharPoly:
         assignments += 1
         # (k2 - k1) · (line3(z) - line1(z)), without rounding z.
         gain = (k3 - k1) * (c1 - c2) + (c3 - c1) * (k2 - k1)
-        if k1 < k3 < k2 and gain > gain_tol * (k2 - k1):
+        if k1 < k3 < k2 and gain > tol * (k2 - k1):
             lines[k3] = c3
             stack += [(k1, k3), (k3, k2)]
         else:
@@ -413,7 +415,7 @@ def essential_terms(A: ArrayLike) -> CharPoly:
     found.sort(key=lambda t: t[1])  # chain order: the slopes rise from k0 to n
     merged: list[list[Any]] = []
     for z, k1, k2 in found:
-        if merged and z - merged[-1][0] <= _RTOL * scale:
+        if merged and z - merged[-1][0] <= tol:
             merged[-1][2] = k2  # same corner: the line between is not essential
         else:
             merged.append([z, k1, k2])

@@ -394,6 +394,24 @@ def test_tropical_factorisation(A, zs):
 
 
 @PROPERTY
+@given(maxplus_matrices(min_n=1, max_n=12), st.randoms(use_true_random=False))
+def test_triangular_roots_are_the_diagonal(A, rnd):
+    """For a triangular matrix only the identity permutation of A ⊕ zI is finite, so
+    χ(z) = Σ_i max(z, a_ii) = ⊗_i (z ⊕ a_ii): the roots are the diagonal entries, counted with
+    repetition, ε included (Cuninghame-Green 1983, definition of χ). Labels are shuffled by a
+    similarity so that the triangle is hidden."""
+    n = A.shape[0]
+    T = np.tril(A)
+    T[np.triu_indices(n, 1)] = EPS
+    order = list(range(n))
+    rnd.shuffle(order)
+    cp = essential_terms(T[np.ix_(order, order)])
+    values, counts = np.unique(np.diag(T), return_counts=True)
+    assert cp.corners == tuple(float(v) for v in values[::-1])
+    assert cp.multiplicities == tuple(int(c) for c in counts[::-1])
+
+
+@PROPERTY
 @given(maxplus_matrices(max_n=6), st.randoms(use_true_random=False))
 def test_similarity_invariance(A, rnd):
     """χ(P A Pᵀ) = χ(A) for a permutation P: relabelling nodes changes no poly-cycle
