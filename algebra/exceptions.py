@@ -73,7 +73,8 @@ class PositiveCircuit(MaxPlusError):
     Attributes
     ----------
     nodes : list of int
-        Indices of the nodes that lie on a circuit of positive weight.
+        Indices of the nodes through which a closed walk of positive weight passes (each
+        shares a strongly connected component with a circuit of positive weight).
     """
 
     def __init__(self, nodes: list[int], message: str | None = None) -> None:
