@@ -1,0 +1,910 @@
+r"""Random durations and holding times: distribution specs and the indexed sampler.
+
+Specs
+-----
+A duration or a hold is a number (a fixed value) or a distribution table, as written in a model
+file. :func:`parse_spec` turns either into a :class:`Distribution`:
+
+==============  ===============================  ==============================================
+``dist``        parameters                       meaning
+==============  ===============================  ==============================================
+``fixed``       ``value``                        always ``value`` (alias ``deterministic``)
+``exponential`` ``mean``                         exponential law
+``gamma``       ``mean``, ``cv``                 gamma law, shape ``1/cv²``
+``erlang``      ``mean``, ``k``                  sum of ``k`` exponentials, ``cv = 1/√k``
+``lognormal``   ``mean``, ``cv``                 log-normal law with that mean and cv
+``weibull``     ``shape`` and ``mean`` or        Weibull law, ``mean = scale·Γ(1 + 1/shape)``
+                ``scale``
+``normal``      ``mean``, ``sd``,                the normal law *conditioned on* ``>= 0``;
+                ``truncate = true``              ``mean`` and ``sd`` are those of the normal
+                                                 before truncation
+``uniform``     ``low``, ``high``                uniform on ``[low, high]``
+``triangular``  ``low``, ``mode``, ``high``      triangular law
+``empirical``   ``values = [...]``               one of the values, each with equal chance
+==============  ===============================  ==============================================
+
+A normal law can go negative, so it must say ``truncate = true``: draws below 0 are redrawn
+(inverse-CDF sampling of the normal conditioned on ``>= 0``, no mass at 0), and ``.mean`` is the
+mean of the truncated law, which is larger than the ``mean`` parameter. Clipping at 0 was not
+chosen: it puts an atom at 0 that a duration rarely has.
+
+In a CSV cell, or as a TOML string, a distribution is written ``name(key=value, ...)`` with
+TOML values, for example ``gamma(mean=3, cv=0.5)`` or ``empirical(values=[2, 3, 5])``; a plain
+number is a fixed value. :meth:`Distribution.to_text` writes that form exactly.
+
+Sampler
+-------
+Draws are indexed by (replication ``r``, kind, element ``e``, firing ``k >= 1``); kind 0 is a
+transition duration, kind 1 a place hold. Firings come in blocks of :data:`BLOCK`: block
+``b = (k - 1) // BLOCK`` of element ``e`` is one call of :meth:`Distribution.sample` of size
+:data:`BLOCK` on ``Generator(PCG64(SeedSequence(seed, spawn_key=(r, kind, e, b))))``. The k-th
+draw of an element is therefore the same number whatever the order of the requests, the
+process or the machine. Changing :data:`BLOCK` or a distribution's sampling code changes the
+numbers.
+"""
+
+from __future__ import annotations
+
+import math
+import os
+import re
+import tomllib
+from collections import OrderedDict
+from collections.abc import Iterable, Sequence
+from dataclasses import dataclass
+from functools import cached_property
+from typing import Any, ClassVar
+
+import numpy as np
+
+from .errors import ModelError, did_you_mean, shown
+
+__all__ = [
+    "BLOCK",
+    "CACHE_BYTES",
+    "DISTRIBUTIONS",
+    "Distribution",
+    "Empirical",
+    "Erlang",
+    "Exponential",
+    "Fixed",
+    "Gamma",
+    "Lognormal",
+    "Normal",
+    "Sampler",
+    "SpecTable",
+    "Triangular",
+    "Uniform",
+    "Weibull",
+    "parse_spec",
+]
+
+BLOCK = 1024
+"""Firings per block of draws. Generator set-up (~10 µs) is then small beside the draws, and a
+cached block costs 8 KiB per element, so the SimPy engine can keep one block of every element."""
+
+CACHE_BYTES = 128 * 2**20
+"""Default memory budget of a :class:`Sampler`'s block cache."""
+
+PathLike = str | os.PathLike[str]
+
+
+def _short(x: float) -> str:
+    return f"{x:.6g}"
+
+
+def _toml_value(x: object) -> str:
+    if isinstance(x, bool):
+        return "true" if x else "false"
+    if isinstance(x, int):
+        return str(x)
+    if isinstance(x, float):
+        return repr(x)
+    if isinstance(x, (list, tuple)):
+        return "[" + ", ".join(_toml_value(v) for v in x) + "]"
+    raise TypeError(f"cannot write {x!r}")
+
+
+class Distribution:
+    """A law of a duration or a hold (base class).
+
+    Every subclass has ``mean`` (exact), :attr:`variance`, :attr:`cv`, :attr:`is_random`,
+    :meth:`sample`, :meth:`describe`, :meth:`to_dict` and :meth:`to_text`. Instances are frozen
+    and compare equal when their parameters are equal.
+    """
+
+    name: ClassVar[str]
+    required: ClassVar[tuple[str, ...]]
+    optional: ClassVar[tuple[str, ...]] = ()
+    mean: float
+
+    @property
+    def variance(self) -> float:
+        """Variance of the law."""
+        raise NotImplementedError
+
+    @property
+    def sd(self) -> float:
+        """Standard deviation of the law."""
+        return math.sqrt(max(self.variance, 0.0))
+
+    @property
+    def cv(self) -> float:
+        """Coefficient of variation sd / mean (0 for a law concentrated at 0)."""
+        return self.sd / self.mean if self.mean > 0 else 0.0
+
+    @property
+    def is_random(self) -> bool:
+        """False when the law is a single value (no draws needed)."""
+        return self.variance > 0
+
+    def sample(self, rng: np.random.Generator, size: int) -> np.ndarray:
+        """Draw ``size`` values with ``rng`` (a fixed law does not touch ``rng``)."""
+        if not self.is_random:
+            return np.full(size, float(self.mean))
+        return self._draw(rng, size)
+
+    def _draw(self, rng: np.random.Generator, size: int) -> np.ndarray:
+        raise NotImplementedError
+
+    def params(self) -> dict[str, Any]:
+        """The parameters as written in a model file."""
+        raise NotImplementedError
+
+    def to_dict(self) -> dict[str, Any]:
+        """The TOML table of this law; ``parse_spec(d.to_dict()) == d``."""
+        return {"dist": self.name, **self.params()}
+
+    def to_text(self) -> str:
+        """The exact cell syntax, e.g. ``gamma(mean=3.0, cv=0.5)``; parsed back by parse_spec."""
+        inner = ", ".join(f"{k}={_toml_value(v)}" for k, v in self.params().items())
+        return f"{self.name}({inner})"
+
+    def describe(self) -> str:
+        """Short text for people, e.g. ``gamma(mean=3, cv=0.5)``."""
+        inner = ", ".join(f"{k}={shown(v) if isinstance(v, bool) else _short(v)}"
+                          for k, v in self.params().items())
+        return f"{self.name}({inner})"
+
+    def __str__(self) -> str:
+        return self.describe()
+
+
+@dataclass(frozen=True)
+class Fixed(Distribution):
+    """Always ``value``."""
+
+    value: float
+    name: ClassVar[str] = "fixed"
+    required: ClassVar[tuple[str, ...]] = ("value",)
+
+    @property
+    def mean(self) -> float:  # type: ignore[override]
+        return self.value
+
+    @property
+    def variance(self) -> float:
+        return 0.0
+
+    def params(self) -> dict[str, Any]:
+        return {"value": self.value}
+
+    def to_text(self) -> str:
+        return repr(float(self.value))
+
+    def describe(self) -> str:
+        return _short(self.value)
+
+
+@dataclass(frozen=True)
+class Exponential(Distribution):
+    """Exponential law with the given mean."""
+
+    mean: float
+    name: ClassVar[str] = "exponential"
+    required: ClassVar[tuple[str, ...]] = ("mean",)
+
+    @property
+    def variance(self) -> float:
+        return self.mean**2
+
+    def _draw(self, rng: np.random.Generator, size: int) -> np.ndarray:
+        return rng.exponential(self.mean, size)
+
+    def params(self) -> dict[str, Any]:
+        return {"mean": self.mean}
+
+
+@dataclass(frozen=True)
+class Gamma(Distribution):
+    """Gamma law with shape ``1/cv²`` and scale ``mean·cv²``."""
+
+    mean: float
+    cv_: float
+    name: ClassVar[str] = "gamma"
+    required: ClassVar[tuple[str, ...]] = ("mean", "cv")
+
+    @property
+    def cv(self) -> float:
+        return self.cv_
+
+    @property
+    def variance(self) -> float:
+        return (self.mean * self.cv_) ** 2
+
+    def _draw(self, rng: np.random.Generator, size: int) -> np.ndarray:
+        return rng.gamma(1.0 / self.cv_**2, self.mean * self.cv_**2, size)
+
+    def params(self) -> dict[str, Any]:
+        return {"mean": self.mean, "cv": self.cv_}
+
+
+@dataclass(frozen=True)
+class Erlang(Distribution):
+    """Sum of ``k`` independent exponentials, total mean ``mean``."""
+
+    mean: float
+    k: int
+    name: ClassVar[str] = "erlang"
+    required: ClassVar[tuple[str, ...]] = ("mean", "k")
+
+    @property
+    def variance(self) -> float:
+        return self.mean**2 / self.k
+
+    def _draw(self, rng: np.random.Generator, size: int) -> np.ndarray:
+        return rng.gamma(float(self.k), self.mean / self.k, size)
+
+    def params(self) -> dict[str, Any]:
+        return {"mean": self.mean, "k": self.k}
+
+
+@dataclass(frozen=True)
+class Lognormal(Distribution):
+    """Log-normal law with the given mean and cv: ``σ² = ln(1 + cv²)``, ``μ = ln mean − σ²/2``."""
+
+    mean: float
+    cv_: float
+    name: ClassVar[str] = "lognormal"
+    required: ClassVar[tuple[str, ...]] = ("mean", "cv")
+
+    @property
+    def cv(self) -> float:
+        return self.cv_
+
+    @property
+    def variance(self) -> float:
+        return (self.mean * self.cv_) ** 2
+
+    def _draw(self, rng: np.random.Generator, size: int) -> np.ndarray:
+        s2 = math.log1p(self.cv_**2)
+        return rng.lognormal(math.log(self.mean) - s2 / 2, math.sqrt(s2), size)
+
+    def params(self) -> dict[str, Any]:
+        return {"mean": self.mean, "cv": self.cv_}
+
+
+@dataclass(frozen=True)
+class Weibull(Distribution):
+    """Weibull law; given by ``shape`` and either ``mean`` or ``scale`` (kept as given)."""
+
+    shape: float
+    scale: float
+    mean: float
+    by_mean: bool = True
+    name: ClassVar[str] = "weibull"
+    required: ClassVar[tuple[str, ...]] = ("shape",)
+    optional: ClassVar[tuple[str, ...]] = ("mean", "scale")
+
+    @property
+    def variance(self) -> float:
+        g1 = math.exp(math.lgamma(1 + 1 / self.shape))
+        g2 = math.exp(math.lgamma(1 + 2 / self.shape))
+        return self.scale**2 * max(g2 - g1 * g1, 0.0)
+
+    def _draw(self, rng: np.random.Generator, size: int) -> np.ndarray:
+        return self.scale * rng.weibull(self.shape, size)
+
+    def params(self) -> dict[str, Any]:
+        if self.by_mean:
+            return {"mean": self.mean, "shape": self.shape}
+        return {"scale": self.scale, "shape": self.shape}
+
+
+@dataclass(frozen=True)
+class Normal(Distribution):
+    r"""Normal law ``N(loc, sd²)`` conditioned on ``>= 0``.
+
+    With :math:`\alpha = -\mathrm{loc}/\mathrm{sd}` and :math:`\lambda = \varphi(\alpha) /
+    (1 - \Phi(\alpha))`, the mean is :math:`\mathrm{loc} + \mathrm{sd}\,\lambda` and the variance
+    :math:`\mathrm{sd}^2 (1 + \alpha\lambda - \lambda^2)` (Johnson, Kotz, Balakrishnan,
+    *Continuous Univariate Distributions* vol. 1, 2nd ed., 1994, §13.10.1).
+    """
+
+    loc: float
+    sd_: float
+    name: ClassVar[str] = "normal"
+    required: ClassVar[tuple[str, ...]] = ("mean", "sd", "truncate")
+
+    @cached_property
+    def _alpha_lambda(self) -> tuple[float, float]:
+        alpha = -self.loc / self.sd_
+        tail = 0.5 * math.erfc(alpha / math.sqrt(2.0))  # 1 − Φ(α) >= 1/2 since loc >= 0
+        lam = math.exp(-alpha * alpha / 2) / math.sqrt(2 * math.pi) / tail
+        return alpha, lam
+
+    @property
+    def mean(self) -> float:  # type: ignore[override]
+        return self.loc + self.sd_ * self._alpha_lambda[1]
+
+    @property
+    def variance(self) -> float:
+        alpha, lam = self._alpha_lambda
+        return self.sd_**2 * (1 + alpha * lam - lam * lam)
+
+    def _draw(self, rng: np.random.Generator, size: int) -> np.ndarray:
+        from scipy.special import ndtr, ndtri
+
+        tail = float(ndtr(self.loc / self.sd_))  # P(N(loc, sd²) >= 0)
+        v = tail * (1.0 - rng.random(size))  # uniform on (0, tail]
+        return np.maximum(self.loc - self.sd_ * ndtri(v), 0.0)
+
+    def params(self) -> dict[str, Any]:
+        return {"mean": self.loc, "sd": self.sd_, "truncate": True}
+
+    def describe(self) -> str:
+        return f"normal(mean={_short(self.loc)}, sd={_short(self.sd_)}, truncated at 0)"
+
+
+@dataclass(frozen=True)
+class Uniform(Distribution):
+    """Uniform law on ``[low, high]``."""
+
+    low: float
+    high: float
+    name: ClassVar[str] = "uniform"
+    required: ClassVar[tuple[str, ...]] = ("low", "high")
+
+    @property
+    def mean(self) -> float:  # type: ignore[override]
+        return (self.low + self.high) / 2
+
+    @property
+    def variance(self) -> float:
+        return (self.high - self.low) ** 2 / 12
+
+    def _draw(self, rng: np.random.Generator, size: int) -> np.ndarray:
+        return rng.uniform(self.low, self.high, size)
+
+    def params(self) -> dict[str, Any]:
+        return {"low": self.low, "high": self.high}
+
+
+@dataclass(frozen=True)
+class Triangular(Distribution):
+    """Triangular law on ``[low, high]`` with its peak at ``mode``."""
+
+    low: float
+    mode: float
+    high: float
+    name: ClassVar[str] = "triangular"
+    required: ClassVar[tuple[str, ...]] = ("low", "mode", "high")
+
+    @property
+    def mean(self) -> float:  # type: ignore[override]
+        return (self.low + self.mode + self.high) / 3
+
+    @property
+    def variance(self) -> float:
+        a, c, b = self.low, self.mode, self.high
+        return (a * a + b * b + c * c - a * b - a * c - b * c) / 18
+
+    def _draw(self, rng: np.random.Generator, size: int) -> np.ndarray:
+        return rng.triangular(self.low, self.mode, self.high, size)
+
+    def params(self) -> dict[str, Any]:
+        return {"low": self.low, "mode": self.mode, "high": self.high}
+
+
+@dataclass(frozen=True)
+class Empirical(Distribution):
+    """One of ``values``, each with probability ``1/len(values)`` (resampling)."""
+
+    values: tuple[float, ...]
+    name: ClassVar[str] = "empirical"
+    required: ClassVar[tuple[str, ...]] = ("values",)
+
+    @cached_property
+    def _array(self) -> np.ndarray:
+        return np.array(self.values, dtype=np.float64)
+
+    @property
+    def mean(self) -> float:  # type: ignore[override]
+        return float(np.mean(self._array))
+
+    @property
+    def variance(self) -> float:
+        return float(np.var(self._array)) if len(self.values) > 1 else 0.0
+
+    def _draw(self, rng: np.random.Generator, size: int) -> np.ndarray:
+        return self._array[rng.integers(0, len(self.values), size)]
+
+    def params(self) -> dict[str, Any]:
+        return {"values": list(self.values)}
+
+    def describe(self) -> str:
+        return f"empirical(n={len(self.values)}, mean={_short(self.mean)})"
+
+
+DISTRIBUTIONS: dict[str, type[Distribution]] = {
+    c.name: c
+    for c in (Fixed, Exponential, Gamma, Erlang, Lognormal, Weibull, Normal, Uniform,
+              Triangular, Empirical)
+}
+"""The distribution classes by their ``dist`` name."""
+
+_ALIASES = {"deterministic": "fixed"}
+_CELL = re.compile(r"\s*([A-Za-z_][A-Za-z0-9_]*)\s*\((.*)\)\s*")
+
+
+class _Reader:
+    """Checks the parameters of one distribution table and reports errors in one voice."""
+
+    def __init__(self, name: str, table: dict[str, Any], error: Any) -> None:
+        self.name, self.table, self.error = name, table, error
+
+    def number(self, key: str, *, positive: bool = False, hint: str = "") -> float:
+        x = self.table[key]
+        what = f"{self.name} {key} " if self.name else ""  # a plain number has no name
+        if isinstance(x, bool) or not isinstance(x, (int, float)):
+            raise self.error(f"{what}must be a number, got {shown(x)}")
+        x = float(x)
+        if not math.isfinite(x):
+            raise self.error(f"{what}must be finite, got {shown(x)}")
+        if positive and x <= 0:
+            raise self.error(f"{what}must be > 0, got {shown(x)}{hint}")
+        if x < 0:
+            raise self.error(f"{what}must be >= 0, got {shown(x)}")
+        return x + 0.0  # no negative zero
+
+    def spread(self, key: str) -> float:
+        return self.number(key, positive=True, hint=" (write a plain number for a fixed value)")
+
+
+def _plain(x: float, error: Any) -> Fixed:
+    return Fixed(_Reader("", {"value": x}, error).number("value"))
+
+
+def _build(name: str, r: _Reader) -> Distribution:
+    t = r.table
+    if name == "fixed":
+        return Fixed(r.number("value"))
+    if name == "exponential":
+        return Exponential(r.number("mean", positive=True))
+    if name in ("gamma", "lognormal"):
+        mean, cv = r.number("mean", positive=True), r.spread("cv")
+        return Gamma(mean, cv) if name == "gamma" else Lognormal(mean, cv)
+    if name == "erlang":
+        k = t["k"]
+        if isinstance(k, bool) or not isinstance(k, (int, float)) or k != int(k) or k < 1:
+            raise r.error(f"erlang k must be an integer >= 1, got {shown(k)}")
+        return Erlang(r.number("mean", positive=True), int(k))
+    if name == "weibull":
+        shape = r.number("shape", positive=True)
+        if ("mean" in t) == ("scale" in t):
+            raise r.error("weibull needs shape and exactly one of mean or scale")
+        if shape < 0.05:  # near 0.012 Γ(1 + 2/shape) overflows; 0.05 keeps a wide margin
+            raise r.error(f"weibull shape must be >= 0.05, got {shown(shape)}")
+        g1 = math.lgamma(1 + 1 / shape)
+        if "mean" in t:
+            mean = r.number("mean", positive=True)
+            return Weibull(shape, mean / math.exp(g1), mean, True)
+        scale = r.number("scale", positive=True)
+        return Weibull(shape, scale, scale * math.exp(g1), False)
+    if name == "normal":
+        return Normal(r.number("mean"), r.spread("sd"))
+    if name == "uniform":
+        low, high = r.number("low"), r.number("high")
+        if low > high:
+            raise r.error(f"uniform low must be <= high, got low={shown(low)}, "
+                          f"high={shown(high)}")
+        return Uniform(low, high)
+    if name == "triangular":
+        low, mode, high = r.number("low"), r.number("mode"), r.number("high")
+        if low > high:
+            raise r.error(f"triangular low must be <= high, got low={shown(low)}, "
+                          f"high={shown(high)}")
+        if not low <= mode <= high:
+            raise r.error(f"triangular mode must lie in [low, high] = [{shown(low)}, "
+                          f"{shown(high)}], got {shown(mode)}")
+        return Triangular(low, mode, high)
+    values = t["values"]
+    if not isinstance(values, list) or not values:
+        raise r.error(f"empirical values must be a non-empty list of numbers >= 0, "
+                      f"got {shown(values)}")
+    out = []
+    for i, v in enumerate(values):
+        if isinstance(v, bool) or not isinstance(v, (int, float)) or not math.isfinite(v) or v < 0:
+            raise r.error(f"empirical values must be numbers >= 0, got {shown(v)} "
+                          f"at position {i + 1}")
+        out.append(float(v) + 0.0)
+    return Empirical(tuple(out))
+
+
+def parse_spec(
+    value: object,
+    *,
+    item: str | None = None,
+    file: PathLike | None = None,
+    key: str | None = None,
+) -> Distribution:
+    """Read a duration or hold as written in a model file.
+
+    Parameters
+    ----------
+    value : number, dict or str
+        A number >= 0 (a fixed value), a distribution table ``{"dist": ..., ...}``, or its cell
+        text ``name(key=value, ...)``. A :class:`Distribution` is returned as it is.
+    item, file : optional
+        Where the value comes from, for the error message.
+    key : str, optional
+        The field name (``"duration"``, ``"hold"``), prefixed to the rule of an error.
+
+    Raises
+    ------
+    ModelError
+        If the value is not a valid spec; the rule says which rule is broken.
+    """
+    prefix = f"{key}: " if key else ""
+
+    def error(rule: str) -> ModelError:
+        return ModelError(prefix + rule, file=file, item=item)
+
+    if isinstance(value, Distribution):
+        return value
+    if isinstance(value, bool):
+        raise error(f"must be a number or a distribution, got {shown(value)}")
+    if isinstance(value, (int, float, np.integer, np.floating)):
+        return _plain(float(value), error)
+    if isinstance(value, str):
+        return _parse_text(value, error)
+    if not isinstance(value, dict):
+        raise error(f"must be a number or a distribution table, got {shown(value)}")
+    table = dict(value)
+    names = sorted(DISTRIBUTIONS)
+    if "dist" not in table:
+        raise error(f'a distribution table needs dist = "..." (one of {", ".join(names)})')
+    name = table.pop("dist")
+    if not isinstance(name, str):
+        raise error(f"dist must be a string, got {shown(name)}")
+    name = _ALIASES.get(name.strip().lower(), name.strip().lower())
+    if name not in DISTRIBUTIONS:
+        raise error(f'unknown distribution "{value["dist"]}"{did_you_mean(name, names)} '
+                    f'(known: {", ".join(names)})')
+    cls = DISTRIBUTIONS[name]
+    allowed = cls.required + cls.optional
+    for k in table:
+        if k not in allowed:
+            raise error(f'{name} has no parameter "{k}"{did_you_mean(k, allowed)} '
+                        f'(parameters: {", ".join(allowed)})')
+    if name == "normal" and table.get("truncate") is not True:
+        raise error("normal can go negative: add truncate = true (draws below 0 are redrawn), "
+                    "or use gamma or lognormal")
+    missing = [k for k in cls.required if k not in table]
+    if missing:
+        raise error(f"{name} needs {', '.join(cls.required)}: missing {', '.join(missing)}")
+    return _build(name, _Reader(name, table, error))
+
+
+def _parse_text(text: str, error: Any) -> Distribution:
+    s = text.strip()
+    try:
+        x = float(s)
+    except ValueError:
+        pass
+    else:
+        return _plain(x, error)
+    m = _CELL.fullmatch(s)
+    if m is None:
+        raise error(f"must be a number or a distribution such as gamma(mean=3, cv=0.5), "
+                    f"got {shown(text)}")
+    try:
+        params = tomllib.loads(f"v = {{{m.group(2)}}}")["v"]
+    except tomllib.TOMLDecodeError:
+        raise error(f"cannot read {shown(text)}: write name(key=value, ...), "
+                    "e.g. gamma(mean=3, cv=0.5)") from None
+    if "dist" in params:
+        raise error(f'cannot read {shown(text)}: the name before "(" is the distribution')
+    return _table(m.group(1), params, error)
+
+
+def _table(name: str, params: dict[str, Any], error: Any) -> Distribution:
+    try:
+        return parse_spec({"dist": name, **params})
+    except ModelError as exc:
+        raise error(exc.rule) from None
+
+
+class SpecTable:
+    """The specs of every element of one kind (all transitions, or all places), stored compactly.
+
+    A model with 10^6 places mostly holds plain numbers: they live in one float array, and only
+    the elements with a law point into a short tuple of distinct laws.
+
+    Parameters
+    ----------
+    values : array_like of float, shape (n,)
+        Fixed value of each element (for an element with a law, its mean is stored instead).
+    codes : array_like of int, shape (n,), optional
+        ``-1`` for a fixed value, else an index into ``laws``. Default: all fixed.
+    laws : sequence of Distribution, optional
+        The distinct laws.
+
+    Raises
+    ------
+    ValueError
+        If the arrays disagree or a fixed value is negative, NaN or infinite.
+    """
+
+    __slots__ = ("_random", "codes", "laws", "values")
+
+    def __init__(
+        self,
+        values: Sequence[float] | np.ndarray,
+        codes: Sequence[int] | np.ndarray | None = None,
+        laws: Sequence[Distribution] = (),
+    ) -> None:
+        vals = np.array(values, dtype=np.float64)
+        if vals.ndim != 1:
+            raise ValueError(f"values must be one-dimensional, got shape {vals.shape}")
+        n = vals.shape[0]
+        cods = np.full(n, -1, dtype=np.int32) if codes is None else np.array(codes, np.int32)
+        if cods.shape != (n,):
+            raise ValueError(f"codes must have shape ({n},), got {cods.shape}")
+        self.laws = tuple(laws)
+        if n and (cods.min() < -1 or cods.max() >= len(self.laws)):
+            raise ValueError(f"codes must lie in -1..{len(self.laws) - 1}")
+        if any(not isinstance(law, Distribution) for law in self.laws):
+            raise ValueError("laws must be Distribution instances")
+        if self.laws:
+            has_law = cods >= 0
+            vals[has_law] = np.array([law.mean for law in self.laws])[cods[has_law]]
+        if not np.all(np.isfinite(vals)) or (n and vals.min() < 0):
+            raise ValueError("fixed values must be finite and >= 0")
+        random_law = np.array([law.is_random for law in self.laws] + [False])
+        self._random = np.flatnonzero(random_law[cods])  # code -1 picks the final False
+        for a in (vals, cods, self._random):
+            a.setflags(write=False)
+        self.values, self.codes = vals, cods
+
+    @classmethod
+    def from_specs(cls, specs: Iterable[Distribution | float]) -> SpecTable:
+        """Build from one spec per element (numbers, laws or anything :func:`parse_spec` reads)."""
+        values: list[float] = []
+        codes: list[int] = []
+        index: dict[Distribution, int] = {}
+        for spec in specs:
+            law = parse_spec(spec)
+            if isinstance(law, Fixed):
+                values.append(law.value)
+                codes.append(-1)
+            else:
+                values.append(law.mean)
+                codes.append(index.setdefault(law, len(index)))
+        return cls(values, codes, tuple(index))
+
+    @classmethod
+    def coerce(cls, specs: SpecTable | Iterable[Distribution | float]) -> SpecTable:
+        """``specs`` itself if it is a table, else :meth:`from_specs`."""
+        return specs if isinstance(specs, SpecTable) else cls.from_specs(specs)
+
+    @classmethod
+    def concat(cls, tables: Sequence[SpecTable]) -> SpecTable:
+        """The elements of ``tables`` one after the other (laws shared where equal)."""
+        index: dict[Distribution, int] = {}
+        parts = []
+        for t in tables:
+            remap = np.array([index.setdefault(law, len(index)) for law in t.laws] + [-1],
+                             dtype=np.int32)
+            parts.append(remap[t.codes])  # code -1 picks the final -1
+        values = np.concatenate([t.values for t in tables]) if tables else np.zeros(0)
+        codes = np.concatenate(parts) if parts else np.zeros(0, np.int32)
+        return cls(values, codes, tuple(index))
+
+    def __len__(self) -> int:
+        return int(self.values.shape[0])
+
+    def __getitem__(self, i: int) -> Distribution:
+        code = int(self.codes[i])
+        return Fixed(float(self.values[i])) if code < 0 else self.laws[code]
+
+    def __iter__(self) -> Any:
+        return (self[i] for i in range(len(self)))
+
+    def __eq__(self, other: object) -> bool:
+        if not isinstance(other, SpecTable):
+            return NotImplemented
+        if len(self) != len(other) or not np.array_equal(self.values, other.values):
+            return False
+        mine = np.array([*range(len(self.laws)), -1])[self.codes]
+        index = {law: i for i, law in enumerate(self.laws)}
+        theirs = np.array([index.get(law, -2) for law in other.laws] + [-1])[other.codes]
+        return bool(np.array_equal(mine, theirs))
+
+    __hash__ = None  # type: ignore[assignment]
+
+    def __repr__(self) -> str:
+        return f"SpecTable(n={len(self)}, random={self.random_elements.size}, laws={self.laws})"
+
+    @property
+    def means(self) -> np.ndarray:
+        """Mean of each element (its fixed value when it has no law)."""
+        return self.values
+
+    @property
+    def variances(self) -> np.ndarray:
+        """Variance of each element (0 for fixed values)."""
+        var = np.array([law.variance for law in self.laws] + [0.0])
+        return var[self.codes]
+
+    @property
+    def random_elements(self) -> np.ndarray:
+        """Indices of the elements whose law is random."""
+        return self._random
+
+    @property
+    def is_random(self) -> bool:
+        """True when at least one element needs draws."""
+        return bool(self._random.size)
+
+
+TRANSITION, PLACE = 0, 1  # the "kind" of the spawn key
+
+
+def _count(x: object, name: str, low: int) -> int:
+    if isinstance(x, bool) or not isinstance(x, (int, np.integer)) or x < low:
+        raise ValueError(f"{name} must be an integer >= {low}, got {x!r}")
+    return int(x)
+
+
+class Sampler:
+    """The draws of one replication, indexed by element and firing number.
+
+    Parameters
+    ----------
+    duration_specs, hold_specs : SpecTable or sequence of specs
+        One spec per transition and one per place (numbers, laws, tables).
+    seed : int or None
+        Root of the streams. ``None`` takes fresh entropy from the operating system and keeps
+        it in :attr:`seed`, so that the run can be repeated.
+    replication : int, default 0
+        Index of the replication; replications get independent streams.
+    cache_bytes : int, default CACHE_BYTES
+        Memory for cached blocks (one block per element, least recently used dropped first).
+        The cache changes speed only, never the numbers.
+
+    Notes
+    -----
+    Block ``b`` of element ``e`` of kind ``kind`` (0 transitions, 1 places) holds firings
+    ``b·BLOCK + 1 .. (b + 1)·BLOCK`` and is drawn from
+    ``Generator(PCG64(SeedSequence(seed, spawn_key=(replication, kind, e, b))))``. The global
+    random state of numpy is never used.
+
+    Examples
+    --------
+    >>> s = Sampler([{"dist": "exponential", "mean": 2.0}, 1.5], [0.0], seed=7)
+    >>> bool(s.duration(0, 5, 3)[1] == s.duration(0, 6, 1)[0])
+    True
+    >>> s.duration(1, 1, 2).tolist()
+    [1.5, 1.5]
+    """
+
+    def __init__(
+        self,
+        duration_specs: SpecTable | Iterable[Distribution | float],
+        hold_specs: SpecTable | Iterable[Distribution | float],
+        seed: int | None,
+        replication: int = 0,
+        *,
+        cache_bytes: int = CACHE_BYTES,
+    ) -> None:
+        self.durations = SpecTable.coerce(duration_specs)
+        self.holds = SpecTable.coerce(hold_specs)
+        self.seed = (int(np.random.SeedSequence().entropy) if seed is None  # type: ignore[arg-type]
+                     else _count(seed, "seed", 0))
+        self.replication = _count(replication, "replication", 0)
+        self._max_cached = max(1, _count(cache_bytes, "cache_bytes", 0) // (BLOCK * 8))
+        self._cache: OrderedDict[tuple[int, int], tuple[int, np.ndarray]] = OrderedDict()
+
+    def __getstate__(self) -> dict[str, Any]:
+        state = self.__dict__.copy()
+        state["_cache"] = OrderedDict()  # blocks are cheap to redraw, costly to ship
+        return state
+
+    def __repr__(self) -> str:
+        return (f"Sampler(n_transitions={self.n_transitions}, n_places={self.n_places}, "
+                f"seed={self.seed}, replication={self.replication})")
+
+    @property
+    def n_transitions(self) -> int:
+        return len(self.durations)
+
+    @property
+    def n_places(self) -> int:
+        return len(self.holds)
+
+    @property
+    def is_random(self) -> bool:
+        """True when some duration or hold is random."""
+        return self.durations.is_random or self.holds.is_random
+
+    def for_replication(self, replication: int) -> Sampler:
+        """The sampler of another replication, same specs and seed."""
+        return Sampler(self.durations, self.holds, self.seed, replication,
+                       cache_bytes=self._max_cached * BLOCK * 8)
+
+    def block(self, kind: int, element: int, b: int) -> np.ndarray:
+        """Block ``b`` of draws of an element (read-only, shape ``(BLOCK,)``).
+
+        ``kind`` is 0 for a transition duration, 1 for a place hold; firing ``k`` is entry
+        ``(k - 1) % BLOCK`` of block ``(k - 1) // BLOCK``.
+        """
+        key = (kind, element)
+        hit = self._cache.get(key)
+        if hit is not None and hit[0] == b:
+            self._cache.move_to_end(key)
+            return hit[1]
+        table = self.durations if kind == TRANSITION else self.holds
+        ss = np.random.SeedSequence(self.seed, spawn_key=(self.replication, kind, element, b))
+        arr = table[element].sample(np.random.Generator(np.random.PCG64(ss)), BLOCK)
+        arr.setflags(write=False)
+        self._cache[key] = (b, arr)
+        self._cache.move_to_end(key)
+        if len(self._cache) > self._max_cached:
+            self._cache.popitem(last=False)
+        return arr
+
+    def _draws(self, kind: int, table: SpecTable, e: int, first: int, count: int) -> np.ndarray:
+        if not 0 <= e < len(table):
+            raise IndexError(f"element {e} out of range 0..{len(table) - 1}")
+        first = _count(first, "first", 1)
+        count = _count(count, "count", 0)
+        code = table.codes[e]
+        if code < 0 or not table.laws[code].is_random:
+            return np.full(count, table.values[e])
+        out = np.empty(count)
+        pos, k0 = 0, first - 1
+        while pos < count:
+            b, off = divmod(k0 + pos, BLOCK)
+            n = min(BLOCK - off, count - pos)
+            out[pos : pos + n] = self.block(kind, e, b)[off : off + n]
+            pos += n
+        return out
+
+    def duration(self, t: int, first: int, count: int = 1) -> np.ndarray:
+        """Durations ``d_t(first), ..., d_t(first + count - 1)``, shape ``(count,)``."""
+        return self._draws(TRANSITION, self.durations, t, first, count)
+
+    def hold(self, p: int, first: int, count: int = 1) -> np.ndarray:
+        """Holds ``h_p(first), ..., h_p(first + count - 1)``, shape ``(count,)``."""
+        return self._draws(PLACE, self.holds, p, first, count)
+
+    def _all(self, kind: int, table: SpecTable, first: int, count: int) -> np.ndarray:
+        out = np.empty((_count(count, "count", 0), len(table)))
+        out[:] = table.values  # fixed elements: a broadcast, no generator
+        for e in table.random_elements.tolist():
+            out[:, e] = self._draws(kind, table, e, first, count)
+        return out
+
+    def duration_block(self, first: int, count: int) -> np.ndarray:
+        """Durations of every transition for firings ``first .. first + count - 1``.
+
+        Returns an array of shape ``(count, n_transitions)``; row ``i`` is firing ``first + i``.
+        Asking for whole aligned blocks (``first = 1 + j·BLOCK``, ``count = BLOCK``) wastes no
+        draws.
+        """
+        return self._all(TRANSITION, self.durations, first, count)
+
+    def hold_block(self, first: int, count: int) -> np.ndarray:
+        """Holds of every place for firings ``first .. first + count - 1``, shape ``(count, m)``."""
+        return self._all(PLACE, self.holds, first, count)
