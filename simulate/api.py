@@ -1,0 +1,210 @@
+"""The Python API behind each command: everything the CLI can do, a script can do.
+
+>>> from cyclecheck.simulate.api import analyze_model          # doctest: +SKIP
+>>> from cyclecheck.simulate.modelfile import load_model        # doctest: +SKIP
+>>> doc = analyze_model(load_model("models/packaging_cell.toml"))   # doctest: +SKIP
+>>> doc["cycle_time"]                                            # doctest: +SKIP
+17.375
+"""
+
+from __future__ import annotations
+
+import json
+import os
+import tempfile
+from collections.abc import Callable
+from pathlib import Path
+from typing import Any
+
+from ..algebra.analysis import analyze_graph
+from .errors import ModelError
+from .experiment import estimate_with_executor
+from .modelfile import Model
+from .result import (
+    DOCUMENT_KIND,
+    analysis_section,
+    estimate_section,
+    model_section,
+    provenance,
+    random_analysis_section,
+    settings_section,
+)
+
+__all__ = [
+    "analyze_model",
+    "check_model",
+    "is_our_output",
+    "judge_trace",
+    "load_result",
+    "save_result",
+    "simulate_model",
+    "write_report",
+]
+
+#: Default target relative half-width for random models.
+DEFAULT_PRECISION = 0.01
+
+
+def _progress(enabled: bool, what: str) -> Callable[[int, float], None] | None:
+    """A one-line progress report on stderr, only when stderr is a terminal."""
+    import sys
+
+    if not enabled or not sys.stderr.isatty():
+        return None
+
+    def report(replications: int, estimate: float) -> None:
+        sys.stderr.write(f"\r{what}: {replications} replications, estimate {estimate:.6g}   ")
+        sys.stderr.flush()
+
+    return report
+
+
+def _base(model: Model, command: str) -> dict[str, Any]:
+    doc = provenance()
+    doc["command"] = command
+    doc["model"] = model_section(model)
+    return doc
+
+
+def analyze_model(model: Model, *, seed: int = 1, precision: float | None = None,
+                  replications: int | None = None, firings: int | None = None,
+                  workers: int = 1, scheduler: str | None = None,
+                  progress: bool = False) -> dict[str, Any]:
+    """The max-plus analysis: exact for fixed durations, a Lyapunov estimate for random ones.
+
+    For random durations the recursion is run on replications until the relative half-width of
+    the 95 % interval reaches ``precision`` (default 1 %); the bounds and the criticality of
+    every element come with it, and the exact analysis of the mean durations is kept under
+    ``mean_value_analysis``.
+    """
+    doc = _base(model, "analyze")
+    exact = analyze_graph(model.graph())
+    if not model.is_random:
+        doc.update(analysis_section(model, exact))
+        doc["settings"] = settings_section(seed, None, None, None)
+        return doc
+    precision = precision if precision is not None else DEFAULT_PRECISION
+    est = estimate_with_executor(model, "recursion", seed=seed, precision=precision,
+                                 replications=replications, firings=firings, workers=workers,
+                                 scheduler=scheduler, progress=_progress(progress, "recursion"))
+    doc.update(random_analysis_section(model, exact, est))
+    doc["settings"] = settings_section(seed, precision, est.replications, est.firings)
+    return doc
+
+
+def simulate_model(model: Model, *, seed: int = 1, precision: float | None = None,
+                   replications: int | None = None, firings: int | None = None,
+                   workers: int = 1, scheduler: str | None = None, progress: bool = False,
+                   trace_path: Path | None = None) -> dict[str, Any]:
+    """Estimate the cycle time from the SimPy engine; optionally write replication 0's log."""
+    from .engine import simulate_event_graph
+
+    doc = _base(model, "simulate")
+    lower = analyze_graph(model.graph()).cycle_time
+    est = estimate_with_executor(model, "simpy", seed=seed, precision=precision,
+                                 replications=replications, firings=firings, workers=workers,
+                                 scheduler=scheduler, progress=_progress(progress, "simpy"))
+    doc.update(estimate_section(model, est, lower))
+    if not model.is_random:
+        doc["bounds"] = None
+    doc["settings"] = settings_section(seed, precision, est.replications, est.firings)
+    if trace_path is not None:
+        run = simulate_event_graph(model.graph(), model.sampler(seed, 0), n_firings=est.firings)
+        _atomic_write(trace_path, run.event_log().to_csv(index=False))
+        doc["trace"] = str(trace_path)
+    return doc
+
+
+def check_model(model: Model, *, seed: int = 1, precision: float | None = None,
+                replications: int | None = None, firings: int | None = None,
+                workers: int = 1, scheduler: str | None = None,
+                progress: bool = False) -> dict[str, Any]:
+    """Both engines side by side, the sample-path comparison and the verdict."""
+    from .compare import compare
+
+    doc = _base(model, "check")
+    doc.update(compare(model, seed=seed, precision=precision, replications=replications,
+                       firings=firings, workers=workers, scheduler=scheduler,
+                       progress=_progress(progress, "check")))
+    return doc
+
+
+def judge_trace(model: Model, log: Path, *, tolerance: float = 1e-6) -> dict[str, Any]:
+    """Judge an event log of any simulator against the model's equations."""
+    from .tracecheck import judge_log
+
+    doc = _base(model, "trace")
+    doc.update(judge_log(model, log, tolerance=tolerance))
+    return doc
+
+
+def _atomic_write(path: Path, text: str) -> None:
+    """Write through a temporary file in the same folder and rename: never a half-written file."""
+    path = Path(path)
+    fd, tmp = tempfile.mkstemp(prefix=f".{path.name}.", suffix=".tmp", dir=path.parent or ".")
+    try:
+        with os.fdopen(fd, "w", encoding="utf-8") as fh:
+            fh.write(text)
+            fh.flush()
+            os.fsync(fh.fileno())
+        os.replace(tmp, path)
+    except BaseException:
+        Path(tmp).unlink(missing_ok=True)
+        raise
+
+
+def save_result(doc: dict[str, Any], path: Path, *, force: bool = False) -> None:
+    """Keep a result document as JSON (atomically)."""
+    from .result import dumps
+
+    if path.exists() and not force and not is_our_output(path):
+        raise ModelError("exists and is not an earlier cyclecheck result; use --force",
+                         file=path)
+    _atomic_write(path, dumps(doc) + "\n")
+
+
+def load_result(path: Path) -> dict[str, Any]:
+    """Read a saved result document, checking that it is one."""
+    try:
+        text = Path(path).read_text(encoding="utf-8")
+    except UnicodeDecodeError:
+        raise ModelError("is not a result document (not UTF-8 text)", file=path) from None
+    except OSError as err:
+        raise ModelError(f"cannot be read: {err.strerror or err}", file=path) from None
+    try:
+        doc = json.loads(text)
+    except json.JSONDecodeError as err:
+        raise ModelError(f"is not valid JSON: {err.msg}", file=path,
+                         item=f"line {err.lineno}, column {err.colno}") from None
+    if not isinstance(doc, dict) or doc.get("document") != DOCUMENT_KIND:
+        raise ModelError(f'is not a cyclecheck result document (no "document": '
+                         f'"{DOCUMENT_KIND}")', file=path)
+    if doc.get("command") != "check":
+        raise ModelError("holds the result of "
+                         f"`cyclecheck {doc.get('command')}`; pages are made from `check` "
+                         "results (cyclecheck check MODEL --save RESULT.json)", file=path)
+    return doc
+
+
+def write_report(doc: dict[str, Any], path: Path, *, force: bool = False) -> None:
+    """Render and write the review page (atomically)."""
+    from ..reports.page import ReportError, write_page
+
+    try:
+        write_page(doc, path, force=force)
+    except ReportError as err:
+        raise ModelError(str(err), file=None) from None
+
+
+def is_our_output(path: Path) -> bool:
+    """True when ``path`` is a result document or a review page written by cyclecheck."""
+    from ..reports.page import is_report
+
+    try:
+        if is_report(path):
+            return True
+        with open(path, "rb") as fh:
+            head = fh.read(4096)
+    except OSError:
+        return False
+    return f'"document": "{DOCUMENT_KIND}"'.encode() in head

@@ -1,0 +1,217 @@
+"""The verdict of ``cyclecheck check``: the SimPy model beside the max-plus theory.
+
+Two comparisons, the strongest first:
+
+1. **Sample-path identity.** The SimPy engine and the max-plus recursion run the same
+   replications on the same random draws; every firing time must agree to ``PATH_RTOL``. This
+   checks the simulation model itself, firing by firing, and needs no statistics.
+2. **Cycle times.** Fixed durations: the simulated cycle time after the transient,
+   ``(x(K) - x(K - c)) / c`` with ``c`` the cyclicity, must equal the exact eigenvalue of every
+   transition. Random durations: the SimPy estimate and the recursion's Lyapunov estimate must
+   agree within their 95 % intervals (the intervals overlap), and the estimate may not fall
+   below the cycle time of the mean durations (Baccelli et al. 1992, ch. 8).
+"""
+
+from __future__ import annotations
+
+from collections.abc import Callable
+from typing import Any
+
+import numpy as np
+
+from ..algebra.analysis import GraphAnalysis, analyze_graph
+from ..algebra.recursion import firing_times
+from .engine import simulate_event_graph
+from .experiment import Estimate, default_firings, estimate_with_executor, run_replications
+from .modelfile import Model
+from .result import analysis_section, estimate_section, random_analysis_section, settings_section
+
+__all__ = ["PATH_RTOL", "compare"]
+
+#: Relative tolerance of the sample-path identity.
+PATH_RTOL = 1e-9
+#: Transitions drawn in the transient figure.
+FIGURE_TRANSITIONS = 8
+#: Firings drawn in the transient figure.
+FIGURE_FIRINGS = 200
+
+
+def _path_difference(a: np.ndarray, b: np.ndarray) -> float:
+    """Largest relative difference of two arrays of firing times."""
+    if a.shape != b.shape:
+        return float("inf")
+    scale = np.maximum(1.0, np.maximum(np.abs(a), np.abs(b)))
+    return float(np.max(np.abs(a - b) / scale, initial=0.0))
+
+
+def _transient_figure(model: Model, eta: np.ndarray, sim: np.ndarray,
+                      rec: np.ndarray) -> dict[str, Any]:
+    """``x_t(k) - k * eta_t`` for the first firings of a few transitions, both engines."""
+    k_max = min(FIGURE_FIRINGS, sim.shape[0])
+    k = np.arange(1, k_max + 1)
+    shown = np.argsort(-eta, kind="stable")[:FIGURE_TRANSITIONS]
+    ids = model.transition_ids
+    return {
+        "k": k.tolist(),
+        "cycle_time": {ids[t]: float(eta[t]) for t in shown},
+        "simulation": {ids[t]: (sim[:k_max, t] - k * eta[t]).tolist() for t in shown},
+        "recursion": {ids[t]: (rec[:k_max, t] - k * eta[t]).tolist() for t in shown},
+    }
+
+
+def _schedule_figure(model: Model, exact: GraphAnalysis) -> dict[str, Any]:
+    ids = model.transition_ids
+    g = exact.graph
+    return {
+        "cycle_time": exact.cycle_time,
+        "start": {ids[t]: float(exact.start[t]) for t in range(g.n_transitions)},
+        "duration": {ids[t]: float(g.duration[t]) for t in range(g.n_transitions)},
+        "cycle_time_by_transition": {ids[t]: float(exact.howard.cycle_time[t])
+                                     for t in range(g.n_transitions)},
+    }
+
+
+def _fixed(model: Model, exact: GraphAnalysis, firings: int | None,
+           seed: int) -> dict[str, Any]:
+    graph = model.graph()
+    eta = exact.howard.cycle_time
+    c = exact.cyclicity
+    k0 = exact.transient if exact.transient is not None else exact.transient_horizon
+    K = firings or max(200, k0 + 2 * c + 10)
+    run = simulate_event_graph(graph, None, n_firings=K)
+    rec = firing_times(graph, K)
+    diff = _path_difference(run.time, rec)
+    identical = diff <= PATH_RTOL
+    sim_rate = (run.time[-1] - run.time[-1 - c]) / c
+    rate_gap = np.abs(sim_rate - eta) / np.maximum(1.0, np.abs(eta))
+    settled = exact.transient is not None and K >= exact.transient + c
+    agrees_rate = settled and bool(np.all(rate_gap <= PATH_RTOL))
+    ids = model.transition_ids
+    reasons = []
+    if identical:
+        reasons.append(f"the SimPy firing times equal the max-plus recursion's for all {K} "
+                       f"firings of every transition (largest relative difference {diff:.1e})")
+    else:
+        bad = np.unravel_index(np.argmax(np.abs(run.time - rec)), rec.shape)
+        reasons.append(f"sample paths differ: firing {bad[0] + 1} of {ids[bad[1]]!r} completes at "
+                       f"{run.time[bad]:.9g} in SimPy and {rec[bad]:.9g} in the recursion")
+    if agrees_rate:
+        reasons.append(f"after the transient ({exact.transient} firings) the simulated cycle time "
+                       f"of every transition equals the eigenvalue {exact.cycle_time:.9g}")
+    elif not settled:
+        reasons.append(f"the run of {K} firings did not reach the periodic regime; give more "
+                       "--firings")
+    else:
+        t = int(np.argmax(rate_gap))
+        reasons.append(f"simulated cycle time of {ids[t]!r} is {sim_rate[t]:.9g}, the theory "
+                       f"gives {eta[t]:.9g}")
+    lam_sim = float(sim_rate.max())
+    simulation = {
+        "cycle_time": lam_sim, "cycle_time_ci": [lam_sim, lam_sim],
+        "throughput": 1.0 / lam_sim if lam_sim > 0 else None,
+        "cycle_time_by_transition": {ids[t]: float(v) for t, v in enumerate(sim_rate)},
+        "critical_circuits": [], "bounds": None, "firings_simulated": int(K * graph.n_transitions),
+        "cyclicity": c, "exact": True, "time_unit": model.time_unit, "engine": "simpy",
+        "method": f"SimPy, {K} firings, cycle time (x(K) - x(K - {c})) / {c}",
+        "utilization": {ids[t]: float(u) for t, u in enumerate(run.utilization())},
+    }
+    return {
+        "analysis": analysis_section(model, exact),
+        "simulation": simulation,
+        "comparison": {
+            "verdict": "agrees" if identical and agrees_rate else "disagrees",
+            "reasons": reasons,
+            "sample_path": {"identical": identical, "max_relative_difference": diff,
+                            "firings_compared": int(K * graph.n_transitions),
+                            "replications_compared": 1, "tolerance": PATH_RTOL},
+        },
+        "figures": {"transient": _transient_figure(model, eta, run.time, rec),
+                    "schedule": _schedule_figure(model, exact),
+                    "running_estimate": None, "replication_estimates": None},
+        "settings": settings_section(seed, None, 1, K),
+    }
+
+
+def _overlap(a: Estimate, b: Estimate) -> bool:
+    return a.interval.low <= b.interval.high and b.interval.low <= a.interval.high
+
+
+def _random(model: Model, exact: GraphAnalysis, *, seed: int, precision: float | None,
+            replications: int | None, firings: int | None, workers: int,
+            scheduler: str | None, progress: Callable[[int, float], None] | None
+            ) -> dict[str, Any]:
+    precision = 0.01 if precision is None else precision
+    rec_est = estimate_with_executor(model, "recursion", seed=seed, precision=precision,
+                                     replications=replications, firings=firings,
+                                     workers=workers, scheduler=scheduler, progress=progress)
+    sim_firings = min(rec_est.firings, firings or default_firings(model, "simpy"))
+    sim_est = estimate_with_executor(model, "simpy", seed=seed, precision=None,
+                                     replications=min(replications or 5, rec_est.replications),
+                                     firings=sim_firings, workers=workers, scheduler=scheduler,
+                                     record=True, progress=progress)
+    sim_times = sim_est.batch.times
+    rec_batch = run_replications(model, "recursion", seed, sim_est.batch.replications.tolist(),
+                                 sim_firings, record=True)
+    diff = _path_difference(sim_times, rec_batch.times)
+    identical = diff <= PATH_RTOL
+    overlap = _overlap(rec_est, sim_est)
+    lower = exact.cycle_time
+    above_lower = rec_est.interval.high >= lower * (1 - PATH_RTOL)
+    R, K = sim_times.shape[1], sim_times.shape[0]
+    n = model.n_transitions
+    reasons = []
+    if identical:
+        reasons.append(f"the SimPy firing times equal the max-plus recursion's on the same random "
+                       f"draws: {R} replications x {K} firings x {n} transitions, largest "
+                       f"relative difference {diff:.1e}")
+    else:
+        reasons.append(f"sample paths differ on the same random draws (largest relative "
+                       f"difference {diff:.3g}): the simulation model does not implement the "
+                       "event graph")
+    iv_r, iv_s = rec_est.interval, sim_est.interval
+    reasons.append(
+        f"Lyapunov estimate {iv_r.estimate:.6g} [{iv_r.low:.6g}, {iv_r.high:.6g}] and SimPy "
+        f"estimate {iv_s.estimate:.6g} [{iv_s.low:.6g}, {iv_s.high:.6g}] "
+        + ("agree within their 95 % intervals" if overlap else "do NOT overlap"))
+    if not above_lower:
+        reasons.append(f"the estimate lies below the cycle time of the mean durations {lower:.6g}, "
+                       "which bounds it from below")
+    if rec_est.target_met is False:
+        reasons.append(f"the precision {precision} was not reached within the replication limit")
+    eta_mean = exact.howard.cycle_time
+    eta_est = rec_est.by_transition
+    analysis = random_analysis_section(model, exact, rec_est)
+    simulation = estimate_section(model, sim_est, lower)
+    return {
+        "analysis": analysis,
+        "simulation": simulation,
+        "comparison": {
+            "verdict": "agrees" if identical and overlap and above_lower else "disagrees",
+            "reasons": reasons,
+            "sample_path": {"identical": identical, "max_relative_difference": diff,
+                            "firings_compared": int(R * K * n), "replications_compared": int(R),
+                            "tolerance": PATH_RTOL},
+        },
+        "figures": {
+            "transient": _transient_figure(model, np.where(eta_est > 0, eta_est, eta_mean),
+                                           sim_times[:, 0, :], rec_batch.times[:, 0, :]),
+            "schedule": _schedule_figure(model, exact),
+            "running_estimate": analysis["running_estimate"],
+            "replication_estimates": {"recursion": analysis["per_replication"],
+                                      "simulation": simulation["per_replication"]},
+        },
+        "settings": settings_section(seed, precision, rec_est.replications, rec_est.firings),
+    }
+
+
+def compare(model: Model, *, seed: int = 1, precision: float | None = None,
+            replications: int | None = None, firings: int | None = None, workers: int = 1,
+            scheduler: str | None = None,
+            progress: Callable[[int, float], None] | None = None) -> dict[str, Any]:
+    """Run both engines and judge: the ``analysis``, ``simulation``, ``comparison``,
+    ``figures`` and ``settings`` sections of a check document."""
+    exact = analyze_graph(model.graph())
+    if not model.is_random:
+        return _fixed(model, exact, firings, seed)
+    return _random(model, exact, seed=seed, precision=precision, replications=replications,
+                   firings=firings, workers=workers, scheduler=scheduler, progress=progress)

@@ -1,0 +1,363 @@
+"""Replications of a model on either engine, and the cycle time they estimate.
+
+A *replication* ``r`` of a model is one run from the initial marking with the draws of
+``model.sampler(seed, r)``: the SimPy engine and the max-plus recursion, given the same seed and
+replication index, compute the same firing times. Replications are independent, so they are the
+unit of work handed to executors (local processes or a Dask cluster) and the unit of the
+sequential precision procedure.
+
+Estimation (Law & Kelton, *Simulation Modeling and Analysis*, ch. 9, replication/deletion): each
+run records ``x_t(k)`` every ``block`` firings; the warm-up is chosen once, by MSER-5 on the pilot
+round's mean block rates; each replication's estimate of the cycle time is its growth rate
+``(x_t(K) - x_t(k0)) / (K - k0)``, maximised over transitions (in a strongly connected graph they
+differ by O(1/K); in one that is not, the slowest component sets the headline); the interval is
+the Student-t interval over replications.
+
+Upper bound: after ``K`` firings of every transition the marking is the initial one again; let
+``Z(K)`` be the time when all its tokens are available. Restarting from there with all tokens
+present can only delay later firings, so ``Z`` is subadditive, ``E Z(K + L) <= E Z(K) + E Z(L)``
+for i.i.d. draws, and by Kingman's subadditive ergodic theorem the cycle time is
+``inf_K E Z(K) / K``: every ``E Z(K) / K`` is an upper bound, estimated here with its interval.
+"""
+
+from __future__ import annotations
+
+import os
+from collections.abc import Callable, Sequence
+from concurrent.futures import Executor, ProcessPoolExecutor
+from dataclasses import dataclass
+from typing import Any
+
+import numpy as np
+
+from ..algebra.recursion import RandomRecursion
+from .errors import ModelError
+from .estimate import Interval, mser5, replication_interval, sequential_precision
+from .modelfile import Model
+
+__all__ = [
+    "Batch",
+    "Estimate",
+    "estimate_cycle_time",
+    "estimate_with_executor",
+    "open_executor",
+    "run_replications",
+]
+
+ENGINES = ("recursion", "simpy")
+
+#: Replication estimates added per round of the sequential procedure (at least).
+DEFAULT_REPLICATIONS = 10
+#: Most replications any estimate may use.
+MAX_REPLICATIONS = 2000
+
+
+@dataclass
+class Batch:
+    """What a set of replications computed.
+
+    Attributes
+    ----------
+    replications : ndarray of int, shape (R,)
+    checkpoints : ndarray of int, shape (J + 1,)
+        Firing numbers at which ``x`` was recorded (0 first).
+    x : ndarray, shape (J + 1, R, n)
+        Firing times of every transition at the checkpoints.
+    busy : ndarray, shape (R, n)
+        Sum of the durations of each transition's firings.
+    critical : ndarray, shape (R, m), or None
+        Firings of each place's target that the place set (recursion only).
+    clearing : ndarray, shape (R,)
+        ``Z(K)``: when every token of the marking after ``K`` firings is available.
+    times : ndarray, shape (K, R, n), or None
+        All firing times, when recorded.
+    """
+
+    replications: np.ndarray
+    checkpoints: np.ndarray
+    x: np.ndarray
+    busy: np.ndarray
+    critical: np.ndarray | None
+    clearing: np.ndarray
+    times: np.ndarray | None
+
+    @property
+    def firings(self) -> int:
+        """Firings of every transition in each replication."""
+        return int(self.checkpoints[-1])
+
+    @staticmethod
+    def concatenate(batches: Sequence[Batch]) -> Batch:
+        """Join batches over replications (same checkpoints)."""
+        first = batches[0]
+        crit = None if first.critical is None else np.concatenate([b.critical for b in batches])
+        times = None if first.times is None else np.concatenate([b.times for b in batches], axis=1)
+        return Batch(
+            np.concatenate([b.replications for b in batches]), first.checkpoints,
+            np.concatenate([b.x for b in batches], axis=1),
+            np.concatenate([b.busy for b in batches]), crit,
+            np.concatenate([b.clearing for b in batches]), times,
+        )
+
+
+def _checkpoints(firings: int, block: int) -> np.ndarray:
+    return np.unique(np.r_[np.arange(0, firings, block), firings])
+
+
+def _clearing_time(graph: Any, last: np.ndarray, future_holds: np.ndarray) -> np.ndarray:
+    """``Z(K)`` per replication: the latest availability of the tokens in the places after ``K``
+    firings of every transition.
+
+    ``last`` holds the firing times of firings ``K - M + 1 .. K`` (shape (M, R, n), ``M`` the
+    largest marking) and ``future_holds`` the holds ``h_p(K + 1 .. K + M)`` (shape (M, R, m)).
+    The ``i``-th newest token of place ``p`` (``i <= m_p``) was produced by firing
+    ``j = K - i + 1`` of its source and is consumed by firing ``j + m_p``, whose hold it carries.
+    """
+    K_rows = last.shape[0]
+    z = last[-1].max(axis=1)
+    for i in range(1, K_rows + 1):
+        places = np.flatnonzero(graph.tokens >= i)
+        if places.size == 0:
+            break
+        produced = last[K_rows - i][:, graph.source[places]]  # (R, |places|)
+        hold = future_holds[graph.tokens[places] - i, :, places].T  # h_p(K - i + 1 + m_p)
+        z = np.maximum(z, (produced + hold).max(axis=1))
+    return np.maximum(z, 0.0)
+
+
+def _recursion_batch(model: Model, seed: int, replications: Sequence[int], firings: int,
+                     block: int, record: bool) -> Batch:
+    reps = np.asarray(replications, dtype=np.int64)
+    samplers = [model.sampler(seed, int(r)) for r in reps]
+    graph = model.graph()
+
+    def durations(first: int, count: int) -> np.ndarray:
+        return np.stack([s.duration_block(first, count) for s in samplers], axis=1)
+
+    def holds(first: int, count: int) -> np.ndarray:
+        return np.stack([s.hold_block(first, count) for s in samplers], axis=1)
+
+    rec = RandomRecursion(graph, durations, holds, len(reps), criticality=True)
+    depth = min(firings, max(1, int(graph.tokens.max(initial=0))))
+    points = _checkpoints(firings, block)
+    x = np.zeros((points.size, len(reps), graph.n_transitions))
+    busy = np.zeros((len(reps), graph.n_transitions))
+    critical = np.zeros((len(reps), graph.n_places), dtype=np.int64)
+    recorded = []
+    for i in range(1, points.size):
+        a, b = int(points[i - 1]), int(points[i])
+        # The last `depth` firings are always kept: Z(K) needs them.
+        out = rec.run(b - a, record=record or b > firings - depth)
+        busy += out.busy
+        critical += out.critical
+        if out.times is not None:
+            recorded.append(out.times)
+        x[i] = rec.state()
+    kept = np.concatenate(recorded)
+    clearing = _clearing_time(graph, kept[-depth:], holds(firings + 1, depth))
+    return Batch(reps, points, x, busy, critical, clearing, kept if record else None)
+
+
+def _simpy_batch(model: Model, seed: int, replications: Sequence[int], firings: int,
+                 block: int, record: bool) -> Batch:
+    from .engine import simulate_event_graph
+
+    reps = np.asarray(replications, dtype=np.int64)
+    graph = model.graph()
+    points = _checkpoints(firings, block)
+    n = graph.n_transitions
+    x = np.zeros((points.size, len(reps), n))
+    busy = np.zeros((len(reps), n))
+    clearing = np.zeros(len(reps))
+    times = np.zeros((firings, len(reps), n)) if record else None
+    depth = min(firings, max(1, int(graph.tokens.max(initial=0))))
+    for i, r in enumerate(reps.tolist()):
+        sampler = model.sampler(seed, r)
+        run = simulate_event_graph(graph, sampler, n_firings=firings)
+        x[1:, i] = run.time[points[1:] - 1]
+        busy[i] = np.nansum(run.time - run.start, axis=0)
+        future = sampler.hold_block(firings + 1, depth)[:, None, :]
+        clearing[i] = _clearing_time(graph, run.time[-depth:, None, :], future)[0]
+        if times is not None:
+            times[:, i] = run.time
+    return Batch(reps, points, x, busy, None, clearing, times)
+
+
+def _run_chunk(engine: str, model: Model, seed: int, replications: Sequence[int], firings: int,
+               block: int, record: bool) -> Batch:
+    run = _recursion_batch if engine == "recursion" else _simpy_batch
+    return run(model, seed, replications, firings, block, record)
+
+
+def open_executor(workers: int = 1, scheduler: str | None = None) -> tuple[Executor | None, Callable]:
+    """An executor for replications and a function that closes it.
+
+    ``scheduler`` is the address of a Dask scheduler (``tcp://host:port``); else ``workers > 1``
+    gives a local process pool; else ``None`` (run in this process).
+    """
+    if scheduler:
+        try:
+            from distributed import Client
+        except ImportError as err:  # pragma: no cover - depends on the install
+            raise ModelError("--scheduler needs dask distributed: pip install "
+                             "'cyclecheck[cluster]'", item="--scheduler") from err
+        try:
+            client = Client(scheduler, timeout="10s")
+        except (OSError, TimeoutError) as err:
+            raise ModelError(f"cannot reach the Dask scheduler at {scheduler}: {err}",
+                             item="--scheduler") from err
+        return client.get_executor(pure=False), client.close
+    if workers > 1:
+        pool = ProcessPoolExecutor(max_workers=workers)
+        return pool, pool.shutdown
+    return None, lambda: None
+
+
+def run_replications(model: Model, engine: str, seed: int, replications: Sequence[int],
+                     firings: int, *, block: int | None = None, record: bool = False,
+                     executor: Executor | None = None, chunks: int = 1) -> Batch:
+    """Run replications on one engine, split into ``chunks`` tasks on ``executor``."""
+    if engine not in ENGINES:
+        raise ValueError(f"engine must be one of {ENGINES}, got {engine!r}")
+    _check_memory(model, len(replications), firings, record)
+    block = block or max(1, firings // 200)
+    reps = list(replications)
+    if executor is None or chunks <= 1 or len(reps) < 2:
+        return _run_chunk(engine, model, seed, reps, firings, block, record)
+    parts = [p.tolist() for p in np.array_split(np.asarray(reps), min(chunks, len(reps)))]
+    futures = [executor.submit(_run_chunk, engine, model, seed, p, firings, block, record)
+               for p in parts if p]
+    return Batch.concatenate([f.result() for f in futures])
+
+
+def _check_memory(model: Model, replications: int, firings: int, record: bool) -> None:
+    per_value = 8 * model.n_transitions * replications
+    need = per_value * (firings if record else 400) + 16 * model.n_places * replications
+    try:
+        available = os.sysconf("SC_AVPHYS_PAGES") * os.sysconf("SC_PAGE_SIZE")
+    except (ValueError, OSError, AttributeError):  # pragma: no cover - non-POSIX
+        return
+    if need > 0.8 * available:
+        raise ModelError(
+            f"the run would need about {need / 2**30:.1f} GiB and this machine has "
+            f"{available / 2**30:.1f} GiB free; ask for fewer firings or replications",
+            item="--firings/--replications",
+        )
+
+
+@dataclass
+class Estimate:
+    """The cycle time estimated from replications of one engine."""
+
+    engine: str
+    interval: Interval
+    by_transition: np.ndarray  # (n,) mean growth rate per transition
+    per_replication: np.ndarray  # (R,) headline estimate of each replication
+    warmup_firings: int
+    firings: int
+    replications: int
+    upper: Interval
+    utilization: np.ndarray
+    criticality_places: np.ndarray | None
+    history: list[tuple[int, float, float, float]]
+    target_met: bool | None
+    batch: Batch
+
+    @property
+    def firings_simulated(self) -> int:
+        """All firings of all transitions in all replications."""
+        return self.firings * self.replications * self.batch.x.shape[2]
+
+
+def _warmup(batch: Batch) -> int:
+    """MSER-5 on the mean block rates of the pilot replications: firings to delete."""
+    rates = np.diff(batch.x, axis=0) / np.diff(batch.checkpoints)[:, None, None]
+    series = rates.max(axis=2).mean(axis=1)
+    if series.size < 10:
+        return 0
+    deleted_blocks = mser5(series)
+    return int(batch.checkpoints[min(deleted_blocks, batch.checkpoints.size - 2)])
+
+
+def _growth(batch: Batch, warmup: int) -> np.ndarray:
+    j = int(np.searchsorted(batch.checkpoints, warmup))
+    span = batch.checkpoints[-1] - batch.checkpoints[j]
+    return (batch.x[-1] - batch.x[j]) / span  # (R, n)
+
+
+def estimate_cycle_time(model: Model, engine: str = "recursion", *, seed: int = 1,
+                        firings: int, replications: int = DEFAULT_REPLICATIONS,
+                        precision: float | None = None, max_replications: int = MAX_REPLICATIONS,
+                        executor: Executor | None = None, chunks: int = 1,
+                        record: bool = False, progress: Callable[[int, float], None] | None = None) -> Estimate:
+    """Estimate the cycle time of a model by independent replications.
+
+    With ``precision`` the sequential procedure adds replications until the 95 % interval's
+    relative half-width is at most ``precision`` (or ``max_replications`` are used).
+    """
+    batches: list[Batch] = []
+    state: dict[str, int] = {"next": 0, "warmup": -1}
+
+    def step(count: int) -> np.ndarray:
+        reps = range(state["next"], state["next"] + count)
+        state["next"] += count
+        batch = run_replications(model, engine, seed, reps, firings, executor=executor,
+                                 chunks=chunks, record=record)
+        if state["warmup"] < 0:
+            state["warmup"] = _warmup(batch)
+        batches.append(batch)
+        values = _growth(batch, state["warmup"]).max(axis=1)
+        if progress is not None:
+            progress(state["next"], float(np.mean(values)))
+        return values
+
+    history: list[tuple[int, float, float, float]] = []
+    target_met: bool | None = None
+    if precision is None:
+        values = step(replications)
+        interval = replication_interval(values)
+        history.append((len(values), interval.estimate, interval.low, interval.high))
+    else:
+        # Law & Kelton's rule stops at gamma / (1 + gamma) for a relative *error* gamma; the
+        # contract here is the relative half-width itself, hence gamma = p / (1 - p).
+        gamma = precision / (1.0 - precision)
+        seq = sequential_precision(step, gamma, initial=replications, max_work=max_replications)
+        interval, target_met = seq.interval, seq.target_met
+        history = [(c.work, c.estimate, c.low, c.high) for c in seq.history]
+    batch = Batch.concatenate(batches)
+    growth = _growth(batch, state["warmup"])
+    horizon = batch.x[-1]
+    with np.errstate(divide="ignore", invalid="ignore"):
+        utilization = np.where(horizon > 0, batch.busy / horizon, 0.0).mean(axis=0)
+        crit = None
+        if batch.critical is not None:
+            crit = batch.critical.sum(axis=0) / (batch.firings * len(batch.replications))
+    upper = replication_interval(batch.clearing / batch.firings)
+    return Estimate(engine, interval, growth.mean(axis=0), growth.max(axis=1),
+                    state["warmup"], batch.firings, len(batch.replications), upper,
+                    utilization, crit, history, target_met, batch)
+
+
+def default_firings(model: Model, engine: str) -> int:
+    """Firings per replication when the user gives none: enough for the warm-up to be a small
+    part of the run, few enough that a round takes seconds on one core."""
+    budget = 2_000_000 if engine == "recursion" else 60_000
+    return int(np.clip(budget // max(model.n_transitions, 1), 200, 20_000))
+
+
+def estimate_with_executor(model: Model, engine: str, *, seed: int, precision: float | None,
+                           replications: int | None, firings: int | None, workers: int = 1,
+                           scheduler: str | None = None, record: bool = False,
+                           progress: Callable[[int, float], None] | None = None) -> Estimate:
+    """:func:`estimate_cycle_time` with defaults filled in, on the executor the options ask for."""
+    executor, close = open_executor(workers, scheduler)
+    try:
+        return estimate_cycle_time(
+            model, engine, seed=seed,
+            firings=firings or default_firings(model, engine),
+            replications=replications or DEFAULT_REPLICATIONS,
+            precision=precision, executor=executor, chunks=max(workers, 1) if executor else 1,
+            record=record, progress=progress,
+        )
+    finally:
+        close()

@@ -1,0 +1,296 @@
+"""The result documents: what a run found, as JSON-ready dictionaries.
+
+`analyze` and `simulate` print the keys of DESIGN.md (``cycle_time``, ``cycle_time_ci``,
+``throughput``, ``cycle_time_by_transition``, ``critical_circuits``, ``bounds``,
+``firings_simulated``, ``cyclicity``) and more; `check` wraps both sides, the comparison and the
+figures' data into one versioned document (``schema_version``) that ``cyclecheck report``
+renders again without recomputing. Numbers that JSON cannot hold (infinite slack, the
+throughput of a zero cycle time) become ``null``.
+"""
+
+from __future__ import annotations
+
+import datetime as _dt
+import hashlib
+import json
+import math
+import platform
+import sys
+from collections.abc import Mapping
+from importlib import metadata
+from pathlib import Path
+from typing import Any
+
+import numpy as np
+
+from ..algebra.analysis import GraphAnalysis
+from .experiment import Estimate
+from .modelfile import Model
+
+__all__ = [
+    "DOCUMENT_KIND",
+    "SCHEMA_VERSION",
+    "analysis_section",
+    "dumps",
+    "estimate_section",
+    "finite_or_none",
+    "model_section",
+    "provenance",
+    "random_analysis_section",
+    "settings_section",
+]
+
+DOCUMENT_KIND = "cyclecheck-result"
+SCHEMA_VERSION = 1
+
+#: Longest lists written element by element in a document; larger models keep the first ones and
+#: say how many were left out (a review page cannot show 10^5 rows anyway).
+MAX_LISTED = 5000
+
+
+def finite_or_none(x: float | None) -> float | None:
+    """``x`` as a float, or None where JSON has no number for it (inf, NaN)."""
+    if x is None:
+        return None
+    x = float(x)
+    return x if math.isfinite(x) else None
+
+
+def _throughput(cycle_time: float) -> float | None:
+    return 1.0 / cycle_time if cycle_time > 0 else None
+
+
+def model_section(model: Model) -> dict[str, Any]:
+    """Name, units, size, file hash and the elements of the model."""
+    graph = model.graph()
+    n, m = graph.n_transitions, graph.n_places
+    transitions = [
+        {
+            "id": model.transition_ids[t],
+            "label": model.transition_labels[t] or "",
+            "duration": model.durations[t].describe(),
+            "mean_duration": float(graph.duration[t]),
+        }
+        for t in range(min(n, MAX_LISTED))
+    ]
+    places = [
+        {
+            "index": p,
+            "from": model.transition_ids[int(graph.source[p])],
+            "to": model.transition_ids[int(graph.target[p])],
+            "tokens": int(graph.tokens[p]),
+            "hold": model.holds[p].describe(),
+            "mean_hold": float(graph.hold[p]),
+            "label": model.place_labels[p] or "",
+        }
+        for p in range(min(m, MAX_LISTED))
+    ]
+    return {
+        "name": model.name,
+        "time_unit": model.time_unit,
+        "description": model.description,
+        "path": str(model.path) if model.path else None,
+        "sha256": model.sha256,
+        "n_transitions": n,
+        "n_places": m,
+        "is_random": model.is_random,
+        "transitions": transitions,
+        "places": places,
+        "elements_listed": {"transitions": len(transitions), "places": len(places)},
+    }
+
+
+def analysis_section(model: Model, analysis: GraphAnalysis) -> dict[str, Any]:
+    """The exact max-plus results for fixed durations, with the keys of DESIGN.md first."""
+    ids = model.transition_ids
+    graph = analysis.graph
+    hw = analysis.howard
+    lam = analysis.cycle_time
+    cert = analysis.certificate
+    by_transition = {ids[t]: float(hw.cycle_time[t]) for t in range(graph.n_transitions)}
+    circuits = [[ids[t] for t in c.transitions] for c in hw.circuits]
+    circuit_places = [list(c.places) for c in hw.circuits]
+    slack_t = {ids[t]: finite_or_none(s) for t, s in enumerate(analysis.slack.transitions)}
+    slack_p = [finite_or_none(s) for s in analysis.slack.places[:MAX_LISTED]]
+    doc: dict[str, Any] = {
+        "cycle_time": lam,
+        "cycle_time_ci": [lam, lam],
+        "throughput": _throughput(lam),
+        "cycle_time_by_transition": by_transition,
+        "critical_circuits": circuits,
+        "bounds": None,
+        "firings_simulated": 0,
+        "cyclicity": analysis.cyclicity,
+        "exact": True,
+        "method": "Howard policy iteration, certified",
+        "time_unit": model.time_unit,
+        "strongly_connected": analysis.strongly_connected,
+        "components": analysis.n_components,
+        "critical_circuit_places": circuit_places,
+        "critical_circuit_ratios": [c.ratio for c in hw.circuits],
+        "critical_places": np.flatnonzero(analysis.critical).tolist()[:MAX_LISTED],
+        "eigenvector": {ids[t]: float(hw.bias[t]) for t in range(graph.n_transitions)},
+        "slack": {"transitions": slack_t, "places": slack_p, "exact": analysis.slack.exact},
+        "certificate": {
+            "checked": cert.holds,
+            "circuit_gap": cert.circuit_gap,
+            "monotone_gap": cert.monotone_gap,
+            "max_reduced_weight": cert.max_reduced_weight,
+            "eigen_residual": cert.eigen_residual,
+            "tolerance": cert.tolerance,
+            "text": _certificate_text(analysis),
+        },
+        "charpoly": (
+            {
+                "corners": [
+                    [finite_or_none(c), k]
+                    for c, k in zip(analysis.charpoly.corners, analysis.charpoly.multiplicities,
+                                    strict=True)
+                ],
+                "terms": [
+                    [k, finite_or_none(d)]
+                    for k, d in zip(analysis.charpoly.degrees, analysis.charpoly.coefficients,
+                                    strict=True)
+                ],
+                "size": analysis.charpoly.n,
+            }
+            if analysis.charpoly is not None
+            else {"skipped": analysis.charpoly_note}
+        ),
+        "transient_firings": analysis.transient,
+        "transient_horizon": analysis.transient_horizon,
+        "howard_iterations": hw.iterations,
+        "schedule": {
+            "completion": {ids[t]: float(analysis.completion[t]) for t in range(graph.n_transitions)},
+            "start": {ids[t]: float(analysis.start[t]) for t in range(graph.n_transitions)},
+        },
+    }
+    return doc
+
+
+def estimate_section(model: Model, est: Estimate, lower: float) -> dict[str, Any]:
+    """Keys of DESIGN.md for an estimate from replications."""
+    ids = model.transition_ids
+    iv = est.interval
+    crit_p = est.criticality_places
+    section: dict[str, Any] = {
+        "cycle_time": iv.estimate,
+        "cycle_time_ci": [iv.low, iv.high],
+        "throughput": 1.0 / iv.estimate if iv.estimate > 0 else None,
+        "cycle_time_by_transition": {ids[t]: float(v) for t, v in enumerate(est.by_transition)},
+        "critical_circuits": [],
+        "bounds": {
+            "lower": lower,
+            "upper": max(lower, est.upper.high),
+            "lower_method": "cycle time of the mean durations (Baccelli et al. 1992, ch. 8)",
+            "upper_method": (f"subadditive bound E Z(K)/K at K = {est.firings} firings, upper end "
+                             "of its 95 % interval (Kingman 1973)"),
+        },
+        "firings_simulated": est.firings_simulated,
+        "cyclicity": None,
+        "exact": False,
+        "method": f"{est.engine}: {est.replications} replications of {est.firings} firings, "
+                  f"warm-up {est.warmup_firings} firings deleted (MSER-5), Student t interval",
+        "time_unit": model.time_unit,
+        "engine": est.engine,
+        "replications": est.replications,
+        "firings_per_replication": est.firings,
+        "warmup_firings": est.warmup_firings,
+        "relative_half_width": finite_or_none(iv.relative_half_width),
+        "precision_met": est.target_met,
+        "utilization": {ids[t]: float(u) for t, u in enumerate(est.utilization)},
+        "per_replication": [float(v) for v in est.per_replication],
+        "running_estimate": {
+            "work": [h[0] for h in est.history], "estimate": [h[1] for h in est.history],
+            "low": [h[2] for h in est.history], "high": [h[3] for h in est.history],
+        },
+    }
+    if crit_p is not None:
+        graph = model.graph()
+        trans = np.zeros(graph.n_transitions)
+        np.maximum.at(trans, graph.source, crit_p)
+        section["criticality"] = {
+            "places": [float(c) for c in crit_p],
+            "transitions": {ids[t]: float(c) for t, c in enumerate(trans)},
+            "definition": ("place: share of its target's firings whose start it set; transition: "
+                           "the largest share among its output places"),
+        }
+    return section
+
+
+def random_analysis_section(model: Model, exact: GraphAnalysis, est: Estimate) -> dict[str, Any]:
+    """The Lyapunov estimate, over the exact analysis of the mean durations.
+
+    Keys that only the exact analysis has (eigenvector, slack, certificate, charpoly, critical
+    circuits) describe the graph of the mean durations; ``mean_value_cycle_time`` is its cycle
+    time, the lower bound.
+    """
+    section = analysis_section(model, exact)
+    section["mean_value_cycle_time"] = section["cycle_time"]
+    section.update(estimate_section(model, est, exact.cycle_time))
+    section["critical_circuits"] = [[model.transition_ids[t] for t in c.transitions]
+                                    for c in exact.howard.circuits]
+    section["critical_circuits_basis"] = "mean durations"
+    return section
+
+
+def settings_section(seed: int, precision: float | None, replications: int | None,
+                     firings: int | None) -> dict[str, Any]:
+    """The settings of a run, for reproducibility."""
+    return {"seed": seed, "precision": precision, "replications": replications,
+            "firings_per_replication": firings}
+
+
+def _certificate_text(analysis: GraphAnalysis) -> str:
+    cert = analysis.certificate
+    state = "holds" if cert.holds else "FAILS"
+    return (
+        f"Certificate {state}: the critical circuits attain the cycle times (gap "
+        f"{cert.circuit_gap:.1e}), no circuit exceeds them (largest reduced weight "
+        f"{cert.max_reduced_weight:.1e}), and the eigenvector solves the recursion (residual "
+        f"{cert.eigen_residual:.1e}); tolerance {cert.tolerance:.1e}."
+    )
+
+
+def provenance(command_line: list[str] | None = None) -> dict[str, Any]:
+    """Versions, time and command line, for the reproducibility section."""
+    versions = {"python": platform.python_version()}
+    for dist in ("cyclecheck", "numpy", "scipy", "simpy", "pandas", "matplotlib"):
+        try:
+            versions[dist] = metadata.version(dist)
+        except metadata.PackageNotFoundError:  # pragma: no cover - partial installs
+            versions[dist] = None
+    argv = command_line if command_line is not None else sys.argv
+    return {
+        "document": DOCUMENT_KIND,
+        "schema_version": SCHEMA_VERSION,
+        "created": _dt.datetime.now(_dt.UTC).strftime("%Y-%m-%dT%H:%M:%SZ"),
+        "command_line": " ".join(["cyclecheck", *argv[1:]]) if argv else "cyclecheck",
+        "versions": versions,
+    }
+
+
+def dumps(document: Mapping[str, Any]) -> str:
+    """JSON text of a document: ``allow_nan=False`` proves no inf or NaN slipped through."""
+    return json.dumps(document, indent=2, allow_nan=False, default=_json_default)
+
+
+def _json_default(value: object) -> object:
+    if isinstance(value, np.integer):
+        return int(value)
+    if isinstance(value, np.floating):
+        return finite_or_none(float(value))
+    if isinstance(value, np.ndarray):
+        return value.tolist()
+    if isinstance(value, Path):
+        return str(value)
+    raise TypeError(f"not JSON serialisable: {type(value).__name__}")
+
+
+def file_sha256(path: Path) -> str:
+    """SHA-256 of a file's bytes."""
+    digest = hashlib.sha256()
+    with open(path, "rb") as fh:
+        for chunk in iter(lambda: fh.read(1 << 20), b""):
+            digest.update(chunk)
+    return digest.hexdigest()

@@ -1,0 +1,129 @@
+"""Readable text summaries of result documents, for the terminal."""
+
+from __future__ import annotations
+
+import math
+from typing import Any
+
+__all__ = ["analysis_text", "check_text", "simulation_text", "trace_text"]
+
+#: Slack rows shown in a summary (the smallest non-zero ones: the near-critical elements).
+TOP_SLACKS = 5
+
+
+def _num(x: float | None, digits: int = 6) -> str:
+    if x is None:
+        return "unbounded"
+    if x == 0:
+        return "0"
+    return f"{x:.{digits}g}"
+
+
+def _unit(doc: dict[str, Any]) -> str:
+    unit = doc.get("time_unit") or doc.get("model", {}).get("time_unit") or ""
+    return f" {unit}" if unit else ""
+
+
+def _estimate_lines(side: dict[str, Any], unit: str) -> list[str]:
+    lam = side["cycle_time"]
+    lo, hi = side["cycle_time_ci"]
+    lines = []
+    if side.get("exact"):
+        lines.append(f"cycle time     {_num(lam)}{unit} (exact)")
+    else:
+        half = (hi - lo) / 2
+        rel = f", ±{100 * half / lam:.2g} %" if lam else ""
+        lines.append(f"cycle time     {_num(lam)}{unit}  95 % CI [{_num(lo)}, {_num(hi)}]{rel}")
+    per = f" per{unit}" if unit else " per time unit"
+    lines.append(f"throughput     {_num(side['throughput'])} firings{per}")
+    bounds = side.get("bounds")
+    if bounds:
+        lines.append(f"bounds         {_num(bounds['lower'])} <= cycle time <= "
+                     f"{_num(bounds['upper'])}{unit}  ({bounds.get('upper_method', '')})".rstrip())
+    if side.get("firings_simulated"):
+        lines.append(f"firings        {side['firings_simulated']:,} simulated")
+    return lines
+
+
+def analysis_text(doc: dict[str, Any]) -> str:
+    """Summary of ``cyclecheck analyze``."""
+    unit = _unit(doc)
+    model = doc.get("model", {})
+    lines = [f"{model.get('name', 'model')}: {model.get('n_transitions', '?')} transitions, "
+             f"{model.get('n_places', '?')} places"]
+    lines += _estimate_lines(doc, unit)
+    by_t = doc["cycle_time_by_transition"]
+    if doc.get("strongly_connected") is False:
+        lines.append("not strongly connected: cycle times differ by transition")
+        shown = sorted(by_t.items(), key=lambda kv: -kv[1])[:TOP_SLACKS]
+        lines += [f"  {tid:<20} {_num(v)}{unit}" for tid, v in shown]
+    basis = doc.get("critical_circuits_basis")
+    for i, circuit in enumerate(doc.get("critical_circuits", [])[:3]):
+        head = "critical       " if i == 0 else "               "
+        tail = f"  (of the {basis})" if basis and i == 0 else ""
+        lines.append(head + " -> ".join(circuit) + f" -> {circuit[0]}{tail}")
+    if doc.get("cyclicity"):
+        lines.append(f"cyclicity      {doc['cyclicity']}")
+    if doc.get("transient_firings") is not None:
+        lines.append(f"transient      periodic from firing {doc['transient_firings']}")
+    slack = doc.get("slack", {}).get("transitions", {})
+    near = sorted((v, k) for k, v in slack.items() if v is not None and v > 0)[:TOP_SLACKS]
+    if near:
+        lines.append("smallest slack (duration increase before the cycle time changes):")
+        lines += [f"  {tid:<20} {_num(v)}{unit}" for v, tid in near]
+    cert = doc.get("certificate")
+    if cert:
+        lines.append(("certificate    checked: " if cert["checked"] else "certificate    FAILED: ")
+                     + f"residual {cert['eigen_residual']:.1e}")
+    crit = doc.get("criticality", {}) or {}
+    if crit.get("transitions"):
+        top = sorted(crit["transitions"].items(), key=lambda kv: -kv[1])[:TOP_SLACKS]
+        lines.append("criticality under variability (share of firings on the critical path):")
+        lines += [f"  {tid:<20} {100 * v:.1f} %" for tid, v in top]
+    return "\n".join(lines)
+
+
+def simulation_text(doc: dict[str, Any]) -> str:
+    """Summary of ``cyclecheck simulate``."""
+    unit = _unit(doc)
+    model = doc.get("model", {})
+    lines = [f"{model.get('name', 'model')}: SimPy simulation"]
+    lines += _estimate_lines(doc, unit)
+    util = doc.get("utilization") or {}
+    if util:
+        lines.append("utilization:")
+        lines += [f"  {tid:<20} {100 * u:.1f} %" for tid, u in
+                  sorted(util.items(), key=lambda kv: -kv[1])[:TOP_SLACKS]]
+    if doc.get("trace"):
+        lines.append(f"event log      {doc['trace']}")
+    return "\n".join(lines)
+
+
+def check_text(doc: dict[str, Any]) -> str:
+    """Summary of ``cyclecheck check``: the verdict first."""
+    unit = _unit(doc)
+    comp = doc["comparison"]
+    lines = [f"verdict        {comp['verdict'].upper()}"]
+    lines += [f"  - {r}" for r in comp["reasons"]]
+    lines.append("max-plus side:")
+    lines += ["  " + s for s in _estimate_lines(doc["analysis"], unit)]
+    lines.append("SimPy side:")
+    lines += ["  " + s for s in _estimate_lines(doc["simulation"], unit)]
+    sp = comp.get("sample_path", {})
+    if sp:
+        diff = sp.get("max_relative_difference")
+        lines.append(f"sample paths   {'identical' if sp.get('identical') else 'DIFFERENT'}: "
+                     f"{sp.get('firings_compared', 0):,} firings compared, largest relative "
+                     f"difference {diff if diff is None else f'{diff:.1e}'}")
+    return "\n".join(lines)
+
+
+def trace_text(doc: dict[str, Any]) -> str:
+    """Summary of ``cyclecheck trace``."""
+    lines = [f"verdict        {doc['verdict'].upper()}"]
+    lines += [f"  - {r}" for r in doc.get("reasons", [])]
+    est = doc.get("cycle_time_from_log")
+    if est is not None and math.isfinite(est):
+        model_value = _num(doc.get("cycle_time"))
+        lines.append(f"cycle time in log {_num(est)}{_unit(doc)}; model {model_value}")
+    return "\n".join(lines)
