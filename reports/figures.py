@@ -1,0 +1,369 @@
+"""The figures of the review page, drawn with matplotlib and returned as inline SVG.
+
+Every function takes plain data from the result document and returns one ``<svg>`` element as
+text, ready to be put into the page. The figures are built on :class:`matplotlib.figure.Figure`
+with the SVG canvas, so the global matplotlib backend and state are left alone, and inside
+:func:`matplotlib.rc_context`, so no global setting changes. The SVG is made deterministic
+(a fixed hash salt, no date) and self-contained: the XML prologue, the metadata block and the
+namespace URLs are stripped (the HTML parser knows inline SVG), ids are prefixed per figure so
+that several figures can share a page, and the font family is left to the page's stylesheet.
+
+Visual language: ink for the max-plus side, blue for the SimPy side, burnt orange for what is
+critical. Colour never carries meaning alone: critical arcs are thicker, critical bars hatched,
+the series have their own markers and dash patterns, and every figure has a legend in words.
+"""
+
+from __future__ import annotations
+
+import io
+import math
+import re
+from collections.abc import Mapping, Sequence
+from typing import Any
+
+from .layout import Drawing, place_labels, short_label
+
+__all__ = [
+    "graph_figure",
+    "replications_figure",
+    "running_estimate_figure",
+    "schedule_figure",
+    "transient_figure",
+]
+
+INK = "#1f2633"
+MUTED = "#767f8e"
+FAINT = "#d5d9e0"
+ACCENT = "#b5481c"
+ACCENT_TINT = "#f7e4d9"
+SIM = "#2b63a6"
+SIM_TINT = "#c9d8ea"
+#: Series colours for per-transition lines; each also has its own marker and dash pattern.
+SERIES = ["#1f2633", "#2b63a6", "#b5481c", "#6f4a94", "#7f6a2e", "#4f97c9", "#9a3a5c", "#3d7a6b"]
+MARKERS = ["o", "s", "^", "D", "v", "P", "X", "h"]
+DASHES = ["-", "--", "-.", ":", (0, (5, 1, 1, 1)), (0, (3, 1)), (0, (1, 1)), (0, (6, 2))]
+#: Most series drawn in one figure; the page says so when a document has more.
+MAX_SERIES = len(SERIES)
+MAX_GANTT_ROWS = 30
+
+_RC = {
+    "svg.hashsalt": "cyclecheck-report",
+    "svg.fonttype": "none",
+    "font.size": 8.5,
+    "axes.edgecolor": MUTED,
+    "axes.labelcolor": INK,
+    "axes.linewidth": 0.8,
+    "axes.spines.top": False,
+    "axes.spines.right": False,
+    "axes.grid": True,
+    "grid.color": FAINT,
+    "grid.linewidth": 0.6,
+    "xtick.color": MUTED,
+    "ytick.color": MUTED,
+    "xtick.labelcolor": INK,
+    "ytick.labelcolor": INK,
+    "legend.frameon": False,
+    "text.color": INK,
+    "text.usetex": False,
+}
+
+
+def _plain(text: str) -> str:
+    """Text for matplotlib: a ``$`` would start mathtext, so it is escaped."""
+    return text.replace("\\", "\\\\").replace("$", r"\$")
+
+
+def _new_figure(width: float, height: float) -> Any:
+    from matplotlib.backends.backend_svg import FigureCanvasSVG
+    from matplotlib.figure import Figure
+
+    fig = Figure(figsize=(width, height), layout="constrained")
+    FigureCanvasSVG(fig)
+    return fig
+
+
+_ID = re.compile(r'(\bid="|href="#|url\(#)([^")]+)')
+
+
+def _to_svg(fig: Any, key: str, label: str) -> str:
+    """Serialise a figure as a clean inline ``<svg>`` element."""
+    buffer = io.StringIO()
+    fig.savefig(buffer, format="svg", metadata={"Date": None})
+    text = buffer.getvalue()
+    text = text[text.index("<svg"):]
+    text = re.sub(r"<metadata>.*?</metadata>\s*", "", text, flags=re.S)
+    text = re.sub(r'\s+xmlns(:\w+)?="[^"]*"', "", text)
+    text = text.replace("xlink:href=", "href=")
+    text = re.sub(r"font-family:[^;\"]*;?\s*", "", text)
+    text = _ID.sub(lambda m: f"{m.group(1)}{key}-{m.group(2)}", text)
+    title = label.replace("&", "&amp;").replace("<", "&lt;").replace(">", "&gt;")
+    text = text.replace(
+        "<svg ", f'<svg class="figure" role="img" aria-label="{title.replace(chr(34), "&quot;")}" ',
+        1,
+    )
+    return text.strip() + "\n"
+
+
+def _render(key: str, label: str, draw: Any, width: float, height: float) -> str:
+    import matplotlib
+
+    with matplotlib.rc_context(_RC):
+        fig = _new_figure(width, height)
+        draw(fig)
+        return _to_svg(fig, key, label)
+
+
+def graph_figure(
+    drawing: Drawing,
+    place_text: Mapping[int, str],
+    key: str = "graph",
+) -> str:
+    """The event graph: transitions as boxes, places as circles with tokens, critical in bold.
+
+    Parameters
+    ----------
+    drawing
+        The layout, from :func:`cyclecheck.reports.layout.layout_graph`.
+    place_text
+        Text written beside each place (its slack or criticality, already formatted).
+    """
+    from matplotlib.lines import Line2D
+    from matplotlib.patches import Circle, FancyArrowPatch, FancyBboxPatch
+    from matplotlib.path import Path
+
+    xmin, xmax, ymin, ymax = drawing.bounds()
+    scale = 0.72  # inches per layout unit
+    width, height = (xmax - xmin + 0.6) * scale, (ymax - ymin + 0.6) * scale
+    if width > 9.0:  # large graphs shrink to the page width
+        width, height = 9.0, height * 9.0 / width
+    width, height = max(width, 4.5), min(max(height, 1.6), 9.0) + 0.45
+
+    def draw(fig: Any) -> None:
+        ax = fig.add_subplot()
+        ax.set_axis_off()
+        ax.set_aspect("equal")
+        ax.set_xlim(xmin - 0.3, xmax + 0.3)
+        ax.set_ylim(ymin - 0.3, ymax + 0.3)
+        for arc in drawing.arcs:
+            colour, lw = (ACCENT, 2.4) if arc.critical else (MUTED, 1.0)
+            codes = [Path.MOVETO] + [Path.CURVE3 if len(arc.points) == 3 else Path.CURVE4] * (
+                len(arc.points) - 1)
+            ax.add_patch(FancyArrowPatch(
+                path=Path(arc.points, codes), arrowstyle="-|>", mutation_scale=9 + lw * 2,
+                color=colour, linewidth=lw, zorder=1 + arc.critical))
+            ax.add_patch(Circle(arc.mid, 0.17, facecolor="white", edgecolor=colour,
+                                linewidth=lw * 0.7, zorder=3))
+            if arc.tokens in (1, 2):
+                offsets = [0.0] if arc.tokens == 1 else [-0.065, 0.065]
+                for off in offsets:
+                    ax.add_patch(Circle((arc.mid[0] + off, arc.mid[1]), 0.045, color=INK,
+                                        zorder=4))
+            elif arc.tokens > 2:
+                ax.text(arc.mid[0], arc.mid[1], str(arc.tokens), ha="center", va="center",
+                        fontsize=6.5, fontweight="bold", zorder=4)
+        for point, text, align in place_labels(drawing, place_text):
+            ax.text(point[0], point[1], _plain(text), ha=align, va="center", fontsize=8,
+                    color=INK, zorder=5)
+        half_w, half_h = drawing.box_width / 2, drawing.box_height / 2
+        for name, (x, y) in drawing.nodes.items():
+            critical = name in drawing.critical_transitions
+            ax.add_patch(FancyBboxPatch(
+                (x - half_w, y - half_h), 2 * half_w, 2 * half_h,
+                boxstyle="round,pad=0,rounding_size=0.12",
+                facecolor=ACCENT_TINT if critical else "white",
+                edgecolor=ACCENT if critical else INK,
+                linewidth=2.0 if critical else 0.9, zorder=6))
+            ax.text(x, y, _plain(short_label(name)), ha="center", va="center",
+                    fontsize=9, fontweight="bold" if critical else "normal", zorder=7)
+        handles = [
+            Line2D([], [], color=ACCENT, linewidth=2.4, label="critical circuit (thick)"),
+            Line2D([], [], color=MUTED, linewidth=1.0, label="other place"),
+            Line2D([], [], color=INK, marker="o", markersize=3, linestyle="none",
+                   label="token"),
+        ]
+        fig.legend(handles=handles, loc="outside lower center", ncols=3, fontsize=7.5)
+
+    return _render(key, "Event graph with the critical circuit highlighted", draw,
+                   width, height)
+
+
+def schedule_figure(
+    start: Mapping[str, float],
+    duration: Mapping[str, float],
+    cycle_time: float,
+    critical: set[str],
+    time_unit: str,
+    key: str = "schedule",
+) -> str:
+    """Gantt chart of the periodic schedule over two cycles (rows sorted by start time)."""
+    from matplotlib.patches import Patch
+
+    names = sorted(start, key=lambda t: (start[t], t))[:MAX_GANTT_ROWS]
+    height = 0.9 + 0.26 * len(names)
+
+    def draw(fig: Any) -> None:
+        ax = fig.add_subplot()
+        origin = min(start[t] for t in names)
+        for row, name in enumerate(names):
+            is_critical = name in critical
+            for cycle in range(2):
+                left = start[name] + cycle * cycle_time
+                ax.barh(row, duration.get(name, 0.0), left=left, height=0.62,
+                        color=ACCENT_TINT if is_critical else SIM_TINT,
+                        edgecolor=ACCENT if is_critical else SIM,
+                        hatch="////" if is_critical else None, linewidth=0.9)
+        for cycle, text in enumerate(("0", "λ", "2λ")):
+            ax.axvline(origin + cycle * cycle_time, color=INK, linewidth=0.8,
+                       linestyle=(0, (4, 3)))
+            ax.text(origin + cycle * cycle_time, -0.75, text, ha="center", va="bottom",
+                    fontsize=7.5, color=INK)
+        ax.set_yticks(range(len(names)), [_plain(short_label(t)) for t in names])
+        ax.set_ylim(len(names) - 0.3 + 0.6, -0.75)
+        ax.set_xlabel(_plain(f"time ({time_unit})" if time_unit else "time"))
+        ax.grid(axis="y", visible=False)
+        fig.legend(handles=[
+            Patch(facecolor=ACCENT_TINT, edgecolor=ACCENT, hatch="////",
+                  label="on a critical circuit (hatched)"),
+            Patch(facecolor=SIM_TINT, edgecolor=SIM, label="other transitions"),
+        ], loc="outside lower center", ncols=2, fontsize=7.5)
+
+    return _render(key, "Periodic schedule over two cycles", draw, 7.2, height + 0.5)
+
+
+def transient_figure(
+    k: Sequence[float],
+    recursion: Mapping[str, Sequence[float]],
+    simulation: Mapping[str, Sequence[float]] | None,
+    time_unit: str,
+    key: str = "transient",
+) -> str:
+    """x(k) − kλ against k: recursion as lines, simulation as hollow markers on top."""
+    from matplotlib.lines import Line2D
+    from matplotlib.ticker import MaxNLocator
+
+    names = list(recursion)[:MAX_SERIES]
+
+    def draw(fig: Any) -> None:
+        ax = fig.add_subplot()
+        every = max(1, math.ceil(len(k) / 40))
+        for i, name in enumerate(names):
+            ax.plot(k, recursion[name], color=SERIES[i], linestyle=DASHES[i], linewidth=1.3,
+                    marker=MARKERS[i], markersize=3.2, markevery=every,
+                    label=_plain(short_label(name)))
+            if simulation and name in simulation:
+                ax.plot(k, simulation[name], linestyle="none", marker=MARKERS[i],
+                        markersize=7, markerfacecolor="none", markeredgecolor=SERIES[i],
+                        markeredgewidth=0.9, markevery=every)
+        ax.set_xlabel("firing number k")
+        ax.xaxis.set_major_locator(MaxNLocator(integer=True))
+        unit = f" ({time_unit})" if time_unit else ""
+        ax.set_ylabel(_plain(f"x(k) − kλ{unit}"))
+        fig.legend(loc="outside right upper", fontsize=7.5, title="transition",
+                   title_fontsize=7.5)
+        how = [Line2D([], [], color=INK, linewidth=1.3, label="max-plus recursion (line)")]
+        if simulation:
+            how.append(Line2D([], [], color=INK, linestyle="none", marker="o", markersize=7,
+                              markerfacecolor="none", label="SimPy simulation (ring)"))
+        fig.legend(handles=how, loc="outside lower center", ncols=2, fontsize=7.5)
+
+    return _render(key, "Transient: x(k) minus k times the cycle time", draw, 7.2, 3.3)
+
+
+def _bound_lines(ax: Any, bounds: Mapping[str, float] | None, vertical: bool) -> list[Any]:
+    from matplotlib.lines import Line2D
+
+    handles = []
+    if not bounds:
+        return handles
+    for name, style, text in (("lower", (0, (5, 2)), "lower bound"),
+                              ("upper", (0, (1, 1.5)), "upper bound")):
+        value = bounds.get(name)
+        if value is None:
+            continue
+        line = ax.axvline if vertical else ax.axhline
+        line(value, color=ACCENT, linewidth=1.2, linestyle=style)
+        handles.append(Line2D([], [], color=ACCENT, linewidth=1.2, linestyle=style,
+                              label=text))
+    return handles
+
+
+def running_estimate_figure(
+    work: Sequence[float],
+    estimate: Sequence[float],
+    low: Sequence[float],
+    high: Sequence[float],
+    bounds: Mapping[str, float] | None,
+    time_unit: str,
+    key: str = "running",
+) -> str:
+    """The running cycle-time estimate and its 95 % interval against firings computed."""
+    from matplotlib.lines import Line2D
+    from matplotlib.patches import Patch
+
+    def draw(fig: Any) -> None:
+        ax = fig.add_subplot()
+        ax.fill_between(work, low, high, facecolor=SIM_TINT, edgecolor=SIM, linewidth=0.6,
+                        hatch="....")
+        ax.plot(work, estimate, color=INK, linewidth=1.5, marker="o", markersize=2.5)
+        handles = [Line2D([], [], color=INK, linewidth=1.5, marker="o", markersize=2.5,
+                          label="estimate"),
+                   Patch(facecolor=SIM_TINT, edgecolor=SIM, hatch="....",
+                         label="95 % interval (dotted band)")]
+        handles += _bound_lines(ax, bounds, vertical=False)
+        ax.set_xlabel("firings computed")
+        ax.set_ylabel(_plain(f"cycle time ({time_unit})" if time_unit else "cycle time"))
+        ax.ticklabel_format(axis="x", style="plain")
+        fig.legend(handles=handles, loc="outside lower center", ncols=4, fontsize=7.5)
+
+    return _render(key, "Running estimate of the cycle time with its interval", draw, 7.2, 3.0)
+
+
+def replications_figure(
+    estimates: Mapping[str, Sequence[float]],
+    intervals: Mapping[str, Sequence[float]],
+    bounds: Mapping[str, float] | None,
+    time_unit: str,
+    key: str = "replications",
+) -> str:
+    """Per-replication estimates, one row per engine, with the interval and the bounds."""
+    rows = [name for name in ("recursion", "simulation") if estimates.get(name)]
+    names = {"recursion": "max-plus recursion", "simulation": "SimPy simulation"}
+    style = {"recursion": (INK, "o"), "simulation": (SIM, "^")}
+
+    def draw(fig: Any) -> None:
+        from matplotlib.lines import Line2D
+
+        ax = fig.add_subplot()
+        handles = []
+        for row, name in enumerate(rows):
+            colour, marker = style[name]
+            values = list(estimates[name])
+            # Stack equal values so that they stay visible (a deterministic beeswarm).
+            seen: dict[float, int] = {}
+            ys = []
+            for value in values:
+                n = seen.get(round(value, 12), 0)
+                seen[round(value, 12)] = n + 1
+                ys.append(row + 0.09 * n)
+            ax.plot(values, ys, linestyle="none", marker=marker, markersize=5,
+                    markerfacecolor="none", markeredgecolor=colour, markeredgewidth=1.0)
+            interval = intervals.get(name)
+            if interval:
+                ax.plot(interval, [row - 0.22, row - 0.22], color=colour, linewidth=2.2,
+                        solid_capstyle="butt")
+                for end in interval:
+                    ax.plot([end, end], [row - 0.3, row - 0.14], color=colour, linewidth=1.2)
+            handles.append(Line2D([], [], linestyle="none", marker=marker, markersize=5,
+                                  markerfacecolor="none", markeredgecolor=colour,
+                                  label=f"{names[name]}: one replication"))
+        handles.append(Line2D([], [], color=INK, linewidth=2.2,
+                              label="95 % interval (bar above the points)"))
+        handles += _bound_lines(ax, bounds, vertical=True)
+        ax.set_yticks(range(len(rows)), [names[r] for r in rows])
+        ax.set_ylim(len(rows) - 0.4, -0.6)
+        ax.grid(axis="y", visible=False)
+        ax.set_xlabel(_plain(f"cycle time ({time_unit})" if time_unit else "cycle time"))
+        fig.legend(handles=handles, loc="outside lower center", ncols=2, fontsize=7.5)
+
+    return _render(key, "Per-replication estimates of the cycle time", draw, 7.2,
+                   1.6 + 0.55 * len(rows))

@@ -1,0 +1,269 @@
+"""Sample result documents for the renderer tests, built by hand from invented scenarios.
+
+``fixed_document()``: a bakery tray loop with fixed durations (6 transitions, 13 places).
+Three trays circulate: mix → proof → bake → cool → wrap and back to mix, with a quality check
+beside the cooling rack. Worked by hand with the semantics of DESIGN.md:
+
+* circuits: the tray loop has durations 4 + 9 + 12 + 6 + 3 = 34 and holds 0 + 1 + 0.5 + 0 + 5
+  = 6.5 on 3 tokens, so λ = 40.5 / 3 = 13.5 min; the loop through the check gives
+  (4 + 9 + 12 + 2.5 + 3 + 1 + 5) / 3 = 12.17; the single oven 12 / 1; the two proofing
+  cabinets 9 / 2 = 4.5. The tray loop is critical, throughput 1 / 13.5 = 0.07407 per min.
+* eigenvector (completion times, mix = 0): proof 9, bake 22, check 24.5, cool 28.5, wrap 31.5.
+  Periodic start = eigenvector − duration, shifted so that the first start is 0.
+* slack of a place: how much its hold may grow before λ changes (check → wrap: 4, the oven's
+  self-loop: 13.5 − 12 = 1.5); slack of a transition likewise for its duration.
+
+``random_document()``: a shuttle loop of four stops with two vehicles and random dwell and
+travel times. The lower bound is the cycle time of the mean durations: (3 + 1 + 2 + 2 + 4 +
+2.5 + 3 + 2) / 2 = 9.75 min. The estimates, intervals and replication values are invented
+(plausible, not computed): the renderer only shows them.
+
+The transients are computed with a small recursion below (the semantics of DESIGN.md), so
+that the figure shows a realistic curve; the renderer tests do not depend on its values.
+"""
+
+from __future__ import annotations
+
+import copy
+from typing import Any
+
+__all__ = ["fixed_document", "random_document", "transient"]
+
+
+def transient(
+    transitions: list[str],
+    duration: dict[str, float],
+    places: list[dict[str, Any]],
+    cycle_time: float,
+    firings: int,
+) -> dict[str, list[float]]:
+    """x_t(k) − kλ for k = 1..firings, from x_t(k) = d_t + max_p [x_u(k − m_p) + h_p]."""
+    x: dict[str, list[float]] = {t: [] for t in transitions}
+    for k in range(1, firings + 1):
+        # Token-free places need their source's firing k first: iterate to a fixed point
+        # (the token-free graph is acyclic, so len(transitions) passes are enough).
+        current: dict[str, float] = {}
+        for _ in range(len(transitions)):
+            for t in transitions:
+                terms = [0.0]
+                for p in places:
+                    if p["to"] != t:
+                        continue
+                    if k <= p["tokens"]:
+                        terms.append(0.0)
+                    elif p["tokens"] == 0:
+                        terms.append(current.get(p["from"], 0.0) + p["mean_hold"])
+                    else:
+                        terms.append(x[p["from"]][k - p["tokens"] - 1] + p["mean_hold"])
+                current[t] = duration[t] + max(terms)
+        for t in transitions:
+            x[t].append(current[t])
+    return {t: [round(v - (k + 1) * cycle_time, 6) for k, v in enumerate(x[t])]
+            for t in transitions}
+
+
+def _place(index: int, source: str, target: str, tokens: int, hold: float | str,
+           mean_hold: float, label: str = "") -> dict[str, Any]:
+    return {"index": index, "from": source, "to": target, "tokens": tokens,
+            "hold": str(hold), "mean_hold": mean_hold, "label": label}
+
+
+_VERSIONS = {"cyclecheck": "0.1.0", "python": "3.11.7", "numpy": "1.26.4", "scipy": "1.11.4",
+             "simpy": "4.1.1", "matplotlib": "3.8.2"}
+
+
+def fixed_document() -> dict[str, Any]:
+    """A `check` result for the bakery tray loop (fixed durations)."""
+    durations = {"mix": 4.0, "proof": 9.0, "bake": 12.0, "check": 2.5, "cool": 6.0, "wrap": 3.0}
+    labels = {"mix": "Dough mixer", "proof": "Proofing cabinets", "bake": "Tunnel oven",
+              "check": "Quality check", "cool": "Cooling rack", "wrap": "Wrapping"}
+    places = [
+        _place(0, "mix", "proof", 0, 0, 0.0, "dough to cabinet"),
+        _place(1, "proof", "bake", 0, 1, 1.0, "transfer"),
+        _place(2, "bake", "cool", 0, 0.5, 0.5, "rack"),
+        _place(3, "bake", "check", 0, 0, 0.0, "sample"),
+        _place(4, "cool", "wrap", 0, 0, 0.0),
+        _place(5, "check", "wrap", 0, 0, 0.0, "release"),
+        _place(6, "wrap", "mix", 3, 5, 5.0, "tray return"),
+        _place(7, "mix", "mix", 1, 0, 0.0, "one mixer"),
+        _place(8, "proof", "proof", 2, 0, 0.0, "two cabinets"),
+        _place(9, "bake", "bake", 1, 0, 0.0, "one oven"),
+        _place(10, "check", "check", 1, 0, 0.0),
+        _place(11, "cool", "cool", 1, 0, 0.0),
+        _place(12, "wrap", "wrap", 1, 0, 0.0),
+    ]
+    names = list(durations)
+    eigen = {"mix": 0.0, "proof": 9.0, "bake": 22.0, "check": 24.5, "cool": 28.5, "wrap": 31.5}
+    start = {t: eigen[t] - durations[t] + 4.0 for t in names}
+    lam = 13.5
+    curve = transient(names, durations, places, lam, 18)
+    return {
+        "document": "cyclecheck-result",
+        "schema_version": 1,
+        "command": "check",
+        "command_line": "cyclecheck check models/bakery.toml --seed 7 --report bakery.html",
+        "created": "2026-12-01T23:00:00Z",
+        "versions": dict(_VERSIONS),
+        "model": {
+            "name": "Bakery tray loop",
+            "time_unit": "min",
+            "description": "Three trays circulate through mixing, proofing, baking, cooling "
+                           "and wrapping; a quality check samples every batch.",
+            "path": "models/bakery.toml",
+            "sha256": "3f1c9a0e7b2d4c6f8a1e3b5d7c9f0a2b4d6e8f0a1c3e5b7d9f1a3c5e7b9d1f3a",
+            "n_transitions": 6,
+            "n_places": 13,
+            "is_random": False,
+            "transitions": [{"id": t, "label": labels[t], "duration": f"{durations[t]:g}",
+                             "mean_duration": durations[t]} for t in names],
+            "places": places,
+        },
+        "settings": {"seed": 7, "precision": 0.01, "replications": 1,
+                     "firings_per_replication": 2000, "warmup": 0},
+        "analysis": {
+            "cycle_time": lam,
+            "cycle_time_ci": [lam, lam],
+            "throughput": 1 / lam,
+            "cycle_time_by_transition": dict.fromkeys(names, lam),
+            "critical_circuits": [["mix", "proof", "bake", "cool", "wrap"]],
+            "cyclicity": 3,
+            "bounds": None,
+            "firings_simulated": 12000,
+            "exact": True,
+            "eigenvector": eigen,
+            "slack": {
+                "transitions": {"mix": 0.0, "proof": 0.0, "bake": 0.0, "check": 4.0,
+                                "cool": 0.0, "wrap": 0.0},
+                "places": [0.0, 0.0, 0.0, 4.0, 0.0, 4.0, 0.0, 9.5, 18.0, 1.5, 11.0, 7.5, 10.5],
+            },
+            "certificate": {"checked": True, "circuit_ratio": lam, "eigen_residual": 0.0,
+                            "max_reduced_weight": 0.0,
+                            "text": "The tray loop has ratio 40.5/3 = 13.5 and the eigenvector "
+                                    "satisfies A ⊗ v = 13.5 ⊗ v with residual 0."},
+            "charpoly": {"corners": [[13.5, 3], [12.0, 1], [7.5, 1], [4.5, 2], [3.0, 1]],
+                         "terms": [[8, 0.0], [5, 40.5], [4, 52.5], [3, 60.0], [1, 69.0],
+                                   [0, 72.0]]},
+            "transient_firings": 3,
+            "criticality": None,
+            "utilization": {"mix": 0.2963, "proof": 0.3333, "bake": 0.8889, "check": 0.1852,
+                            "cool": 0.4444, "wrap": 0.2222},
+        },
+        "simulation": {
+            "cycle_time": lam, "cycle_time_ci": [lam, lam], "throughput": 1 / lam,
+            "firings_simulated": 12000,
+            "utilization": {"mix": 0.2963, "proof": 0.3333, "bake": 0.8889, "check": 0.1852,
+                            "cool": 0.4444, "wrap": 0.2222},
+            "criticality": None,
+        },
+        "comparison": {
+            "verdict": "agrees",
+            "reasons": ["SimPy cycle time 13.5 equals the max-plus eigenvalue 13.5.",
+                        "All 12,000 firing times are identical in both engines."],
+            "sample_path": {"identical": True, "max_relative_difference": 0.0,
+                            "firings_compared": 12000, "replications_compared": 1},
+        },
+        "figures": {
+            "transient": {"k": list(range(1, 19)), "recursion": curve,
+                          "simulation": copy.deepcopy(curve)},
+            "schedule": {"cycle_time": lam, "start": start, "duration": dict(durations)},
+            "running_estimate": None,
+            "replication_estimates": None,
+        },
+    }
+
+
+def random_document() -> dict[str, Any]:
+    """A `check` result for a shuttle loop with random dwell and travel times."""
+    transitions = [
+        {"id": "dock", "label": "Loading dock", "duration": "gamma(mean=3, cv=0.5)",
+         "mean_duration": 3.0},
+        {"id": "gate", "label": "Gate", "duration": "1", "mean_duration": 1.0},
+        {"id": "yard", "label": "Yard stop", "duration": "exponential(mean=2)",
+         "mean_duration": 2.0},
+        {"id": "depot", "label": "Depot", "duration": "uniform(low=1, high=3)",
+         "mean_duration": 2.0},
+    ]
+    places = [
+        _place(0, "dock", "gate", 1, "lognormal(mean=4, cv=0.3)", 4.0, "outbound link"),
+        _place(1, "gate", "yard", 0, 2.5, 2.5, "yard road"),
+        _place(2, "yard", "depot", 0, "gamma(mean=3, cv=0.4)", 3.0, "depot road"),
+        _place(3, "depot", "dock", 1, 2, 2.0, "return link"),
+        _place(4, "dock", "dock", 1, 0, 0.0, "one berth"),
+    ]
+    names = [t["id"] for t in transitions]
+    mean = {t["id"]: t["mean_duration"] for t in transitions}
+    lam = 10.62
+    curve = transient(names, mean, places, 9.75, 24)
+    replications = [10.48, 10.71, 10.55, 10.93, 10.37, 10.66, 10.81, 10.52, 10.74, 10.44]
+    work = [2000 * i for i in range(1, 11)]
+    estimate = [10.91, 10.74, 10.69, 10.65, 10.61, 10.64, 10.63, 10.61, 10.62, 10.62]
+    half = [0.62, 0.44, 0.36, 0.31, 0.28, 0.26, 0.24, 0.22, 0.21, 0.21]
+    return {
+        "document": "cyclecheck-result",
+        "schema_version": 1,
+        "command": "check",
+        "command_line": "cyclecheck check models/shuttle.toml --seed 42 --precision 0.02",
+        "created": "2026-12-02T09:30:00Z",
+        "versions": dict(_VERSIONS),
+        "model": {
+            "name": "Shuttle loop",
+            "time_unit": "min",
+            "description": "Two shuttles serve a loading dock, a gate, a yard stop and a depot.",
+            "path": "models/shuttle.toml",
+            "sha256": "9b2e4d6f8a0c1e3f5a7b9d1c3e5f7a9b0d2f4a6c8e0b2d4f6a8c0e2b4d6f8a0c",
+            "n_transitions": 4,
+            "n_places": 5,
+            "is_random": True,
+            "transitions": transitions,
+            "places": places,
+        },
+        "settings": {"seed": 42, "precision": 0.02, "replications": 10,
+                     "firings_per_replication": 2000, "warmup": 200},
+        "analysis": {
+            "cycle_time": lam,
+            "cycle_time_ci": [10.41, 10.83],
+            "throughput": 1 / lam,
+            "cycle_time_by_transition": dict.fromkeys(names, lam),
+            "critical_circuits": [["dock", "gate", "yard", "depot"]],
+            "cyclicity": None,
+            "bounds": {"lower": 9.75, "upper": 12.64},
+            "firings_simulated": 80000,
+            "exact": False,
+            "eigenvector": None,
+            "slack": {"transitions": dict.fromkeys(names, 0.0),
+                      "places": [0.0, 0.0, 0.0, 0.0, 16.5]},
+            "certificate": {"checked": False, "circuit_ratio": 9.75, "eigen_residual": 0.0,
+                            "max_reduced_weight": 0.0,
+                            "text": "Bounds only: the lower bound is the cycle time of the "
+                                    "mean durations."},
+            "charpoly": {"skipped": "durations are random"},
+            "transient_firings": None,
+            "criticality": {"transitions": {"dock": 0.91, "gate": 0.88, "yard": 0.86,
+                                            "depot": 0.87},
+                            "places": [0.88, 0.86, 0.87, 0.84, 0.07]},
+            "utilization": {"dock": 0.2825, "gate": 0.0942, "yard": 0.1883, "depot": 0.1883},
+        },
+        "simulation": {
+            "cycle_time": lam, "cycle_time_ci": [10.41, 10.83], "throughput": 1 / lam,
+            "firings_simulated": 80000,
+            "utilization": {"dock": 0.2825, "gate": 0.0942, "yard": 0.1883, "depot": 0.1883},
+            "criticality": None,
+        },
+        "comparison": {
+            "verdict": "agrees",
+            "reasons": ["The estimates of both engines are equal on the same random draws.",
+                        "The estimate lies between the bounds 9.75 and 12.64."],
+            "sample_path": {"identical": True, "max_relative_difference": 0.0,
+                            "firings_compared": 80000, "replications_compared": 10},
+        },
+        "figures": {
+            "transient": {"k": list(range(1, 25)), "recursion": curve,
+                          "simulation": copy.deepcopy(curve)},
+            "schedule": None,
+            "running_estimate": {"work": work, "estimate": estimate,
+                                 "low": [e - h for e, h in zip(estimate, half, strict=True)],
+                                 "high": [e + h for e, h in zip(estimate, half, strict=True)]},
+            "replication_estimates": {"recursion": replications,
+                                      "simulation": list(replications)},
+        },
+    }

@@ -1,0 +1,491 @@
+"""The review page: content, escaping, determinism, self-containment and safe writing.
+
+The sample documents come from ``tests/report_documents.py`` (hand-built, invented scenarios).
+The page is parsed with the standard library's :mod:`html.parser` (the reference parser here);
+the expected texts are written out by hand from the documents and the formatting rule in the
+docstring of :mod:`cyclecheck.reports.page` (4 significant digits, 6 for an exact cycle time,
+thousands separators, true minus signs).
+"""
+
+from __future__ import annotations
+
+import json
+import math
+import os
+import re
+import subprocess
+import sys
+from html.parser import HTMLParser
+from pathlib import Path
+from typing import Any
+
+import pytest
+from cyclecheck.reports import layout
+from cyclecheck.reports.page import ReportError, fmt, is_report, render_page, write_page
+from hypothesis import HealthCheck, given, settings
+from hypothesis import strategies as st
+
+from tests.report_documents import fixed_document, random_document
+from tests.strategies import live_event_graphs
+
+
+class _Page(HTMLParser):
+    """Collects the visible text, the ids, the tags and the attributes of a page."""
+
+    def __init__(self) -> None:
+        super().__init__(convert_charrefs=True)
+        self.text: list[str] = []
+        self.ids: list[str] = []
+        self.tags: list[str] = []
+        self.attributes: list[tuple[str, str, str]] = []
+        self._skip = 0
+
+    def handle_starttag(self, tag: str, attrs: list[tuple[str, str | None]]) -> None:
+        self.tags.append(tag)
+        for name, value in attrs:
+            self.attributes.append((tag, name, value or ""))
+            if name == "id":
+                self.ids.append(value or "")
+        if tag in ("style", "script"):
+            self._skip += 1
+
+    def handle_endtag(self, tag: str) -> None:
+        if tag in ("style", "script"):
+            self._skip -= 1
+
+    def handle_data(self, data: str) -> None:
+        if not self._skip:
+            self.text.append(data)
+
+
+def parse(page: str) -> _Page:
+    parser = _Page()
+    parser.feed(page)
+    parser.close()
+    return parser
+
+
+def visible_text(page: str) -> str:
+    """The text of the page with runs of white space (including no-break spaces) as one space."""
+    return re.sub(r"[\s\u00a0\u202f]+", " ", " ".join(parse(page).text))
+
+
+@pytest.fixture(scope="module")
+def fixed_page() -> str:
+    return render_page(fixed_document())
+
+
+@pytest.fixture(scope="module")
+def random_page() -> str:
+    return render_page(random_document())
+
+
+# --- content -------------------------------------------------------------------------------
+
+FIXED_TEXTS = [
+    "Bakery tray loop",
+    "Agrees",
+    "SimPy cycle time 13.5 equals the max-plus eigenvalue 13.5.",  # a reason, verbatim
+    "13.5 min",  # cycle time with its unit
+    "exact: the max-plus eigenvalue",
+    "0.07407 per min",  # throughput 1/13.5 to 4 significant digits
+    "mix → proof → bake → cool → wrap → mix",  # the critical circuit, closed
+    "12,000",  # firings simulated
+    "cyclicity 3 firings",
+    "88.9 %",  # utilization of the oven, 12/13.5
+    "32.5",  # periodic start of wrap
+    "10.5",  # slack of wrap's self-loop
+    "Identical sample paths.",
+    "strongest validation the tool offers",
+    "same firing times on the same random draws",
+    "12,000 firings in 1 replication,",
+    "χ(z) = z⁸ ⊕ 40.5 ⊗ z⁵ ⊕ 52.5 ⊗ z⁴ ⊕ 60 ⊗ z³ ⊕ 69 ⊗ z ⊕ 72",
+    "The tray loop has ratio 40.5/3 = 13.5",
+    "cyclecheck check models/bakery.toml --seed 7 --report bakery.html",
+    "3f1c9a0e7b2d4c6f8a1e3b5d7c9f0a2b4d6e8f0a1c3e5b7d9f1a3c5e7b9d1f3a",
+    "python 3.11.7",
+    "simpy 4.1.1",
+    "2026-12-01T23:00:00Z",
+    "a rail timetable, a plant's capacity",
+    "sign-off of a responsible engineer",
+    "model-based",
+]
+
+RANDOM_TEXTS = [
+    "Shuttle loop",
+    "Agrees",
+    "10.62 min",  # the estimate
+    "95 % interval 10.41 – 10.83 min",
+    "0.09416 per min",  # 1/10.62
+    "9.75 – 12.64 min",  # the bounds card
+    "lower 9.75 min",
+    "upper 12.64 min",
+    "80,000 firings in 10 replications,",
+    "gamma(mean=3, cv=0.5)",
+    "lognormal(mean=4, cv=0.3)",
+    "91.0 %",  # criticality of the dock
+    "16.5",  # slack of the berth
+    "target 2.0 %",  # the precision setting
+    "10 replications",
+    "Lyapunov exponent",
+    "No periodic schedule",
+    "not computed (durations are random)",
+]
+
+
+@pytest.mark.parametrize("expected", FIXED_TEXTS)
+def test_fixed_page_shows_the_key_numbers(fixed_page: str, expected: str) -> None:
+    """Every key number and statement of the fixed-duration document is visible text."""
+    assert expected in visible_text(fixed_page)
+
+
+@pytest.mark.parametrize("expected", RANDOM_TEXTS)
+def test_random_page_shows_the_key_numbers(random_page: str, expected: str) -> None:
+    """Every key number and statement of the random-duration document is visible text."""
+    assert expected in visible_text(random_page)
+
+
+def test_verdict_comes_first(fixed_page: str) -> None:
+    """The verdict is the first section of the main part, before any number."""
+    main = fixed_page[fixed_page.index("<main>"):]
+    assert main.index('id="verdict"') < main.index('id="numbers"') < main.index('id="graph"')
+
+
+def test_disagreement_is_said_in_words_not_colour() -> None:
+    """A disagreeing verdict has its mark and its word, and the reasons are listed."""
+    document = fixed_document()
+    document["comparison"]["verdict"] = "disagrees"
+    document["comparison"]["reasons"] = ["SimPy cycle time 14.1 is outside [13.5, 13.5]."]
+    document["comparison"]["sample_path"]["identical"] = False
+    document["comparison"]["sample_path"]["max_relative_difference"] = 0.0123
+    text = visible_text(render_page(document))
+    assert "✗ Disagrees" in text
+    assert "SimPy cycle time 14.1 is outside [13.5, 13.5]." in text
+    assert "The sample paths differ." in text and "0.0123" in text
+
+
+def test_analysis_only_document_renders() -> None:
+    """A document of `analyze` (no simulation, no comparison) gives a page without a verdict."""
+    document = fixed_document()
+    for key in ("simulation", "comparison"):
+        del document[key]
+    document["command"] = "analyze"
+    text = visible_text(render_page(document))
+    assert "Analysis only" in text and "13.5 min" in text
+    assert "Sample-path identity" not in text
+
+
+def test_figures_are_numbered_and_inline(fixed_page: str, random_page: str) -> None:
+    """Each figure holds one inline SVG; the fixed page has 3 figures, the random page 4."""
+    for page, count in ((fixed_page, 3), (random_page, 4)):
+        tags = parse(page).tags
+        assert tags.count("figure") == count
+        assert tags.count("svg") == count
+        assert f"Figure {count}" in visible_text(page)
+
+
+def test_ids_are_unique(fixed_page: str, random_page: str) -> None:
+    """Several SVG figures share one page: their ids (clip paths, markers) must not clash."""
+    for page in (fixed_page, random_page):
+        ids = parse(page).ids
+        assert len(ids) == len(set(ids))
+        # every local reference points at an id of the page
+        for ref in re.findall(r'(?:href="#|url\(#)([^")]+)', page):
+            assert ref in ids
+
+
+# --- escaping ------------------------------------------------------------------------------
+
+def _rename(document: dict[str, Any], old: str, new: str) -> dict[str, Any]:
+    """The document with transition id ``old`` replaced by ``new`` everywhere."""
+    text = json.dumps(document, ensure_ascii=False)
+    return json.loads(text.replace(json.dumps(old), json.dumps(new, ensure_ascii=False)))
+
+
+def test_text_from_the_model_is_escaped() -> None:
+    """Names, labels, descriptions and ids with markup come out as text, never as tags."""
+    document = _rename(fixed_document(), "check", "<i>chk</i>")
+    document["model"]["name"] = '<b>x</b> & "y"'
+    document["model"]["description"] = "<img src=x onerror=alert(1)>"
+    document["model"]["transitions"][0]["label"] = "<script>alert(1)</script>"
+    document["comparison"]["reasons"] = ["<em>raw</em>"]
+    page = render_page(document)
+    for raw in ("<b>x</b>", "<i>chk</i>", "<img", "<script", "<em>raw</em>"):
+        assert raw not in page
+    assert "&lt;b&gt;x&lt;/b&gt; &amp; &quot;y&quot;" in page
+    text = visible_text(page)
+    assert '<b>x</b> & "y"' in text  # shown as text
+    assert "<i>chk</i>" in text  # in the tables and in the figures
+    assert "script" not in parse(page).tags
+
+
+def test_dollar_signs_are_not_mathtext() -> None:
+    """A `$` in an id is text for matplotlib too (it would otherwise start mathtext)."""
+    page = render_page(_rename(fixed_document(), "wrap", "pack$1$"))
+    svg_text = " ".join(re.findall(r"<text[^>]*>([^<]*)</text>", page))
+    assert "pack$1$" in svg_text
+
+
+# --- determinism and self-containment ------------------------------------------------------
+
+def test_rendering_is_deterministic(fixed_page: str, random_page: str) -> None:
+    """The same document gives byte-identical pages, here and in a fresh interpreter."""
+    assert render_page(fixed_document()) == fixed_page
+    assert render_page(random_document()) == random_page
+    code = ("import sys; from tests.report_documents import random_document;"
+            "from cyclecheck.reports.page import render_page;"
+            "sys.stdout.write(render_page(random_document()))")
+    env = dict(os.environ, PYTHONHASHSEED="12345")
+    root = Path(__file__).resolve().parent.parent
+    out = subprocess.run([sys.executable, "-c", code], cwd=root, env=env, check=True,
+                         capture_output=True, text=True, encoding="utf-8").stdout
+    assert out == random_page
+
+
+EXTERNAL = re.compile(r"https?:|ftp:|file:|//[\w.-]+|@import|<script|<link|<iframe|<object"
+                      r"|<embed|<img|<base|<audio|<video|<source", re.I)
+
+
+def test_no_external_references(fixed_page: str, random_page: str) -> None:
+    """No URL, no script, no fetched resource: only local `#` references."""
+    for page in (fixed_page, random_page):
+        assert not EXTERNAL.search(page), EXTERNAL.search(page)
+        for tag, name, value in parse(page).attributes:
+            if name in ("href", "src", "xlink:href"):
+                assert value.startswith("#"), (tag, name, value)
+            assert not name.startswith("on"), (tag, name)
+        for url in re.findall(r"url\(([^)]*)\)", page):
+            assert url.startswith("#")
+
+
+def test_marker_recognises_our_pages(tmp_path: Path, fixed_page: str) -> None:
+    """A written page is recognised as ours; other HTML is not."""
+    ours = tmp_path / "ours.html"
+    ours.write_text(fixed_page, encoding="utf-8")
+    other = tmp_path / "other.html"
+    other.write_text("<!DOCTYPE html>\n<html><body>cyclecheck-report</body></html>\n")
+    assert is_report(ours)
+    assert not is_report(other)
+    assert not is_report(tmp_path / "missing.html")
+
+
+# --- writing -------------------------------------------------------------------------------
+
+def _leftovers(folder: Path, keep: set[str]) -> list[str]:
+    return sorted(p.name for p in folder.iterdir() if p.name not in keep)
+
+
+def test_write_new_and_replace_report(tmp_path: Path) -> None:
+    """A new page is written; a previous report is replaced without `force`."""
+    target = tmp_path / "review.html"
+    assert write_page(fixed_document(), target) == target
+    first = target.read_text(encoding="utf-8")
+    assert first == render_page(fixed_document())
+    write_page(random_document(), target)
+    assert target.read_text(encoding="utf-8") == render_page(random_document())
+    assert _leftovers(tmp_path, {"review.html"}) == []
+
+
+def test_refuses_to_overwrite_a_foreign_file(tmp_path: Path) -> None:
+    """An existing file that is not a report is kept; the error names the path and the rule."""
+    target = tmp_path / "notes.html"
+    target.write_text("my own notes\n")
+    with pytest.raises(ReportError) as caught:
+        write_page(fixed_document(), target)
+    message = str(caught.value)
+    assert str(target) in message
+    assert "not a cyclecheck report page" in message and "force" in message
+    assert caught.value.item == "output" and caught.value.path == str(target)
+    assert target.read_text() == "my own notes\n"
+    write_page(fixed_document(), target, force=True)
+    assert is_report(target)
+    assert _leftovers(tmp_path, {"notes.html"}) == []
+
+
+def test_refuses_a_folder(tmp_path: Path) -> None:
+    """A folder as the output path is an error naming it."""
+    with pytest.raises(ReportError, match="is a folder"):
+        write_page(fixed_document(), tmp_path)
+
+
+def test_failed_write_keeps_the_old_page(tmp_path: Path, monkeypatch: pytest.MonkeyPatch
+                                         ) -> None:
+    """An exception while writing leaves the old file as it was and no temporary file."""
+    target = tmp_path / "review.html"
+    write_page(fixed_document(), target)
+    old = target.read_bytes()
+
+    def broken_fsync(fd: int) -> None:
+        raise OSError(28, "No space left on device")
+
+    monkeypatch.setattr(os, "fsync", broken_fsync)
+    with pytest.raises(OSError, match="No space left"):
+        write_page(random_document(), target)
+    assert target.read_bytes() == old
+    assert _leftovers(tmp_path, {"review.html"}) == []
+
+
+def test_failed_rendering_keeps_the_old_page(tmp_path: Path) -> None:
+    """A document that cannot be rendered raises before anything is written."""
+    target = tmp_path / "review.html"
+    write_page(fixed_document(), target)
+    old = target.read_bytes()
+    broken = fixed_document()
+    broken["figures"]["schedule"]["start"] = "not a mapping"
+    with pytest.raises(ReportError):
+        write_page(broken, target)
+    assert target.read_bytes() == old
+    assert _leftovers(tmp_path, {"review.html"}) == []
+
+
+# --- bad documents -------------------------------------------------------------------------
+
+@pytest.mark.parametrize(
+    ("change", "item", "rule"),
+    [
+        (lambda d: d.update(document="something-else"), "document", "'cyclecheck-result'"),
+        (lambda d: d.update(schema_version=2), "schema_version", "version 2 is not supported"),
+        (lambda d: d["model"].pop("name"), "model.name", "model name is required"),
+        (lambda d: d["model"]["places"][3].update({"to": "nowhere"}), "model.places[3].to",
+         "must name a transition"),
+        (lambda d: d["model"]["places"][0].update(tokens=-1), "model.places[0].tokens",
+         "integer >= 0"),
+        (lambda d: d["comparison"].update(verdict="maybe"), "comparison.verdict",
+         "'agrees' or 'disagrees'"),
+        (lambda d: [d.pop("analysis"), d.pop("simulation")], "analysis",
+         "needs an analysis or a simulation"),
+    ],
+)
+def test_bad_documents_are_named(change: Any, item: str, rule: str) -> None:
+    """Each broken rule raises ReportError whose text names the item and the rule."""
+    document = fixed_document()
+    change(document)
+    with pytest.raises(ReportError) as caught:
+        render_page(document)
+    assert caught.value.item == item
+    assert str(caught.value) == f"result document: {item}: {caught.value.rule}"
+    assert rule in str(caught.value)
+
+
+# --- number formatting ---------------------------------------------------------------------
+
+@pytest.mark.parametrize(
+    ("value", "digits", "expected"),
+    [
+        (13.5, 4, "13.5"), (1 / 13.5, 4, "0.07407"), (37 / 3, 6, "12.3333"),
+        (12000, 4, "12,000"), (12000.0, 4, "12,000"), (-0.25, 4, "−0.25"), (0.0, 4, "0"),
+        (2.5e-5, 4, "2.5×10⁻⁵"), (math.inf, 4, "∞"), (None, 4, "–"), (9999.4, 4, "9,999"),
+    ],
+)
+def test_fmt(value: Any, digits: int, expected: str) -> None:
+    """Numbers: significant digits, separators, true minus, small numbers with a power of 10."""
+    assert fmt(value, digits) == expected
+
+
+# --- layout --------------------------------------------------------------------------------
+
+def _specs(graph: Any) -> tuple[list[str], list[layout.PlaceSpec]]:
+    ids = [f"t{i}" for i in range(graph.n_transitions)]
+    places = [layout.PlaceSpec(p, ids[int(graph.source[p])], ids[int(graph.target[p])],
+                               int(graph.tokens[p])) for p in range(graph.n_places)]
+    return ids, places
+
+
+@settings(max_examples=150, deadline=None, suppress_health_check=[HealthCheck.too_slow])
+@given(live_event_graphs(max_transitions=12, max_places=30))
+def test_layout_properties(graph: Any) -> None:
+    """Every transition gets its own spot and every place an arc; in the layered layout each
+    token-free place points strictly to the right (token-free places form an acyclic graph in
+    a live event graph: Baccelli et al., Synchronization and Linearity, 1992, §2.5)."""
+    ids, places = _specs(graph)
+    drawing = layout.layout_graph(ids, places)
+    assert set(drawing.nodes) == set(ids)
+    spots = {(round(x, 6), round(y, 6)) for x, y in drawing.nodes.values()}
+    assert len(spots) == len(ids)
+    assert sorted(a.place for a in drawing.arcs) == list(range(len(places)))
+    assert not drawing.partial
+    if drawing.kind == "layered":
+        for p in places:
+            if p.tokens == 0 and p.source != p.target:
+                assert drawing.nodes[p.target][0] > drawing.nodes[p.source][0]
+    for arc in drawing.arcs:
+        assert all(math.isfinite(c) for point in arc.points for c in point)
+
+
+def test_ring_is_drawn_as_a_circle() -> None:
+    """A loop of stops (self-loops aside) is laid out on a circle, in circuit order."""
+    ids = ["a", "b", "c", "d"]
+    places = [layout.PlaceSpec(i, s, t, m) for i, (s, t, m) in enumerate(
+        [("a", "b", 1), ("b", "c", 0), ("c", "d", 0), ("d", "a", 1), ("a", "a", 1)])]
+    drawing = layout.layout_graph(ids, places, [ids])
+    assert drawing.kind == "circle"
+    angles = [math.atan2(y, x) for x, y in (drawing.nodes[t] for t in ids)]
+    # clockwise from the top: each angle is smaller than the previous one, modulo a turn
+    steps = [(angles[i] - angles[i + 1]) % (2 * math.pi) for i in range(3)]
+    assert all(0 < s < math.pi for s in steps)
+
+
+def test_critical_place_among_parallels_is_the_one_without_slack() -> None:
+    """Between two critical transitions, the parallel place with the least slack is marked."""
+    places = [layout.PlaceSpec(0, "a", "b", 0), layout.PlaceSpec(1, "a", "b", 1),
+              layout.PlaceSpec(2, "b", "a", 1)]
+    assert layout.choose_critical_places([["a", "b"]], places, [2.0, 0.0, 0.0]) == {1, 2}
+    assert layout.choose_critical_places([["a", "b"]], places, None) == {0, 1, 2}
+
+
+def _large_document(n: int) -> dict[str, Any]:
+    """A closed line of n stations with one slow station (s17, duration 30): its self-loop
+    is the critical circuit (30 / 1 token) as long as the loop is faster per token."""
+    document = fixed_document()
+    ids = [f"s{i}" for i in range(n)]
+    places = []
+    for i, t in enumerate(ids):
+        places.append({"index": len(places), "from": t, "to": ids[(i + 1) % n],
+                       "tokens": 2 if i == n - 1 else 0, "hold": "0", "mean_hold": 0.0})
+    for t in ids:
+        places.append({"index": len(places), "from": t, "to": t, "tokens": 1, "hold": "0",
+                       "mean_hold": 0.0})
+    model = document["model"]
+    model.update(n_transitions=n, n_places=len(places), places=places, transitions=[
+        {"id": t, "label": "", "duration": "30" if t == "s17" else "1",
+         "mean_duration": 30.0 if t == "s17" else 1.0} for t in ids])
+    analysis = document["analysis"]
+    analysis.update(critical_circuits=[["s17"]], cycle_time=30.0, eigenvector=None,
+                    cycle_time_by_transition=dict.fromkeys(ids, 30.0),
+                    slack={"transitions": {t: (0.0 if t == "s17" else 29.0) for t in ids},
+                           "places": [None] * n + [0.0 if t == "s17" else 29.0 for t in ids]},
+                    utilization=None, charpoly={"skipped": "too large"})
+    document["simulation"]["utilization"] = None
+    document["figures"].update(schedule=None, transient=None)
+    return document
+
+
+def test_large_graph_is_drawn_in_part_and_says_so() -> None:
+    """Beyond 60 transitions only the critical circuit and its neighbours are drawn, and the
+    tables are cut to 40 rows; the page says both."""
+    page = render_page(_large_document(80))
+    text = visible_text(page)
+    assert "Part of the graph:" in text
+    assert "77 transitions and 155 places are not shown" in text  # s16, s17, s18 drawn
+    assert "Showing 40 of 80 transitions" in text
+    assert "Showing 40 of 160 places" in text
+    assert "◆ s17" in text
+
+
+@settings(max_examples=8, deadline=None, suppress_health_check=[HealthCheck.too_slow])
+@given(live_event_graphs(max_transitions=7, max_places=14), st.booleans())
+def test_any_live_graph_renders(graph: Any, random_kind: bool) -> None:
+    """The page renders for any live event graph put into the fixed document's frame."""
+    ids, places = _specs(graph)
+    document = fixed_document()
+    document["model"].update(
+        is_random=random_kind, n_transitions=len(ids), n_places=len(places),
+        transitions=[{"id": t, "duration": "1", "mean_duration": 1.0} for t in ids],
+        places=[{"index": p.index, "from": p.source, "to": p.target, "tokens": p.tokens}
+                for p in places])
+    document["analysis"].update(critical_circuits=[], slack=None, eigenvector=None,
+                                utilization=None, cycle_time_by_transition=None)
+    document["simulation"]["utilization"] = None
+    document["figures"].update(schedule=None, transient=None)
+    page = render_page(document)
+    assert parse(page).tags.count("svg") == 1
