@@ -497,3 +497,25 @@ def test_ring_of_100000_transitions():
     r = howard(g)
     np.testing.assert_allclose(r.cycle_time, expected, rtol=1e-9)
     assert len(r.circuits) == 1 and len(r.circuits[0].transitions) == n
+
+
+@pytest.mark.parametrize(
+    ("duration", "hold"),
+    [
+        ([0.0, 1.0, 0.0], [0.0, 0.0, 1e-17]),
+        ([0.0, 1.0, 1e-30], [0.0, 0.0, 0.0]),
+    ],
+)
+def test_forced_policy_with_a_tiny_weight_converges(duration, hold):
+    """A ring where each transition has one input place has one policy: Howard must stop at once.
+
+    Ring 0 -> 1 -> 2 -> 0, one token, weight 1 then a tiny weight (1e-17 is what 0.1 + 0.2 - 0.3
+    gives). Expected λ = (1 + tiny) / 1 for every transition. Source: Baccelli et al. (1992),
+    ch. 2 (ratio of the only circuit); Cochet-Terrasson et al. (1998): policy iteration stops
+    when no improvement changes the policy.
+    """
+    g = EventGraph(duration, [0, 1, 2], [1, 2, 0], [1, 0, 0], hold)
+    expected = (math.fsum(duration) + math.fsum(hold)) / 1
+    r = howard(g)
+    np.testing.assert_allclose(r.cycle_time, expected, rtol=1e-12)
+    assert r.iterations == 0
