@@ -1,0 +1,611 @@
+r"""The firing-time recursion of a timed event graph, deterministic and random.
+
+Semantics
+---------
+Firings are numbered from 1. For transition ``t`` and firing ``k``:
+
+.. math::
+
+    x_t(k) = d_t(k) + \max_{p = (u \to t)} \mathrm{term}_p(k), \qquad
+    \mathrm{term}_p(k) = \begin{cases} 0 & k \le m_p \\
+                         x_u(k - m_p) + h_p(k) & k > m_p \end{cases}
+
+where ``m_p`` is the initial marking of place ``p``. Random draws are indexed by the
+**consuming** firing: ``h_p(k)`` is the hold used by firing ``k`` of the target of ``p``
+(draws for ``k <= m_p`` exist but are unused) and ``d_t(k)`` the duration of firing ``k`` of
+``t``. The recursion is the max-plus system ``x(k) = ⊕_j A_j(k) ⊗ x(k−j)`` of
+:func:`~cyclecheck.algebra.semiring.event_graph_matrices`, evaluated without building matrices.
+
+How it is computed
+------------------
+Places with tokens read firings already computed; they come from a ring buffer that keeps the
+last ``B = max_p m_p`` firings of every transition (memory ``2·B·n·R`` floats, independent of
+the number of firings). Places without tokens make the implicit part ``x = A_0 ⊗ x ⊕ b``: in a
+live graph the token-free subgraph is acyclic, so the transitions are processed in its
+topological levels, and each level is one gather of its input places and one
+``np.maximum.reduceat`` over them, vectorized over all replications at once. The work per firing
+is a handful of numpy calls per level, on arrays of shape ``(places, R)``.
+
+The ring holds every firing twice (at slots ``s`` and ``s + B`` with ``s = k mod B``) so that
+the place ``p`` reads position ``s + B − m_p`` without a modulo: places without tokens then read
+position ``s + B``, where the current firing is being written level by level.
+
+References
+----------
+.. [1] F. Baccelli, G. Cohen, G. J. Olsder, J.-P. Quadrat, *Synchronization and Linearity*,
+   Wiley, 1992: §2.5 (the recursion of a timed event graph, its implicit part and its
+   reduction to x(k) = A x(k−1)), ch. 3 (x = A0 x ⊕ b and its least solution A0* b),
+   ch. 7–8 (stochastic event graphs and the growth rate of x(k)).
+"""
+
+from __future__ import annotations
+
+from collections.abc import Callable, Sequence
+from dataclasses import dataclass
+from itertools import pairwise
+
+import numpy as np
+
+from .eventgraph import EventGraph, check_live
+from .exceptions import InvalidArray
+
+__all__ = [
+    "BlockSource",
+    "RandomRecursion",
+    "RecursionRun",
+    "firing_times",
+    "transient",
+]
+
+#: ``source(first, count)`` gives the draws for firings ``first .. first+count−1``, shape
+#: ``(count, R, n)`` for durations or ``(count, R, m)`` for holds (or anything that
+#: broadcasts to that shape).
+BlockSource = Callable[[int, int], np.ndarray]
+
+#: Memory budget (float elements) of one chunk of draws and outputs in :meth:`RandomRecursion.run`.
+_CHUNK_ELEMENTS = 1 << 21
+#: Largest precomputed table of ring-buffer read positions (elements).
+_INDEX_TABLE_ELEMENTS = 1 << 22
+
+
+def _zero_token_levels(graph: EventGraph) -> np.ndarray:
+    """Topological level of every transition in the subgraph of token-free places.
+
+    Level 0: no token-free input place; level ``L``: the longest token-free path into the
+    transition has ``L`` places. The caller has checked liveness, so the subgraph is acyclic.
+    """
+    n = graph.n_transitions
+    zero = graph.tokens == 0
+    src, dst = graph.source[zero], graph.target[zero]
+    order = np.argsort(src, kind="stable")
+    dst_by_src = dst[order]
+    starts = np.zeros(n + 1, dtype=np.int64)
+    np.cumsum(np.bincount(src, minlength=n), out=starts[1:])
+    remaining = np.bincount(dst, minlength=n)
+    level = np.zeros(n, dtype=np.int64)
+    frontier = np.flatnonzero(remaining == 0)
+    depth = 0
+    while frontier.size:
+        level[frontier] = depth
+        lo, hi = starts[frontier], starts[frontier + 1]
+        sizes = hi - lo
+        if sizes.sum() == 0:
+            break
+        # positions lo[i] .. hi[i]-1 for every frontier transition, concatenated
+        offsets = np.repeat(lo - np.cumsum(sizes) + sizes, sizes) + np.arange(sizes.sum())
+        heads = dst_by_src[offsets]
+        np.subtract.at(remaining, heads, 1)
+        cand = np.unique(heads)
+        frontier = cand[remaining[cand] == 0]
+        depth += 1
+    return level
+
+
+class _Engine:
+    """The vectorized recursion over ``R`` replications, in an internal element order.
+
+    Transitions are renumbered by (level, degree class, original index), ``perm[i]`` being the
+    original index of internal transition ``i``. Each (level, degree class) is a *group* of
+    ``T`` consecutive transitions with in-degree in ``(D/2, D]``; their input places are padded
+    to ``D`` slots by repeating the transition's last place (the maximum is unchanged) and laid
+    out slot-major, slot ``j`` of the group's ``i``-th transition at position ``ga + j·T + i``.
+    The maximum over input places is then ``D − 1`` elementwise maxima of contiguous
+    ``(T, R)`` blocks (``np.maximum.reduceat`` on 2-D arrays is an order of magnitude slower).
+    Slots list a transition's places by increasing original index, so "the first place reaching
+    the maximum" is the one with the smallest index.
+
+    The ring buffer ``H`` has ``S = B + 1`` slots of ``n`` rows: firing ``k`` is written to slot
+    ``k mod S`` while places with ``1 <= m_p <= B`` tokens read slot ``(k − m_p) mod S``, never
+    the one being written; places without tokens read the current slot, already written by the
+    lower levels.
+    """
+
+    def __init__(self, graph: EventGraph, replications: int) -> None:
+        check_live(graph)
+        if int(replications) != replications or replications < 1:
+            raise InvalidArray(f"replications must be an integer >= 1, got {replications}")
+        R = int(replications)
+        n, m = graph.n_transitions, graph.n_places
+        if n == 0:
+            raise InvalidArray("the event graph has no transition")
+        level = _zero_token_levels(graph)
+        indeg = graph.in_degree
+        dclass = np.ceil(np.log2(indeg)).astype(np.int64)  # in-degree >= 1 (checked live)
+        perm = np.lexsort((np.arange(n), dclass, level))
+        inv = np.empty(n, dtype=np.int64)
+        inv[perm] = np.arange(n)
+        key = (level * (dclass.max() + 1) + dclass)[perm]
+        bounds = np.flatnonzero(np.r_[True, key[1:] != key[:-1], True])
+        order, starts = graph.by_target  # places of each target by increasing index
+
+        groups: list[tuple[int, int, int, int, int]] = []
+        slots: list[np.ndarray] = []
+        ga = 0
+        for a, b in pairwise(bounds.tolist()):
+            ts = perm[a:b]
+            D = int(indeg[ts].max())
+            j = np.minimum(np.arange(D)[:, None], indeg[ts][None, :] - 1)
+            slots.append(order[starts[ts][None, :] + j].ravel())
+            groups.append((a, b, D, ga, ga + D * (b - a)))
+            ga += D * (b - a)
+        pslot = np.concatenate(slots)
+        tok = graph.tokens[pslot]
+        src = inv[graph.source[pslot]]
+        B = int(graph.tokens.max())
+        S = B + 1
+
+        self.n, self.m, self.R, self.B, self.S = n, m, R, B, S
+        self.perm, self.inv, self.pslot, self.groups = perm, inv, pslot, groups
+        self.P = int(pslot.size)
+        self.k = 0
+        self.H = np.full((S * n, R), np.nan)
+        self.terms = np.empty((self.P, R))
+        self.mx = np.empty((n, R))
+        self.d_const = graph.duration[perm][:, None]
+        self.h_const = graph.hold[pslot][:, None] if graph.hold.any() else None
+        self.tok = [tok[g[3] : g[4]] for g in groups]
+        self.src = [src[g[3] : g[4]] for g in groups]
+        self.idx: list[list[np.ndarray]] | None = None
+        if S * self.P <= _INDEX_TABLE_ELEMENTS:
+            self.idx = [
+                [((s - t) % S) * n + u for t, u in zip(self.tok, self.src, strict=True)]
+                for s in range(S)
+            ]
+        self.slot = [self.H[s * n : (s + 1) * n] for s in range(S)]
+        self.out = [[self.slot[s][a:b] for (a, b, *_) in groups] for s in range(S)]
+        # firings k <= B: places with m_p >= k contribute 0 (the initial tokens, at time 0)
+        self.initial = [[np.flatnonzero(t >= k) for t in self.tok] for k in range(B + 1)]
+
+    def current(self) -> np.ndarray:
+        """x(k) of the last firing, shape (n, R), internal order (zeros before the first)."""
+        if self.k == 0:
+            return np.zeros((self.n, self.R))
+        return self.slot[self.k % self.S]
+
+    def advance(
+        self,
+        count: int,
+        dur: np.ndarray,
+        hold: np.ndarray | None,
+        rec: np.ndarray | None,
+        terms: np.ndarray | None,
+    ) -> None:
+        """Compute ``count`` firings.
+
+        ``dur``: (count, n, R) per firing or (n, 1) fixed, internal order. ``hold``: (count,
+        P, R) per firing or (P, 1) fixed, in slot order; ``None`` for zero holds. ``rec``
+        (count, n, R) receives x(k); ``terms`` (count, P, R) receives the terms of every slot
+        (for the criticality counts).
+        """
+        add, maximum = np.add, np.maximum
+        H, n, S = self.H, self.n, self.S
+        groups, idx_table, initial, mx = self.groups, self.idx, self.initial, self.mx
+        fixed_d = dur.ndim == 2
+        fixed_h = hold is not None and hold.ndim == 2
+        k = self.k
+        for i in range(count):
+            k += 1
+            s = k % S
+            d = dur if fixed_d else dur[i]
+            h = hold if fixed_h or hold is None else hold[i]
+            tv_all = self.terms if terms is None else terms[i]
+            idx_s = idx_table[s] if idx_table is not None else None
+            out_s = self.out[s]
+            early = k <= self.B
+            for g, (a, b, D, ga, gb) in enumerate(groups):
+                tv = tv_all[ga:gb]
+                if idx_s is not None:
+                    H.take(idx_s[g], axis=0, out=tv, mode="clip")
+                else:
+                    H.take(((s - self.tok[g]) % S) * n + self.src[g], axis=0, out=tv, mode="clip")
+                if h is not None:
+                    add(tv, h[ga:gb], out=tv)
+                if early:
+                    tv[initial[k][g]] = 0.0
+                if D == 1:
+                    add(tv, d[a:b], out=out_s[g])
+                    continue
+                T = b - a
+                mv = mx[a:b]
+                maximum(tv[:T], tv[T : 2 * T], out=mv)
+                for j in range(2, D):
+                    maximum(mv, tv[j * T : (j + 1) * T], out=mv)
+                add(mv, d[a:b], out=out_s[g])
+            if rec is not None:
+                rec[i] = self.slot[s]
+        self.k = k
+
+    def count_critical(self, terms: np.ndarray, counts: np.ndarray) -> None:
+        """Add to ``counts`` (m, R) the firings each place set, from ``terms`` (c, P, R).
+
+        Slot ``j`` of a transition set the firing if it reaches the maximum and no earlier slot
+        does; a padded slot repeats an earlier one and so never counts.
+        """
+        c = terms.shape[0]
+        for a, b, D, ga, gb in self.groups:
+            T = b - a
+            places = self.pslot[ga:gb].reshape(D, T)
+            if D == 1:
+                counts[places[0]] += c  # the only input place sets every firing
+                continue
+            v = terms[:, ga:gb].reshape(c, D, T, -1)
+            top = np.maximum(v[:, 0], v[:, 1])
+            for j in range(2, D):
+                np.maximum(top, v[:, j], out=top)
+            taken = v[:, 0] == top
+            counts[places[0]] += taken.sum(axis=0)
+            for j in range(1, D - 1):
+                eq = v[:, j] == top
+                counts[places[j]] += (eq & ~taken).sum(axis=0)
+                taken |= eq
+            counts[places[D - 1]] += c - taken.sum(axis=0)  # the last slot takes the rest
+
+
+def firing_times(graph: EventGraph, n_firings: int) -> np.ndarray:
+    r"""Firing times ``x_t(k)`` of the deterministic recursion, ``k = 1 .. n_firings``.
+
+    Parameters
+    ----------
+    graph : EventGraph
+        A live event graph; its fixed durations and holds are used.
+    n_firings : int
+        Number ``K`` of firings of every transition.
+
+    Returns
+    -------
+    ndarray, shape (K, n)
+        Row ``k − 1`` holds ``x(k)``.
+
+    Raises
+    ------
+    NotLive, Unfed
+        If the graph is not live (:func:`~cyclecheck.algebra.eventgraph.check_live`).
+
+    References
+    ----------
+    .. [1] Baccelli et al., *Synchronization and Linearity*, 1992, §2.5.
+
+    Examples
+    --------
+    Two machines in a loop with one part, the first needing 2 time units, the second 3:
+
+    >>> from cyclecheck.algebra.eventgraph import EventGraph
+    >>> g = EventGraph(duration=[2.0, 3.0], source=[0, 1], target=[1, 0], tokens=[0, 1],
+    ...                hold=[0.0, 0.0])
+    >>> firing_times(g, 3)
+    array([[ 2.,  5.],
+           [ 7., 10.],
+           [12., 15.]])
+    """
+    K = _count(n_firings, "n_firings")
+    eng = _Engine(graph, 1)
+    rec = np.empty((K, eng.n, 1))
+    eng.advance(K, eng.d_const, eng.h_const, rec, None)
+    return rec[:, eng.inv, 0]
+
+
+def transient(
+    graph: EventGraph, cycle_time: float | np.ndarray, cyclicity: int, n_firings: int
+) -> int | None:
+    r"""Measured transient of the deterministic recursion.
+
+    The smallest ``k0 >= 1`` with ``x(k + c) = x(k) + c·λ`` for all ``k0 <= k <= K − c``
+    (relative tolerance ``1e-9``), where ``x`` is :func:`firing_times` over ``K`` firings.
+
+    Parameters
+    ----------
+    graph : EventGraph
+    cycle_time : float or array_like of shape (n,)
+        λ, or one cycle time per transition for a graph that is not strongly connected.
+    cyclicity : int
+        The period ``c >= 1``, in firings.
+    n_firings : int
+        ``K``, the horizon of the check.
+
+    Returns
+    -------
+    int or None
+        ``k0``; ``None`` if the regime does not hold at ``k = K − c`` (not reached within
+        ``K``, or λ and ``c`` are not those of the graph).
+
+    References
+    ----------
+    .. [1] Baccelli et al., *Synchronization and Linearity*, 1992, §3.7 (cyclicity and the
+       periodic regime of x(k+1) = A x(k)).
+
+    Examples
+    --------
+    Heidergott, Olsder & van der Woude (2006), *Max Plus at Work*, from memory: ``A =
+    [[3, 7], [2, 4]]`` has λ = 4.5 and the orbit from 0 is periodic with period 2 after one
+    step. One place per entry, with one token and hold ``a_tu``:
+
+    >>> from cyclecheck.algebra.eventgraph import EventGraph
+    >>> g = EventGraph(duration=[0.0, 0.0], source=[0, 1, 0, 1], target=[0, 0, 1, 1],
+    ...                tokens=[1, 1, 1, 1], hold=[3.0, 7.0, 2.0, 4.0])
+    >>> transient(g, 4.5, 2, 50)
+    2
+    >>> transient(g, 4.5, 1, 50) is None
+    True
+    """
+    K = _count(n_firings, "n_firings")
+    c = _count(cyclicity, "cyclicity")
+    if c < 1:
+        raise InvalidArray("cyclicity must be >= 1")
+    lam = np.broadcast_to(np.asarray(cycle_time, dtype=np.float64), (graph.n_transitions,))
+    if K <= c:
+        return None
+    X = firing_times(graph, K)
+    later, earlier = X[c:], X[:-c]
+    scale = np.maximum(np.abs(later), np.abs(earlier) + c * np.abs(lam))
+    ok = np.all(np.abs(later - earlier - c * lam) <= 1e-9 * scale, axis=1)
+    if not ok[-1]:
+        return None
+    bad = np.flatnonzero(~ok)
+    return 1 if bad.size == 0 else int(bad[-1]) + 2
+
+
+def _count(value: int, name: str) -> int:
+    if int(value) != value or value < 0:
+        raise InvalidArray(f"{name} must be an integer >= 0, got {value}")
+    return int(value)
+
+
+@dataclass(frozen=True)
+class RecursionRun:
+    """What :meth:`RandomRecursion.run` returns for the firings it computed.
+
+    Attributes
+    ----------
+    checkpoints : ndarray of int, shape (J + 1,)
+        Firing numbers ``k_0 < k_1 < … < k_J``: ``k_0`` is the last firing before the run (0
+        at the start), then the end of every block.
+    x : ndarray, shape (J + 1, R, n_obs)
+        ``x_t(k_j)`` at the checkpoints for the observed transitions (``x(0) = 0``).
+    observe : ndarray of int, shape (n_obs,)
+        Original indices of the observed transitions (columns of ``x``).
+    busy : ndarray, shape (R, n)
+        Sum of the durations ``d_t(k)`` over the run's firings: busy time of each transition,
+        for utilization ``busy / (x(k_J) − x(k_0))`` or ``busy / horizon``.
+    critical : ndarray of int, shape (R, m), or None
+        For each place, the number of the run's firings of its target that it set: it was the
+        input place reaching the maximum (ties go to the place with the smallest index; while
+        ``k <= m_p`` the place's term is 0 and it competes with that value). ``None`` when the
+        recursion was built with ``criticality=False``.
+    times : ndarray, shape (K, R, n), or None
+        All firing times of the run (``record=True``), row ``i`` = firing ``k_0 + 1 + i``.
+    """
+
+    checkpoints: np.ndarray
+    x: np.ndarray
+    observe: np.ndarray
+    busy: np.ndarray
+    critical: np.ndarray | None
+    times: np.ndarray | None
+
+    @property
+    def n_firings(self) -> int:
+        """Number of firings computed in the run."""
+        return int(self.checkpoints[-1] - self.checkpoints[0])
+
+    def increments(self) -> np.ndarray:
+        """``x(k_j) − x(k_{j−1})`` for every block, shape (J, R, n_obs): batch increments."""
+        return np.diff(self.x, axis=0)
+
+    def block_rates(self) -> np.ndarray:
+        """Increments divided by the block lengths, shape (J, R, n_obs): batch means of the
+        cycle time per block."""
+        return self.increments() / np.diff(self.checkpoints)[:, None, None]
+
+    def growth(self, start: int = 0) -> np.ndarray:
+        """Growth rate ``(x(k_J) − x(k_start)) / (k_J − k_start)`` per replication and observed
+        transition, shape (R, n_obs): a per-replication estimate of the cycle time."""
+        span = self.checkpoints[-1] - self.checkpoints[start]
+        if span <= 0:
+            raise InvalidArray(f"no firing after checkpoint {start}")
+        return (self.x[-1] - self.x[start]) / span
+
+
+class RandomRecursion:
+    r"""The recursion with random durations and holds, over ``R`` replications at once.
+
+    Streaming: each :meth:`run` continues from the last firing computed, and memory does not
+    grow with the number of firings (only with what is asked back: checkpoints, or all times
+    with ``record=True``).
+
+    Parameters
+    ----------
+    graph : EventGraph
+        A live event graph (its own durations and holds are not used).
+    duration_source : callable ``(first, count) -> array``
+        ``d_t(k)`` for ``k = first .. first+count−1``: shape ``(count, R, n)`` (or
+        broadcastable to it), finite and ``>= 0``.
+    hold_source : callable ``(first, count) -> array``
+        ``h_p(k)``, indexed by the consuming firing ``k``: shape ``(count, R, m)``.
+    replications : int
+        ``R``.
+    criticality : bool
+        Count, for every place, the firings it set (a few numpy calls more per firing).
+
+    Raises
+    ------
+    NotLive, Unfed
+        If the graph is not live.
+
+    Notes
+    -----
+    Each replication ``r`` sees the draws ``[:, r, :]`` of the sources: the same numbers as a
+    separate run of replication ``r`` alone.
+
+    References
+    ----------
+    .. [1] Baccelli et al., *Synchronization and Linearity*, 1992, ch. 7–8 (stochastic event
+       graphs: ``x(k)/k`` converges to the cycle time, the Lyapunov exponent).
+
+    Examples
+    --------
+    >>> from cyclecheck.algebra.eventgraph import EventGraph
+    >>> g = EventGraph(duration=[1.0, 1.0], source=[0, 1, 0, 1], target=[1, 0, 0, 1],
+    ...                tokens=[0, 2, 1, 1], hold=[0.0, 0.0, 0.0, 0.0])
+    >>> rng = np.random.default_rng(np.random.SeedSequence(7))
+    >>> d = rng.exponential(1.0, size=(1000, 4, 2))
+    >>> rec = RandomRecursion(g, lambda first, count: d[first - 1 : first - 1 + count],
+    ...                       lambda first, count: np.zeros((count, 1, 4)), replications=4)
+    >>> out = rec.run(1000, block=100)
+    >>> out.x.shape, out.critical.shape, rec.firings
+    ((11, 4, 2), (4, 4), 1000)
+    """
+
+    def __init__(
+        self,
+        graph: EventGraph,
+        duration_source: BlockSource,
+        hold_source: BlockSource,
+        replications: int,
+        *,
+        criticality: bool = True,
+    ) -> None:
+        self._engine = _Engine(graph, replications)
+        self.graph = graph
+        self.duration_source = duration_source
+        self.hold_source = hold_source
+        self.criticality = bool(criticality)
+
+    @property
+    def replications(self) -> int:
+        """Number of replications ``R``."""
+        return self._engine.R
+
+    @property
+    def firings(self) -> int:
+        """Number of firings computed so far (the ``k`` of :meth:`state`)."""
+        return self._engine.k
+
+    def state(self) -> np.ndarray:
+        """``x(k)`` of the last firing computed, shape (R, n); zeros before the first firing."""
+        eng = self._engine
+        return eng.current()[eng.inv].T.copy()
+
+    def _draws(
+        self,
+        source: BlockSource,
+        first: int,
+        count: int,
+        width: int,
+        what: str,
+        columns: np.ndarray,
+    ) -> np.ndarray | None:
+        """Call a source, check its block, return it as (count, len(columns), R); None if 0."""
+        R = self._engine.R
+        raw = np.asarray(source(first, count), dtype=np.float64)
+        try:
+            block = np.broadcast_to(raw, (count, R, width))
+        except ValueError:
+            raise InvalidArray(
+                f"{what} source returned shape {raw.shape} for firings {first}.."
+                f"{first + count - 1}, expected ({count}, {R}, {width})"
+            ) from None
+        if raw.size and not (raw.min() >= 0 and raw.max() < np.inf):
+            raise InvalidArray(
+                f"{what} source returned negative, NaN or infinite values for firings "
+                f"{first}..{first + count - 1}"
+            )
+        if what == "hold" and not raw.any():
+            return None  # zero holds: skip the additions
+        # internal layout: (firing, element in internal order, replication), contiguous
+        return np.ascontiguousarray(block.transpose(0, 2, 1)[:, columns, :])
+
+    def run(
+        self,
+        n_firings: int,
+        block: int | None = None,
+        *,
+        record: bool = False,
+        observe: Sequence[int] | np.ndarray | None = None,
+    ) -> RecursionRun:
+        """Compute the next ``n_firings`` firings of every transition in every replication.
+
+        Parameters
+        ----------
+        n_firings : int
+            ``K``, the number of firings to compute.
+        block : int, optional
+            Firings between checkpoints (default: one block, ``K``). The last block is shorter
+            when ``block`` does not divide ``K``.
+        record : bool
+            Also return all firing times, shape (K, R, n).
+        observe : sequence of int, optional
+            Transitions whose firing times are kept at the checkpoints (default: all).
+
+        Returns
+        -------
+        RecursionRun
+        """
+        eng = self._engine
+        K = _count(n_firings, "n_firings")
+        b = K if block is None else _count(block, "block")
+        if b < 1 and K > 0:
+            raise InvalidArray("block must be >= 1")
+        n, m, R = eng.n, eng.m, eng.R
+        obs = np.arange(n) if observe is None else np.asarray(observe, dtype=np.int64)
+        if obs.ndim != 1 or (obs.size and (obs.min() < 0 or obs.max() >= n)):
+            raise InvalidArray(f"observe must list transition indices in 0..{n - 1}")
+        rows = eng.inv[obs]
+        k0 = eng.k
+        ends = [*range(k0 + b, k0 + K, b), k0 + K] if K else []
+        checkpoints = np.array([k0, *ends], dtype=np.int64)
+        xs = np.empty((len(checkpoints), R, obs.size))
+        xs[0] = eng.current()[rows].T
+        times = np.empty((K, R, n)) if record else None
+        busy = np.zeros((n, R))
+        counts = np.zeros((m, R), dtype=np.int64) if self.criticality else None
+        P = eng.P
+        per_firing = R * (2 * n + P + (n if record else 0) + (P if counts is not None else 0))
+        chunk = max(1, min(max(b, 1), _CHUNK_ELEMENTS // per_firing))
+        rec = np.empty((chunk, n, R)) if record else None
+        terms = np.empty((chunk, P, R)) if counts is not None else None
+        for j, end in enumerate(ends, start=1):
+            while eng.k < end:
+                first = eng.k + 1
+                count = min(chunk, end - eng.k)
+                dur = self._draws(self.duration_source, first, count, n, "duration", eng.perm)
+                hold = self._draws(self.hold_source, first, count, m, "hold", eng.pslot)
+                r = rec[:count] if rec is not None else None
+                tv = terms[:count] if terms is not None else None
+                assert dur is not None
+                eng.advance(count, dur, hold, r, tv)
+                busy += dur.sum(axis=0)
+                if times is not None and r is not None:
+                    pos = first - 1 - k0
+                    times[pos : pos + count] = r[:, eng.inv, :].transpose(0, 2, 1)
+                if counts is not None and tv is not None:
+                    eng.count_critical(tv, counts)
+            xs[j] = eng.current()[rows].T
+        critical = counts.T.copy() if counts is not None else None
+        return RecursionRun(
+            checkpoints=checkpoints,
+            x=xs,
+            observe=obs,
+            busy=busy[eng.inv].T.copy(),
+            critical=critical,
+            times=times,
+        )
