@@ -19,9 +19,8 @@ from __future__ import annotations
 from typing import Literal
 
 import numpy as np
-from hypothesis import strategies as st
-
 from cyclecheck.algebra.eventgraph import EventGraph
+from hypothesis import strategies as st
 
 __all__ = ["live_event_graphs", "values"]
 
