@@ -19,16 +19,15 @@ where ``m_p`` is the initial marking of place ``p``. Random draws are indexed by
 How it is computed
 ------------------
 Places with tokens read firings already computed; they come from a ring buffer that keeps the
-last ``B = max_p m_p`` firings of every transition (memory ``2·B·n·R`` floats, independent of
-the number of firings). Places without tokens make the implicit part ``x = A_0 ⊗ x ⊕ b``: in a
-live graph the token-free subgraph is acyclic, so the transitions are processed in its
-topological levels, and each level is one gather of its input places and one
-``np.maximum.reduceat`` over them, vectorized over all replications at once. The work per firing
-is a handful of numpy calls per level, on arrays of shape ``(places, R)``.
-
-The ring holds every firing twice (at slots ``s`` and ``s + B`` with ``s = k mod B``) so that
-the place ``p`` reads position ``s + B − m_p`` without a modulo: places without tokens then read
-position ``s + B``, where the current firing is being written level by level.
+last ``B = max_p m_p`` firings of every transition (``B + 1`` slots, memory ``(B + 1)·n·R``
+floats, independent of the number of firings). Places without tokens make the implicit part
+``x = A_0 ⊗ x ⊕ b``: in a live graph the token-free subgraph is acyclic, so the transitions are
+processed in its topological levels. Within a level, transitions of similar in-degree form a
+group whose input places are gathered in one ``take`` into a padded ``(D·T, R)`` block; the
+maximum over inputs is ``D − 1`` elementwise maxima of contiguous ``(T, R)`` slices. All
+replications are processed by the same calls, so the Python work per firing is a handful of
+numpy calls per group, whatever ``R``. Criticality (which place set each firing) is computed
+afterwards, for a whole chunk of firings at once, from the stored terms.
 
 References
 ----------
@@ -66,6 +65,7 @@ BlockSource = Callable[[int, int], np.ndarray]
 _CHUNK_ELEMENTS = 1 << 21
 #: Largest precomputed table of ring-buffer read positions (elements).
 _INDEX_TABLE_ELEMENTS = 1 << 22
+_INDEX_TABLE_ARRAYS = 1 << 16
 
 
 def _zero_token_levels(graph: EventGraph) -> np.ndarray:
@@ -166,15 +166,13 @@ class _Engine:
         self.tok = [tok[g[3] : g[4]] for g in groups]
         self.src = [src[g[3] : g[4]] for g in groups]
         self.idx: list[list[np.ndarray]] | None = None
-        if S * self.P <= _INDEX_TABLE_ELEMENTS:
+        # one array per (slot, group): bounded in elements and in Python objects
+        if S * self.P <= _INDEX_TABLE_ELEMENTS and S * len(groups) <= _INDEX_TABLE_ARRAYS:
             self.idx = [
                 [((s - t) % S) * n + u for t, u in zip(self.tok, self.src, strict=True)]
                 for s in range(S)
             ]
         self.slot = [self.H[s * n : (s + 1) * n] for s in range(S)]
-        self.out = [[self.slot[s][a:b] for (a, b, *_) in groups] for s in range(S)]
-        # firings k <= B: places with m_p >= k contribute 0 (the initial tokens, at time 0)
-        self.initial = [[np.flatnonzero(t >= k) for t in self.tok] for k in range(B + 1)]
 
     def current(self) -> np.ndarray:
         """x(k) of the last firing, shape (n, R), internal order (zeros before the first)."""
@@ -199,7 +197,7 @@ class _Engine:
         """
         add, maximum = np.add, np.maximum
         H, n, S = self.H, self.n, self.S
-        groups, idx_table, initial, mx = self.groups, self.idx, self.initial, self.mx
+        groups, idx_table, tok, mx = self.groups, self.idx, self.tok, self.mx
         fixed_d = dur.ndim == 2
         fixed_h = hold is not None and hold.ndim == 2
         k = self.k
@@ -210,7 +208,7 @@ class _Engine:
             h = hold if fixed_h or hold is None else hold[i]
             tv_all = self.terms if terms is None else terms[i]
             idx_s = idx_table[s] if idx_table is not None else None
-            out_s = self.out[s]
+            out_s = self.slot[s]
             early = k <= self.B
             for g, (a, b, D, ga, gb) in enumerate(groups):
                 tv = tv_all[ga:gb]
@@ -221,16 +219,16 @@ class _Engine:
                 if h is not None:
                     add(tv, h[ga:gb], out=tv)
                 if early:
-                    tv[initial[k][g]] = 0.0
+                    tv[tok[g] >= k] = 0.0  # the initial tokens, available at time 0
                 if D == 1:
-                    add(tv, d[a:b], out=out_s[g])
+                    add(tv, d[a:b], out=out_s[a:b])
                     continue
                 T = b - a
                 mv = mx[a:b]
                 maximum(tv[:T], tv[T : 2 * T], out=mv)
                 for j in range(2, D):
                     maximum(mv, tv[j * T : (j + 1) * T], out=mv)
-                add(mv, d[a:b], out=out_s[g])
+                add(mv, d[a:b], out=out_s[a:b])
             if rec is not None:
                 rec[i] = self.slot[s]
         self.k = k
