@@ -419,6 +419,11 @@ def event_graph_matrices(graph: EventGraph) -> list[np.ndarray]:
     ``A_j[t, u] = max`` over places ``p = (u → t)`` with ``j`` initial tokens of
     ``hold_p + duration_t``; ε where there is no such place. ``M`` is the largest marking.
 
+    References
+    ----------
+    .. [1] Baccelli et al., *Synchronization and Linearity*, 1992, §2.5 (the matrices of an
+       event graph grouped by the number of initial tokens of its places).
+
     Examples
     --------
     >>> from cyclecheck.algebra.eventgraph import EventGraph

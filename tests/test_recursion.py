@@ -8,6 +8,7 @@ exponential lines (Gordon & Newell 1967, Buzen 1973).
 
 from __future__ import annotations
 
+import doctest
 import math
 
 import numpy as np
@@ -99,6 +100,13 @@ def test_firing_times_small_example():
     g = EventGraph([2.0, 3.0], [0, 1], [1, 0], [0, 1], [0.0, 1.0])
     np.testing.assert_array_equal(firing_times(g, 3), [[2, 5], [8, 11], [14, 17]])
     assert firing_times(g, 0).shape == (0, 2)
+
+
+def test_docstring_examples():
+    """The examples in the module's docstrings run and print what they show."""
+    result = doctest.testmod(recursion, optionflags=doctest.NORMALIZE_WHITESPACE)
+    assert result.attempted > 0
+    assert result.failed == 0
 
 
 def periodic_slope(series: np.ndarray, max_period: int = 240, tail: int = 600) -> float | None:

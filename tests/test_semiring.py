@@ -6,12 +6,14 @@ or networkx cycle enumeration) and against published worked examples.
 
 from __future__ import annotations
 
+import doctest
 import itertools
 import math
 
 import networkx as nx
 import numpy as np
 import pytest
+from cyclecheck.algebra import semiring
 from cyclecheck.algebra.eventgraph import EventGraph
 from cyclecheck.algebra.exceptions import InvalidArray, MaxPlusError, NotLive, PositiveCircuit
 from cyclecheck.algebra.semiring import (
@@ -248,6 +250,16 @@ def test_karp_textbook_examples():
     memory): [[3,7],[2,4]] has λ = 4.5 and [[2,5],[3,3]] has λ = 4."""
     np.testing.assert_allclose(max_cycle_mean_karp([[3.0, 7.0], [2.0, 4.0]]), [4.5, 4.5])
     np.testing.assert_allclose(max_cycle_mean_karp([[2.0, 5.0], [3.0, 3.0]]), [4.0, 4.0])
+    # and their eigenvectors (same source, from memory): A ⊗ v = λ ⊗ v
+    np.testing.assert_array_equal(otimes([[3.0, 7.0], [2.0, 4.0]], [0.0, -2.5]), [4.5, 2.0])
+    np.testing.assert_array_equal(otimes([[2.0, 5.0], [3.0, 3.0]], [1.0, 0.0]), [5.0, 4.0])
+
+
+def test_docstring_examples():
+    """The examples in the module's docstrings run and print what they show."""
+    result = doctest.testmod(semiring, optionflags=doctest.NORMALIZE_WHITESPACE)
+    assert result.attempted > 0
+    assert result.failed == 0
 
 
 def test_karp_reducible_convention():
