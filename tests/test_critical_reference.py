@@ -626,3 +626,19 @@ def test_ring_with_a_tiny_hold_is_critical(tokens):
     assert critical_places(g, r).tolist() == [True, True]
     assert slack(g, r).places.tolist() == [0.0, 0.0]
     assert cyclicity(g, r) == tokens
+
+
+@pytest.mark.parametrize("factor", [1.0, 1e-6, 1e6])
+def test_certificate_holds_on_scaled_graph(factor):
+    """The certificate of a correct result holds in any time unit (scale invariance).
+
+    Homogeneity of the cycle ratio (Baccelli et al. 1992, ch. 2): scaling every duration and hold
+    scales λ and the eigenvector. Circuit 0 -> 2 -> 3 -> 0 has weight 6 and 3 tokens: λ = 2.
+    """
+    g = EventGraph(
+        np.array([0, 0, 0, 5.0, 0, 0]) * factor, [3, 2, 0, 2, 2, 2], [0, 1, 2, 3, 4, 5],
+        [0, 0, 1, 2, 0, 0], np.array([0, 0, 0, 1.0, 0, 0]) * factor,
+    )
+    r = howard(g)
+    np.testing.assert_allclose(r.cycle_time, 2.0 * factor, rtol=1e-12)
+    assert certify(g, r).holds

@@ -519,3 +519,33 @@ def test_forced_policy_with_a_tiny_weight_converges(duration, hold):
     r = howard(g)
     np.testing.assert_allclose(r.cycle_time, expected, rtol=1e-12)
     assert r.iterations == 0
+
+
+def test_scaled_graph_converges():
+    """The same graph in time units 10^6 times smaller: λ scales, Howard still converges.
+
+    Homogeneity of the cycle ratio (Baccelli et al. 1992, ch. 2): λ(s·G) = s·λ(G). At s = 1 the
+    graph gives λ = 1.5 (circuit 2 -> 3 -> 2: (5 + 1) / (1 + 3)) with no improvement.
+    """
+    for s in (1.0, 1e-6):
+        g = EventGraph(
+            np.array([0, 0, 0, 5.0, 0, 0]) * s, [2, 2, 3, 2, 2, 2], [0, 1, 2, 3, 4, 5],
+            [0, 0, 1, 3, 0, 0], np.array([0, 0, 0, 1.0, 0, 0]) * s,
+        )
+        np.testing.assert_allclose(howard(g).cycle_time, 1.5 * s, rtol=1e-12)
+
+
+@pytest.mark.parametrize(
+    ("duration", "tokens"),
+    [([0.0, 1.0], [1, 2]), ([0.0, 0.0, 1.0], [0, 1, 2]), ([0.0, 0.0, 0.0, 0.0, 1.0], [0, 0, 0, 1, 2])],
+)
+def test_ring_with_a_third_converges(duration, tokens):
+    """A ring of weight 1 holding 3 tokens: λ = 1/3 (inexact in binary), one policy, no improvement.
+
+    Source: Baccelli et al. (1992), ch. 2 (the ratio of the only circuit is the cycle time).
+    """
+    n = len(duration)
+    g = EventGraph(duration, np.arange(n), (np.arange(n) + 1) % n, tokens, np.zeros(n))
+    r = howard(g)
+    np.testing.assert_allclose(r.cycle_time, 1 / 3, rtol=1e-12)
+    assert r.iterations == 0
