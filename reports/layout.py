@@ -305,6 +305,56 @@ def _border(centre: Point, toward: Point, half_w: float, half_h: float) -> Point
     return centre[0] + t * ux, centre[1] + t * uy
 
 
+def _bows(
+    positions: dict[str, Point], places: Sequence[PlaceSpec], spacing: float, kind: str
+) -> dict[int, float]:
+    """How far each arc bends: the offset of its control point along its left-hand normal."""
+    ys = [y for _, y in positions.values()]
+    centre_y = (max(ys) + min(ys)) / 2
+    centre_x = sum(x for x, _ in positions.values()) / len(positions)
+    nearest = min(
+        (math.dist(p, q) for s, p in positions.items() for t, q in positions.items() if s < t),
+        default=spacing,
+    )
+    bows: dict[int, float] = {}
+    for place in places:
+        a, b = positions[place.source], positions[place.target]
+        dx, dy = b[0] - a[0], b[1] - a[1]
+        length = math.hypot(dx, dy)
+        nx, ny = -dy / length, dx / length
+        if kind == "circle":
+            # Neighbours on the ring bow outwards (clockwise travel: left is outside).
+            bows[place.index] = 0.3 if length < 1.2 * nearest else 0.0
+            continue
+        if place.tokens == 0 and 0 < dx <= 1.01 * spacing:
+            bows[place.index] = 0.0  # a forward step to the next column: straight
+            continue
+        bow = 0.22 * length + 0.3 if dx > 0 else 0.3 * length + 0.6
+        # Bow away from the middle of the drawing, so that circuits close around it.
+        if abs(ny) > 1e-9:
+            away = 1.0 if (a[1] + b[1]) / 2 >= centre_y - 1e-9 else -1.0
+            bows[place.index] = math.copysign(bow, away * ny)
+        else:
+            away = 1.0 if (a[0] + b[0]) / 2 >= centre_x else -1.0
+            bows[place.index] = math.copysign(bow, away * nx)
+    # Places between one pair of transitions that would lie on one curve are spread apart.
+    # Offsets are compared in the frame of the sorted pair, where the normal of the
+    # opposite direction points the other way.
+    groups: dict[tuple[str, str, float], list[PlaceSpec]] = {}
+    for place in places:
+        lo, hi = sorted((place.source, place.target))
+        sign = 1.0 if (place.source, place.target) == (lo, hi) else -1.0
+        groups.setdefault((lo, hi, round(sign * bows[place.index], 6)), []).append(place)
+    for (lo, hi, offset), members in groups.items():
+        if len(members) < 2:
+            continue
+        for k, place in enumerate(members):
+            sign = 1.0 if (place.source, place.target) == (lo, hi) else -1.0
+            shift = (k - (len(members) - 1) / 2) * 0.5 if offset == 0 else k * 0.45
+            bows[place.index] = sign * (offset + math.copysign(shift, offset or 1.0))
+    return bows
+
+
 def _arcs(
     positions: dict[str, Point],
     places: Sequence[PlaceSpec],
@@ -314,62 +364,44 @@ def _arcs(
     kind: str,
 ) -> list[Arc]:
     half_w, half_h = box_width / 2, BOX_HEIGHT / 2
-    ys = [y for _, y in positions.values()]
-    centre_y = (max(ys) + min(ys)) / 2
-    centre_x = sum(x for x, _ in positions.values()) / len(positions)
-    nearest = min(
-        (math.dist(p, q) for s, p in positions.items() for t, q in positions.items() if s < t),
-        default=spacing,
-    )
-    pair_count: dict[frozenset[str], int] = {}
+    loops = [p for p in places if p.source == p.target]
+    bows = _bows(positions, [p for p in places if p.source != p.target], spacing, kind)
+    arcs: dict[int, Arc] = {}
+    leaving: dict[str, list[float]] = {t: [] for t in positions}  # vertical directions used
     for place in places:
-        pair = frozenset((place.source, place.target))
-        pair_count[pair] = pair_count.get(pair, 0) + 1
-    seen: dict[frozenset[str], int] = {}
-    arcs: list[Arc] = []
-    for place in places:
-        a, b = positions[place.source], positions[place.target]
-        critical = place.index in critical_places
-        pair = frozenset((place.source, place.target))
-        k = seen.get(pair, 0)
-        seen[pair] = k + 1
         if place.source == place.target:
-            lift = 0.75 + 0.35 * k
-            x, y = a
-            top = y + half_h
-            points = ((x - 0.22, top), (x - 0.45, top + lift), (x + 0.45, top + lift),
-                      (x + 0.22, top))
-            arcs.append(Arc(place.index, place.source, place.target, place.tokens, points,
-                            (x, top + 0.75 * lift), (1.0, 0.0), critical))
             continue
+        a, b = positions[place.source], positions[place.target]
         dx, dy = b[0] - a[0], b[1] - a[1]
         length = math.hypot(dx, dy)
         nx, ny = -dy / length, dx / length  # the left-hand normal of the direction a -> b
-        if kind == "circle":
-            # Neighbours on the ring bow outwards (clockwise travel: left is outside).
-            bow = 0.3 if length < 1.2 * nearest else 0.0
-        else:
-            straight = place.tokens == 0 and 0 < dx <= 1.01 * spacing
-            bow = 0.0 if straight else 0.22 * length + (0.3 if dx > 0 else 0.7)
-            # Bow away from the middle of the drawing, so that circuits close around it.
-            if abs(ny) > 1e-9:
-                away = 1.0 if (a[1] + b[1]) / 2 >= centre_y - 1e-9 else -1.0
-                bow = math.copysign(bow, away * ny)
-            else:
-                away = 1.0 if (a[0] + b[0]) / 2 >= centre_x else -1.0
-                bow = math.copysign(bow, away * nx)
-        if pair_count[pair] > 1:
-            # Parallel or opposite places between one pair: spread them apart. The normal
-            # flips with the direction, so opposite places part even at equal offsets.
-            bow += math.copysign(0.45 * (k + 0.5), bow) if bow else 0.45 * (k + 0.5)
+        bow = bows[place.index]
         control = ((a[0] + b[0]) / 2 + bow * nx, (a[1] + b[1]) / 2 + bow * ny)
         start = _border(a, control, half_w, half_h)
         end = _border(b, control, half_w, half_h)
+        leaving[place.source].append(start[1] - a[1])
+        leaving[place.target].append(end[1] - b[1])
         mid = ((start[0] + 2 * control[0] + end[0]) / 4, (start[1] + 2 * control[1] + end[1]) / 4)
         side = (nx, ny) if bow >= 0 else (-nx, -ny)
-        arcs.append(Arc(place.index, place.source, place.target, place.tokens,
-                        (start, control, end), mid, side, critical))
-    return arcs
+        arcs[place.index] = Arc(place.index, place.source, place.target, place.tokens,
+                                (start, control, end), mid, side,
+                                place.index in critical_places)
+    stacked: dict[str, int] = {}
+    for place in loops:
+        # A self-loop goes above the box, or below it when more arcs leave from the top.
+        x, y = positions[place.source]
+        used = leaving[place.source]
+        up = 1.0 if sum(v > 1e-9 for v in used) <= sum(v < -1e-9 for v in used) else -1.0
+        k = stacked.get(place.source, 0)
+        stacked[place.source] = k + 1
+        lift = up * (0.75 + 0.35 * k)
+        edge = y + up * half_h
+        points = ((x - 0.22, edge), (x - 0.45, edge + lift), (x + 0.45, edge + lift),
+                  (x + 0.22, edge))
+        arcs[place.index] = Arc(place.index, place.source, place.target, place.tokens, points,
+                                (x, edge + 0.75 * lift), (1.0, 0.0),
+                                place.index in critical_places)
+    return [arcs[p.index] for p in places]
 
 
 def layout_graph(

@@ -38,13 +38,18 @@ def algebra(document: Mapping[str, Any]) -> str:
     if certificate:
         checked = bool(certificate.get("checked"))
         mark = "✓ Checked" if checked else "○ Not checked"
-        rows = [["Circuit ratio (cycle time of the critical circuit)",
-                 fmt(certificate.get("circuit_ratio"), 6)],
-                ["Eigenvector residual", fmt(certificate.get("eigen_residual"))],
-                ["Largest reduced weight", fmt(certificate.get("max_reduced_weight"))]]
+        names = [("circuit_ratio", "Circuit ratio (cycle time of the critical circuit)", 6),
+                 ("circuit_gap", "Gap between circuit ratio and cycle time", 4),
+                 ("monotone_gap", "Monotonicity gap", 4),
+                 ("eigen_residual", "Eigenvector residual", 4),
+                 ("max_reduced_weight", "Largest reduced weight", 4),
+                 ("tolerance", "Tolerance", 4)]
+        rows = [[label, fmt(certificate[key], digits)] for key, label, digits in names
+                if certificate.get(key) is not None]
         out += (f'<p class="result {"good" if checked else "plain"}"><strong>{mark}.</strong> '
                 f'{e(str(certificate.get("text") or ""))}</p>\n')
-        out += table(["Quantity", "Value"], rows, {1}, "Certificate of the cycle time")
+        if rows:
+            out += table(["Quantity", "Value"], rows, {1}, "Certificate of the cycle time")
         out += ('<p class="note">A certificate is checked without the algorithm that found the '
                 "answer: a circuit whose ratio is the cycle time, and an eigenvector against "
                 "which no place has a positive reduced weight.</p>\n")
@@ -53,7 +58,8 @@ def algebra(document: Mapping[str, Any]) -> str:
                 f"({e(str(charpoly['skipped']))}).</p>\n")
     elif charpoly:
         corners = charpoly.get("corners") or []
-        rows = [[fmt(value, 6), fmt(int(mult))] for value, mult in corners]
+        rows = [["ε (−∞)" if value is None else fmt(value, 6), fmt(int(mult))]
+                for value, mult in corners]
         terms = sorted(charpoly.get("terms") or [], key=lambda term: -term[0])
         written = [
             (_power(int(k)) if float(c) == 0 and k else

@@ -42,6 +42,8 @@ or ``None``, and the page then leaves its part out (a document of ``analyze`` ha
         cycle_time_by_transition  {id: float}
         critical_circuits   [[id, ...] in circuit order]; for random durations those of the
                             mean durations (may be empty)
+        critical_places     [place index, ...] on critical circuits (optional: without it
+                            the place of least slack between two critical transitions)
         cyclicity           int | None: period in firings of the periodic regime
         bounds              {"lower": float, "upper": float} | None (random durations)
         firings_simulated   int: firings computed for the estimate, all replications
@@ -50,10 +52,11 @@ or ``None``, and the page then leaves its part out (a document of ``analyze`` ha
         slack               {"transitions": {id: float | None}, "places": [float | None,
                             one per place]}: how much a duration (a hold) may grow before
                             λ changes
-        certificate         {"checked": bool, "circuit_ratio": float, "eigen_residual":
-                            float, "max_reduced_weight": float, "text": str}
-        charpoly            {"corners": [[value, multiplicity], ...], "terms": [[k, coeff],
-                            ...] meaning coeff ⊗ z^k} | {"skipped": reason}
+        certificate         {"checked": bool, "text": str, and any of the numbers
+                            "circuit_ratio", "circuit_gap", "monotone_gap", "eigen_residual",
+                            "max_reduced_weight", "tolerance"}
+        charpoly            {"corners": [[value | None (ε), multiplicity], ...], "terms":
+                            [[k, coeff], ...] meaning coeff ⊗ z^k} | {"skipped": reason}
         transient_firings   int | None: firings before the periodic regime
         criticality         {"transitions": {id: fraction}, "places": [fraction, ...]} |
                             None: share of firings in which the element was on the path that
@@ -242,6 +245,8 @@ def render_page(document: Mapping[str, Any]) -> str:
         '<html lang="en">\n<head>\n<meta charset="utf-8">\n'
         '<meta name="viewport" content="width=device-width, initial-scale=1">\n'
         f'<meta name="generator" content="cyclecheck-report {version}">\n'
+        # An empty icon: browsers would otherwise ask the server for /favicon.ico.
+        '<link rel="icon" href="data:,">\n'
         f"<title>{title}</title>\n<style>\n{_stylesheet()}</style>\n</head>\n"
         f"<body>\n{body}</body>\n</html>\n"
     )

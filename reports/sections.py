@@ -141,7 +141,8 @@ def _numbers(document: Mapping[str, Any]) -> str:
     cards = []
     sub = ("exact: the max-plus eigenvalue" if exact else
            f"95 % interval {fmt(ci[0])} – {_with_unit(fmt(ci[1]), unit)}")
-    cards.append(("Cycle time λ", _with_unit(fmt(lam, 6 if exact else 4), unit), sub))
+    cards.append(('Cycle time <span class="sym">λ</span>',
+                  _with_unit(fmt(lam, 6 if exact else 4), unit), sub))
     cards.append(("Throughput", f"{fmt(main.get('throughput'))} {per}",
                   "firings of each transition (1/λ)"))
     circuits = analysis.get("critical_circuits") or []
@@ -188,6 +189,15 @@ def _places_spec(model: Mapping[str, Any]) -> list[PlaceSpec]:
             for i, p in enumerate(model["places"])]
 
 
+def _critical_places(analysis: Mapping[str, Any], circuits: list[Any], specs: list[PlaceSpec]
+                     ) -> set[int]:
+    """The places on critical circuits: from the document, or chosen by the least slack."""
+    given = analysis.get("critical_places")
+    if given is not None:
+        return {int(i) for i in given}
+    return choose_critical_places(circuits, specs, _get(analysis.get("slack"), "places"))
+
+
 def _graph(document: Mapping[str, Any], figs: Figures) -> str:
     model = document["model"]
     analysis = _get(document, "analysis") or {}
@@ -198,7 +208,7 @@ def _graph(document: Mapping[str, Any], figs: Figures) -> str:
     circuits = [[str(t) for t in c] for c in analysis.get("critical_circuits") or []]
     slack = _get(analysis.get("slack"), "places")
     criticality = _get(analysis.get("criticality"), "places")
-    drawing = layout_graph(ids, specs, circuits, choose_critical_places(circuits, specs, slack))
+    drawing = layout_graph(ids, specs, circuits, _critical_places(analysis, circuits, specs))
     random = bool(model.get("is_random")) and criticality
     unit = _unit(document)
     if random:
@@ -242,7 +252,7 @@ def _elements(document: Mapping[str, Any]) -> str:
     critical_t = {str(t) for c in circuits for t in c}
     specs = _places_spec(model)
     slack = analysis.get("slack") or {}
-    critical_p = choose_critical_places(circuits, specs, slack.get("places"))
+    critical_p = _critical_places(analysis, circuits, specs)
     crit = analysis.get("criticality") or simulation.get("criticality") or {}
     util_a, util_s = analysis.get("utilization") or {}, simulation.get("utilization") or {}
     start = _get(_get(document.get("figures"), "schedule"), "start") or {}
