@@ -669,6 +669,14 @@ class SpecTable:
         if self.laws:
             has_law = cods >= 0
             vals[has_law] = np.array([law.mean for law in self.laws])[cods[has_law]]
+            # A fixed law is stored as a plain number, so that equal models compare equal
+            # whichever way they wrote their constants.
+            keep = [not isinstance(law, Fixed) for law in self.laws]
+            if not all(keep):
+                remap = np.cumsum(keep, dtype=np.int32) - 1
+                remap[~np.array(keep)] = -1
+                cods = np.append(remap, np.int32(-1))[cods]  # code -1 picks the final -1
+                self.laws = tuple(law for law, k in zip(self.laws, keep, strict=True) if k)
         if not np.all(np.isfinite(vals)) or (n and vals.min() < 0):
             raise ValueError("fixed values must be finite and >= 0")
         random_law = np.array([law.is_random for law in self.laws] + [False])

@@ -348,13 +348,16 @@ def _read_csv(path: Path, required: tuple[str, ...], optional: tuple[str, ...],
     data, text = _read_file(path, "CSV table")
     allowed = required + optional
     start = re.search(r"\S", text)
-    line = text.count("\n", 0, start.start()) + 1 if start else 1
-    end = text.find("\n", start.start()) if start else -1
-    first = (text[start.start() : end if end >= 0 else len(text)] if start else "").rstrip("\r")
-    header = [c.strip() for c in next(csv.reader([first]))] if first else []
+    line = len(re.findall(r"\r\n|\r|\n", text[: start.start()])) + 1 if start else 1
 
     def bad_header(rule: str) -> ModelError:
         return ModelError(rule, file=path, item=f"line {line}")
+
+    first = re.compile(r"[^\r\n]*").match(text, start.start()).group() if start else ""
+    try:
+        header = [c.strip() for c in next(csv.reader([first]))] if first else []
+    except csv.Error as exc:
+        raise bad_header(f"cannot read the header: {exc}") from None
 
     if not header:
         raise bad_header(f"the first line must name the columns, e.g. {','.join(allowed)}")

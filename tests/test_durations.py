@@ -381,5 +381,11 @@ def test_spec_table():
     assert both == SpecTable.from_specs([*SPECS_T, SPECS_T[0], *SPECS_P])
     assert both != table and table != SpecTable.from_specs([1.0] * 5)
     assert not SpecTable(np.array([1.0, 2.0])).is_random
+    # a fixed law given as a law is stored as a number
+    laws = (parse_spec("fixed(value=2)"), parse_spec(SPECS_T[0]))
+    coded = SpecTable(np.zeros(3), [0, 1, -1], laws)
+    assert coded.laws == laws[1:] and coded.codes.tolist() == [-1, 0, -1]
+    assert coded.values.tolist() == [2.0, 3.0, 0.0]
+    assert coded == SpecTable.from_specs([2.0, SPECS_T[0], 0.0])
     with pytest.raises(ValueError):
         SpecTable(np.array([-1.0]))

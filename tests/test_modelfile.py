@@ -11,6 +11,7 @@ graph of its token-free places has a cycle, the definition of a dead timed event
 from __future__ import annotations
 
 import hashlib
+import itertools
 import os
 import re
 import textwrap
@@ -19,12 +20,11 @@ from pathlib import Path
 import networkx as nx
 import numpy as np
 import pytest
-from hypothesis import HealthCheck, given, settings
-from hypothesis import strategies as st
-
 from cyclecheck.simulate.durations import Sampler, SpecTable, parse_spec
 from cyclecheck.simulate.errors import ModelError
 from cyclecheck.simulate.modelfile import Model, load_model, write_csv_model
+from hypothesis import HealthCheck, given, settings
+from hypothesis import strategies as st
 
 CELL = """\
 [model]
@@ -148,7 +148,7 @@ def _same(a: Model, b: Model) -> None:
 
 CELL_T_CSV = """\
 id,label,duration
-fill,Filler,12
+fill,Filler,fixed(value=12)
 cap,, "gamma(mean=3, cv=0.5)"
 label,,"uniform(low=2, high=4)"
 """
@@ -211,7 +211,8 @@ def live_graphs(draw):
     return duration, src, dst, tokens, hold
 
 
-@settings(max_examples=40, deadline=None, suppress_health_check=[HealthCheck.function_scoped_fixture])
+@settings(max_examples=40, deadline=None,
+          suppress_health_check=[HealthCheck.function_scoped_fixture])
 @given(graph=live_graphs())
 def test_write_csv_model_round_trip(tmp_path, graph):
     """write_csv_model then load_model returns the same numbers, bit for bit."""
@@ -427,7 +428,7 @@ def test_csv_conveniences(tmp_path):
     assert not m.holds.is_random and m.holds.values.tolist() == [0.0] * 4
 
 
-def _dead_or_unfed(src, dst, tokens, n):
+def _has_token_free_cycle(src, dst, tokens, n):
     """The independent twin: networkx says whether token-free places close a cycle."""
     g = nx.DiGraph()
     g.add_nodes_from(range(n))
@@ -435,7 +436,8 @@ def _dead_or_unfed(src, dst, tokens, n):
     return any(True for _ in nx.simple_cycles(g))
 
 
-@settings(max_examples=60, deadline=None, suppress_health_check=[HealthCheck.function_scoped_fixture])
+@settings(max_examples=60, deadline=None,
+          suppress_health_check=[HealthCheck.function_scoped_fixture])
 @given(data=st.data())
 def test_deadlock_iff_token_free_cycle(tmp_path, data):
     """load_model refuses a fed model for a deadlock exactly when networkx finds a cycle of
@@ -447,7 +449,7 @@ def test_deadlock_iff_token_free_cycle(tmp_path, data):
     dst = data.draw(st.permutations(range(n))) + data.draw(st.lists(ends, min_size=m, max_size=m))
     tokens = data.draw(st.lists(st.integers(0, 2), min_size=n + m, max_size=n + m))
     path = write_csv_model(tmp_path, "dead", [1.0] * n, src, dst, tokens, [0.0] * (n + m))
-    dead = _dead_or_unfed(src, dst, tokens, n)
+    dead = _has_token_free_cycle(src, dst, tokens, n)
     try:
         load_model(path)
     except ModelError as err:
@@ -455,9 +457,28 @@ def test_deadlock_iff_token_free_cycle(tmp_path, data):
         circuit = re.fullmatch(r"circuit (.*)", err.item).group(1).split(" -> ")
         assert circuit[0] == circuit[-1]
         free = {(f"t{s}", f"t{d}") for s, d, k in zip(src, dst, tokens, strict=True) if k == 0}
-        assert all(pair in free for pair in zip(circuit, circuit[1:], strict=False))
+        assert all(pair in free for pair in itertools.pairwise(circuit))
     else:
         assert not dead
+
+
+@settings(max_examples=150, deadline=None,
+          suppress_health_check=[HealthCheck.function_scoped_fixture])
+@given(toml=st.lists(st.sampled_from(
+           [*'[]{}="\n ,.-#', "model", "name", "places", "transitions", "id", "from", "to",
+            "tokens", "hold", "duration", "1", "dist", "gamma", "x", "csv"])).map("".join),
+       table=st.lists(st.sampled_from(
+           [*',"\n\r -.()=', "from", "to", "tokens", "hold", "fill", "cap", "0", "1", "nan",
+            "gamma", "mean", "cv"])).map("".join))
+def test_garbage_gives_model_error_only(tmp_path, toml, table):
+    """Whatever the text, load_model returns a model or raises ModelError, nothing else."""
+    files = {"m.toml": toml, "p.csv": table}
+    good = tables(p="from,to,tokens,hold\nfill,cap,0,0\ncap,fill,1,0\n" + table)
+    for content in (files, good):
+        try:
+            load_model(write(tmp_path, content))
+        except ModelError as err:
+            assert str(err)
 
 
 @pytest.mark.slow
