@@ -64,9 +64,12 @@ RTOL = 1e-9
 
 def _term_scale(graph: EventGraph, result: HowardResult) -> np.ndarray:
     """Per place, the size of the terms of its reduced weight (what its rounding scales with)."""
-    eta, v = result.cycle_time, result.bias
-    return (graph.weight + np.abs(eta[graph.target]) * graph.tokens + np.abs(v[graph.source])
-            + np.abs(v[graph.target]))
+    eta = result.cycle_time
+    # A bias is a sum along a path: its rounding scales with the terms summed, not with its
+    # value (1 - 1.000000001 is tiny, its error is not).
+    v = result.bias_scale if result.bias_scale is not None else np.abs(result.bias)
+    return (graph.weight + np.abs(eta[graph.target]) * graph.tokens + v[graph.source]
+            + v[graph.target])
 
 
 def _same_cycle_time(graph: EventGraph, result: HowardResult) -> np.ndarray:

@@ -97,6 +97,10 @@ class HowardResult:
         transitions that drain from it; all of them are critical.
     iterations : int
         Number of policy improvements.
+    bias_scale : ndarray of float, shape (n,), optional
+        Sum of the absolute terms that make up each bias (weights and ``eta`` times tokens
+        along the policy path): the size its rounding error scales with. ``None``: use
+        ``abs(bias)``.
     """
 
     cycle_time: np.ndarray
@@ -104,6 +108,7 @@ class HowardResult:
     policy: np.ndarray
     circuits: list[Circuit]
     iterations: int
+    bias_scale: np.ndarray | None = None
 
     @property
     def max_cycle_time(self) -> float:
@@ -203,6 +208,7 @@ class _SortedPlaces:
 class _Evaluation:
     eta: np.ndarray
     bias: np.ndarray
+    bias_scale: np.ndarray  # sum of the absolute terms of each bias
     roots: np.ndarray  # one transition per policy circuit (its smallest index)
 
 
@@ -224,7 +230,7 @@ def _evaluate(places: _SortedPlaces, policy: np.ndarray) -> _Evaluation:
     ratio[roots] = circ_w / circ_m
     eta = ratio[root_of]
     bias = sum_w - eta * sum_m
-    return _Evaluation(eta, bias, roots)
+    return _Evaluation(eta, bias, sum_w + np.abs(eta) * sum_m, roots)
 
 
 #: Relative precision of the comparisons in policy improvement. Differences are judged against
@@ -287,7 +293,9 @@ def howard(graph: EventGraph, *, max_iterations: int | None = None) -> HowardRes
         ev = _evaluate(places, policy)
         eta_src = ev.eta[places.source]
         best_eta, arg_eta = places.segment_argmax(eta_src)
-        improve = _exceeds(best_eta, ev.eta)
+        # Compare with the value of the place in force, computed the same way, so that rounding
+        # cancels; a switch must change the policy (else a tie could loop forever).
+        improve = _exceeds(best_eta, eta_src[policy]) & (arg_eta != policy)
         if improve.any():
             policy = np.where(improve, arg_eta, policy)
         else:
@@ -296,7 +304,7 @@ def howard(graph: EventGraph, *, max_iterations: int | None = None) -> HowardRes
             value[_exceeds(eta_tgt, eta_src)] = -np.inf
             best_val, arg_val = places.segment_argmax(value)
             # The bias is a sum along a chain: its rounding scales with the weights summed.
-            improve = _exceeds(best_val, ev.bias, places.max_weight)
+            improve = _exceeds(best_val, value[policy], places.max_weight) & (arg_val != policy)
             if not improve.any():
                 break
             policy = np.where(improve, arg_val, policy)
@@ -307,7 +315,7 @@ def howard(graph: EventGraph, *, max_iterations: int | None = None) -> HowardRes
     policy = places.order[policy]
     circuits = [_extract_circuit(graph, policy, int(r)) for r in ev.roots]
     circuits.sort(key=lambda c: (-c.ratio, c.transitions))
-    return HowardResult(ev.eta, ev.bias, policy, circuits, iterations)
+    return HowardResult(ev.eta, ev.bias, policy, circuits, iterations, ev.bias_scale)
 
 
 def _extract_circuit(graph: EventGraph, policy: np.ndarray, root: int) -> Circuit:
