@@ -205,10 +205,18 @@ def _columns(nodes: list[str], places: Sequence[PlaceSpec]) -> dict[str, int]:
     order.reverse()
     rank = {t: i for i, t in enumerate(order)}
     column = dict.fromkeys(nodes, 0)
+    fed: set[str] = set()
     for node in order:
         for nxt in succ[node]:
             if rank[nxt] > rank[node]:
                 column[nxt] = max(column[nxt], column[node] + 1)
+                fed.add(nxt)
+    # A source sits just before the first transition it feeds, not in column 0: a second
+    # product line joining a shared vessel is drawn beside the vessel, not at the far left.
+    for node in reversed(order):
+        later = [column[n] for n in succ[node] if rank[n] > rank[node]]
+        if node not in fed and later:
+            column[node] = max(column[node], min(later) - 1)
     return column
 
 
@@ -330,13 +338,16 @@ def _bows(
             bows[place.index] = 0.0  # a forward step to the next column: straight
             continue
         bow = 0.22 * length + 0.3 if dx > 0 else 0.3 * length + 0.6
-        # Bow away from the middle of the drawing, so that circuits close around it.
-        if abs(ny) > 1e-9:
-            away = 1.0 if (a[1] + b[1]) / 2 >= centre_y - 1e-9 else -1.0
-            bows[place.index] = math.copysign(bow, away * ny)
-        else:
-            away = 1.0 if (a[0] + b[0]) / 2 >= centre_x else -1.0
-            bows[place.index] = math.copysign(bow, away * nx)
+        # Bow away from the middle of the drawing, so that circuits close around it; on a
+        # tie (a drawing of one row), upwards.
+        mx, my = (a[0] + b[0]) / 2, (a[1] + b[1]) / 2
+
+        def spread(sign: float, mx: float = mx, my: float = my, nx: float = nx,
+                   ny: float = ny, bow: float = bow) -> float:
+            x, y = mx + sign * bow * nx, my + sign * bow * ny
+            return math.hypot(x - centre_x, y - centre_y) + 1e-6 * sign * ny
+
+        bows[place.index] = bow if spread(1.0) >= spread(-1.0) else -bow
     # Places between one pair of transitions that would lie on one curve are spread apart.
     # Offsets are compared in the frame of the sorted pair, where the normal of the
     # opposite direction points the other way.

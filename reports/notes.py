@@ -49,7 +49,8 @@ def algebra(document: Mapping[str, Any]) -> str:
         out += (f'<p class="result {"good" if checked else "plain"}"><strong>{mark}.</strong> '
                 f'{e(str(certificate.get("text") or ""))}</p>\n')
         if rows:
-            out += table(["Quantity", "Value"], rows, {1}, "Certificate of the cycle time")
+            out += table(["Quantity", "Value"], rows, {1}, "Certificate of the cycle time",
+                         compact=True)
         out += ('<p class="note">A certificate is checked without the algorithm that found the '
                 "answer: a circuit whose ratio is the cycle time, and an eigenvector against "
                 "which no place has a positive reduced weight.</p>\n")
@@ -70,7 +71,7 @@ def algebra(document: Mapping[str, Any]) -> str:
                     f'<span class="formula">χ(z) = {" ⊕ ".join(written)}{more}</span></p>\n')
         if rows:
             out += table(["Corner", "Multiplicity"], rows, {0, 1},
-                         "Corners of the characteristic maxpolynomial")
+                         "Corners of the characteristic maxpolynomial", compact=True)
             out += ('<p class="note">The corners are the roots of χ; the greatest corner is '
                     "the cycle time of the matrix of the expanded event graph.</p>\n")
     return section("algebra", "How the exact result was verified", out)

@@ -11,6 +11,7 @@ cautions.
 from __future__ import annotations
 
 import html
+import re
 from collections.abc import Mapping, Sequence
 from typing import Any
 
@@ -35,7 +36,7 @@ def _unit(document: Mapping[str, Any]) -> str:
 
 
 def _with_unit(value: str, unit: str) -> str:
-    return f"{value}\u00a0{e(unit)}" if unit else value
+    return f'{value}<span class="unit">\u00a0{e(unit)}</span>' if unit else value
 
 
 class Figures:
@@ -57,7 +58,7 @@ def section(name: str, heading: str, content: str) -> str:
 
 
 def table(headers: Sequence[str], rows: Sequence[Sequence[str]], numeric: set[int],
-           caption: str = "") -> str:
+           caption: str = "", compact: bool = False) -> str:
     def cell(tag: str, i: int, text: str) -> str:
         return f'<{tag} class="num">{text}</{tag}>' if i in numeric else f"<{tag}>{text}</{tag}>"
 
@@ -65,8 +66,9 @@ def table(headers: Sequence[str], rows: Sequence[Sequence[str]], numeric: set[in
     lines = ["<tr>" + "".join(cell("td", i, c) for i, c in enumerate(row)) + "</tr>"
              for row in rows]
     cap = f"<caption>{caption}</caption>" if caption else ""
-    return (f'<div class="table-wrap"><table>{cap}<thead><tr>{head}</tr></thead>\n<tbody>\n'
-            + "\n".join(lines) + "\n</tbody></table></div>\n")
+    css = ' class="compact"' if compact else ""
+    return (f'<div class="table-wrap"><table{css}>{cap}<thead><tr>{head}</tr></thead>\n'
+            "<tbody>\n" + "\n".join(lines) + "\n</tbody></table></div>\n")
 
 
 def _masthead(document: Mapping[str, Any]) -> str:
@@ -137,33 +139,36 @@ def _numbers(document: Mapping[str, Any]) -> str:
     exact = bool(analysis.get("exact"))
     lam = main.get("cycle_time")
     ci = main.get("cycle_time_ci") or [None, None]
-    per = f"per {e(unit)}" if unit else "per time unit"
+    per = f"per\u00a0{e(unit)}" if unit else "per time unit"
     cards = []
     sub = ("exact: the max-plus eigenvalue" if exact else
            f"95 % interval {fmt(ci[0])} – {_with_unit(fmt(ci[1]), unit)}")
     cards.append(('Cycle time <span class="sym">λ</span>',
                   _with_unit(fmt(lam, 6 if exact else 4), unit), sub))
-    cards.append(("Throughput", f"{fmt(main.get('throughput'))} {per}",
+    cards.append(("Throughput", f'{fmt(main.get("throughput"))}<span class="unit">\u00a0{per}'
+                  "</span>",
                   "firings of each transition (1/λ)"))
     circuits = analysis.get("critical_circuits") or []
     bounds = analysis.get("bounds")
     if bounds:
-        cards.append(("Bounds on λ", f"{fmt(bounds.get('lower'))} – "
+        cards.append(('Bounds on <span class="sym">λ</span>', f"{fmt(bounds.get('lower'))} – "
                       f"{_with_unit(fmt(bounds.get('upper')), unit)}",
                       "lower: cycle time of the mean durations"))
     if circuits:
         more = f"; {len(circuits)} critical circuits in all" if len(circuits) > 1 else ""
         cards.append(("Critical circuit", _circuit_text(circuits[0]),
                       "the bottleneck" + (" of the mean durations" if bounds else "") + more))
-    firings = main.get("firings_simulated")
+    # An exact analysis computes no firings for its answer: show what the simulation ran.
+    firings = (simulation or main).get("firings_simulated")
     if firings is not None:
         cyclicity = analysis.get("cyclicity")
-        cards.append(("Firings computed", fmt(firings),
+        cards.append(("Firings simulated" if simulation else "Firings computed", fmt(firings),
                       f"cyclicity {fmt(cyclicity)} firings" if cyclicity else
                       "all replications together"))
     html_cards = "".join(
         f'<div class="card"><p class="card-label">{label}</p><p class="card-value'
-        f'{" long" if len(value) > 24 else ""}">{value}</p><p class="card-sub">{sub}</p></div>'
+        f'{" long" if len(re.sub("<[^>]+>", "", value)) > 24 else ""}">{value}</p>'
+        f'<p class="card-sub">{sub}</p></div>'
         for label, value, sub in cards)
     out = f'<div class="cards">{html_cards}</div>\n'
     if analysis and simulation:
@@ -418,15 +423,17 @@ def sample_path(document: Mapping[str, Any]) -> str:
     firings = fmt(data.get("firings_compared"))
     count = data.get("replications_compared")
     reps = f"{fmt(count)} replication{'' if count == 1 else 's'}"
+    draws = ("on the same random draws" if document["model"].get("is_random") else
+             "from the same fixed durations")
     if data.get("identical"):
         head = ('<p class="result good"><span class="mark" aria-hidden="true">✓</span> '
                 "<strong>Identical sample paths.</strong> The SimPy model and the max-plus "
-                "recursion computed the same firing times on the same random draws: "
+                f"recursion computed the same firing times {draws}: "
                 f"{firings} firings in {reps}, largest relative difference "
                 f"{fmt(data.get('max_relative_difference'))}.</p>\n")
     else:
         head = ('<p class="result bad"><span class="mark" aria-hidden="true">✗</span> '
-                "<strong>The sample paths differ.</strong> On the same random draws, the SimPy "
+                f"<strong>The sample paths differ.</strong> {draws.capitalize()}, the SimPy "
                 "model and the max-plus recursion computed different firing times: largest "
                 f"relative difference {fmt(data.get('max_relative_difference'))} over "
                 f"{firings} firings in {reps}.</p>\n")

@@ -97,7 +97,7 @@ FIXED_TEXTS = [
     "10.5",  # slack of wrap's self-loop
     "Identical sample paths.",
     "strongest validation the tool offers",
-    "same firing times on the same random draws",
+    "same firing times from the same fixed durations",
     "12,000 firings in 1 replication,",
     "χ(z) = z⁸ ⊕ 40.5 ⊗ z⁵ ⊕ 52.5 ⊗ z⁴ ⊕ 60 ⊗ z³ ⊕ 69 ⊗ z ⊕ 72",
     "The tray loop has ratio 40.5/3 = 13.5",
@@ -121,6 +121,8 @@ RANDOM_TEXTS = [
     "lower 9.75 min",
     "upper 12.64 min",
     "80,000 firings in 10 replications,",
+    "same firing times on the same random draws",
+    "Firings simulated",
     "gamma(mean=3, cv=0.5)",
     "lognormal(mean=4, cv=0.3)",
     "91.0 %",  # criticality of the dock
