@@ -1,0 +1,80 @@
+"""Replications on other workers give the same numbers: local processes and a real Dask cluster.
+
+The draws of replication ``r`` depend only on ``(seed, r)`` (numpy SeedSequence spawn keys), so
+where a replication runs must not change a single bit of its result. The Dask test starts a real
+``distributed.LocalCluster`` on 127.0.0.1 (Dask documentation: LocalCluster for tests; tasks
+submitted with ``pure=False``).
+"""
+
+from __future__ import annotations
+
+import json
+import subprocess
+import sys
+from pathlib import Path
+
+import numpy as np
+import pytest
+
+from cyclecheck.simulate.experiment import open_executor, run_replications
+from cyclecheck.simulate.modelfile import load_model
+
+MODELS = Path(__file__).resolve().parents[1] / "models"
+SCRIPT = Path(sys.executable).with_name("cyclecheck")
+
+
+@pytest.fixture(scope="module")
+def model():
+    return load_model(MODELS / "closed_line_exponential.toml")
+
+
+def test_process_pool_gives_the_same_replications(model) -> None:
+    """Four replications in two local processes equal the same four run in this process."""
+    here = run_replications(model, "recursion", 5, range(4), 500)
+    executor, close = open_executor(workers=2)
+    try:
+        there = run_replications(model, "recursion", 5, range(4), 500, executor=executor,
+                                 chunks=2)
+    finally:
+        close()
+    np.testing.assert_array_equal(here.x, there.x)
+    np.testing.assert_array_equal(here.replications, there.replications)
+
+
+@pytest.mark.cluster
+def test_dask_cluster_gives_the_same_estimate(model) -> None:
+    """A real LocalCluster on 127.0.0.1: `analyze --scheduler` prints the same document numbers
+    as a run in one process, and both engines' replications match bit for bit."""
+    distributed = pytest.importorskip("distributed")
+    with distributed.LocalCluster(host="127.0.0.1", n_workers=2, threads_per_worker=1,
+                                  processes=True, dashboard_address=None) as cluster:
+        executor, close = open_executor(scheduler=cluster.scheduler_address)
+        try:
+            for engine in ("recursion", "simpy"):
+                remote = run_replications(model, engine, 11, range(4), 300, executor=executor,
+                                          chunks=4)
+                local = run_replications(model, engine, 11, range(4), 300)
+                np.testing.assert_array_equal(remote.x, local.x)
+        finally:
+            close()
+        args = ["analyze", str(MODELS / "closed_line_exponential.toml"), "--json",
+                "--replications", "4", "--firings", "2000", "--seed", "3"]
+        remote = subprocess.run([str(SCRIPT), *args, "--scheduler", cluster.scheduler_address],
+                                capture_output=True, text=True, timeout=300, check=False)
+        local = subprocess.run([str(SCRIPT), *args], capture_output=True, text=True,
+                               timeout=300, check=False)
+    assert remote.returncode == 0, remote.stderr
+    assert local.returncode == 0, local.stderr
+    a, b = json.loads(remote.stdout), json.loads(local.stdout)
+    assert a["cycle_time"] == b["cycle_time"]
+    assert a["cycle_time_ci"] == b["cycle_time_ci"]
+
+
+def test_unreachable_scheduler_is_an_input_error() -> None:
+    """A scheduler address where nothing listens: exit 2 with a message, no traceback."""
+    pytest.importorskip("distributed")
+    out = subprocess.run([str(SCRIPT), "analyze", str(MODELS / "closed_line_exponential.toml"),
+                          "--scheduler", "tcp://127.0.0.1:9", "--replications", "2"],
+                         capture_output=True, text=True, timeout=120, check=False)
+    assert out.returncode == 2, out.stderr
+    assert "scheduler" in out.stderr and "Traceback" not in out.stderr
