@@ -1,0 +1,709 @@
+r"""Judge an event log of any simulator against the model's max-plus equations.
+
+An event log is a CSV table with one line per completed firing and the columns
+``transition,firing,time`` (firing numbers count from 1, ``time`` is the completion time),
+optionally ``start``; other columns are ignored. Firing ``k`` of transition ``t`` is judged
+*locally*, from the logged completion times of the firings it waits for:
+
+.. math::
+
+    \operatorname{term}_p(k) = \begin{cases} 0 & k \le m_p \\
+    x_u(k - m_p) + h_p(k) & k > m_p \end{cases}, \qquad
+    s_t(k) = \max_{p = (u \to t)} \operatorname{term}_p(k), \qquad x_t(k) = s_t(k) + d_t(k).
+
+With fixed numbers the log must match these equations. With random durations or holds the draws
+are unknown, so the judge checks what holds for *every* draw in the support ``[lo, hi]`` of each
+law (:func:`support_bounds`): the start lies between ``max_p (x_u + lo_p)`` and
+``max_p (x_u + hi_p)`` and the duration ``x − s`` between ``lo_t`` and ``hi_t`` (without a
+``start`` column, the completion lies between the sums). Where a transition's duration and the
+holds of its input places are fixed the interval is a point and the check is exact: a firing
+that waits longer than its tokens is a violation.
+
+Because every check uses the logged times of the other firings, a wrong time also upsets the
+firings that wait for it. Violations are therefore listed by the earlier of the logged and the
+expected time: the first one listed is usually the cause of those that follow.
+
+A firing whose predecessor is not in the log (the log starts after firing 1, or stops before the
+predecessor) is not judged (``firings_unjudged``). A firing missing *inside* the logged range of
+its transition (firing 7 absent while firing 8 is logged) is a violation when all durations and
+holds are fixed: the firings of a transition then complete in order, so firing 7 belongs to any
+log that holds firing 8. With random ones firings may overtake each other, and firing 7 may still
+be in progress where the log ends: it is a violation only when a logged firing needed it and
+every logged transition has its firing 1 (the log was not cut at its beginning).
+
+Two times ``a`` and ``b`` are equal when ``|a − b| <= tolerance · max(1, |a|, |b|)``.
+
+References
+----------
+Baccelli, F., Cohen, G., Olsder, G. J., Quadrat, J.-P. (1992). *Synchronization and Linearity*.
+Wiley: ch. 2 (firing-time equations of a timed event graph), ch. 8 (the cycle time of the mean
+durations is a lower bound of the cycle time of a stochastic event graph).
+"""
+
+from __future__ import annotations
+
+import csv
+import io
+import math
+import os
+import re
+from dataclasses import dataclass
+from pathlib import Path
+from typing import TYPE_CHECKING, Any
+
+import numpy as np
+
+from ..algebra.spectral import howard
+from .durations import Distribution, Empirical, SpecTable, Triangular, Uniform
+from .errors import ModelError, did_you_mean
+from .modelfile import Model
+
+if TYPE_CHECKING:
+    import pandas as pd
+
+__all__ = ["MAX_FIRING", "MAX_LISTED", "MIN_RATE_FIRINGS", "RATE_NOTE_TOLERANCE", "EventLog",
+           "judge_events", "judge_log", "read_log", "support_bounds"]
+
+REQUIRED = ("transition", "firing", "time")
+OPTIONAL = ("start",)
+MAX_LISTED = 20
+"""Violations spelled out in ``reasons`` and ``first_violations``; the rest are counted."""
+MAX_FIRING = 2**53
+"""Largest firing number: integers up to here survive a float64 column exactly."""
+MIN_RATE_FIRINGS = 10
+"""Fewest firings of a transition for its growth rate to enter ``cycle_time_from_log``."""
+RATE_NOTE_TOLERANCE = 0.01
+"""Relative gap between the log's cycle time and the model's worth a note (common practice)."""
+DENSE_FACTOR = 4
+"""A dense table of firings is used while it has at most this many cells per logged firing."""
+KEY_LIMIT = 2**62
+"""Largest ``transitions × (largest firing + 1)`` packed into one int64 sort key."""
+_SUGGEST_LIMIT = 100_000  # difflib over more ids would make an error message slow
+_FORMAT = "transition,firing,time (optionally start)"
+# violation kind -> (rule, whether the logged value lies below the expected one)
+_KINDS = {1: ("start", True), 2: ("start", False), 3: ("duration", True),
+          4: ("duration", False), 5: ("completion", True), 6: ("completion", False)}
+
+
+def _fmt(x: float) -> str:
+    return f"{float(x):.12g}"
+
+
+def _many(n: int, noun: str) -> str:
+    return f"1 {noun} was" if n == 1 else f"{n} {noun}s were"
+
+
+def support_bounds(law: Distribution) -> tuple[float, float]:
+    """Smallest and largest value a law can draw, ``(lo, hi)``; ``hi`` may be ``inf``.
+
+    A law that is not random gives ``(mean, mean)``; laws on ``[0, inf)`` and laws not known
+    here give ``(0, inf)``, always safe bounds for a duration.
+
+    >>> from cyclecheck.simulate.durations import parse_spec
+    >>> support_bounds(parse_spec({"dist": "uniform", "low": 2, "high": 5}))
+    (2.0, 5.0)
+    >>> support_bounds(parse_spec({"dist": "gamma", "mean": 3, "cv": 0.5}))
+    (0.0, inf)
+    """
+    if not law.is_random:
+        return float(law.mean), float(law.mean)
+    if isinstance(law, (Uniform, Triangular)):
+        return float(law.low), float(law.high)
+    if isinstance(law, Empirical):
+        return float(min(law.values)), float(max(law.values))
+    return 0.0, math.inf  # exponential, gamma, Erlang, log-normal, Weibull, truncated normal
+
+
+def _bounds(table: SpecTable) -> tuple[np.ndarray, np.ndarray]:
+    pairs = np.array([support_bounds(law) for law in table.laws] + [(0.0, 0.0)]).reshape(-1, 2)
+    has_law = table.codes >= 0
+    return (np.where(has_law, pairs[table.codes, 0], table.values),
+            np.where(has_law, pairs[table.codes, 1], table.values))
+
+
+# --------------------------------------------------------------------------- reading a log
+
+
+@dataclass(frozen=True, eq=False)
+class EventLog:
+    """A checked event log, sorted by transition, then firing number.
+
+    Attributes
+    ----------
+    transition, firing : ndarray of int64, shape (R,)
+        Transition index in the model and firing number (from 1); pairs are unique.
+    time : ndarray of float64, shape (R,)
+        Completion times.
+    start : ndarray of float64, shape (R,), or None
+        Start times, when the log has a ``start`` column.
+    row : ndarray of int64, shape (R,)
+        Position of each firing among the data rows of the file (0 for the first one).
+    path : pathlib.Path or None
+    """
+
+    transition: np.ndarray
+    firing: np.ndarray
+    time: np.ndarray
+    start: np.ndarray | None
+    row: np.ndarray
+    path: Path | None = None
+
+    @property
+    def n_firings(self) -> int:
+        return int(self.transition.shape[0])
+
+    @classmethod
+    def from_frame(cls, model: Model, frame: pd.DataFrame) -> EventLog:
+        """Check a table in memory (columns as in a log file; errors name ``row i`` from 1)."""
+        return _events(model, {c: frame[c] for c in frame.columns if c in REQUIRED + OPTIONAL},
+                       len(frame), _Where(None, None))
+
+
+class _Where:
+    """Row index -> ``line N`` of the file (``row N`` for a table in memory), on demand."""
+
+    def __init__(self, path: Path | None, text: str | None) -> None:
+        self.path, self.text = path, text
+
+    def item(self, row: int) -> str:
+        if self.text is None:
+            return f"row {row + 1}"
+        lines = re.split(r"\r\n|\r|\n", self.text)
+        filled = [i for i, s in enumerate(lines) if s.strip()]  # pandas skips blank lines
+        return f"line {filled[min(row + 1, len(filled) - 1)] + 1}"
+
+    def error(self, row: int, rule: str, count: int = 1) -> ModelError:
+        more = f" ({count - 1} more rows like this)" if count > 1 else ""
+        return ModelError(rule + more, file=self.path, item=self.item(row))
+
+
+def read_log(model: Model, path: str | os.PathLike[str]) -> EventLog:
+    """Read and check an event log file against the model's transition ids.
+
+    Raises
+    ------
+    ModelError
+        Naming the file, the line and the rule: unreadable, binary or non-UTF-8 file, empty
+        log, missing or repeated columns, unknown transition ids (with the closest id), firing
+        numbers that are not integers >= 1, times that are not finite numbers >= 0, a start
+        after its completion, a firing logged twice.
+    """
+    import pandas as pd
+
+    path = Path(path)
+    if not path.is_file():
+        raise ModelError("is a directory, expected an event log (CSV)" if path.is_dir() else
+                         "no such file (event log)", file=path)
+    try:
+        data = path.read_bytes()
+    except OSError as exc:
+        raise ModelError(f"cannot be read: {exc.strerror or exc}", file=path) from None
+    if b"\0" in data:
+        raise ModelError(f"is a binary file (it contains NUL bytes), expected an event log: a "
+                         f"CSV table with the columns {_FORMAT}", file=path)
+    try:
+        text = data.decode("utf-8").removeprefix("\ufeff")
+    except UnicodeDecodeError as exc:
+        line = data[: exc.start].count(b"\n") + 1
+        raise ModelError(f"is not UTF-8 text (byte 0x{data[exc.start]:02x}), expected an event "
+                         "log; save it as UTF-8", file=path, item=f"line {line}") from None
+    first = re.search(r"\S", text)
+    if first is None:
+        raise ModelError(f"the event log is empty: the first line must name the columns "
+                         f"{_FORMAT}, then one line per completed firing", file=path)
+    line_no = text.count("\n", 0, first.start()) + 1
+    end = re.compile(r"[\r\n]|$").search(text, first.start()).start()  # type: ignore[union-attr]
+    header = [c.strip() for c in next(csv.reader([text[first.start():end]]))]
+    position: dict[str, int] = {}
+    for name in REQUIRED + OPTIONAL:
+        found = [i for i, c in enumerate(header) if c == name]
+        if len(found) > 1:
+            raise ModelError(f'column "{name}" appears twice', file=path, item=f"line {line_no}")
+        if found:
+            position[name] = found[0]
+        elif name in REQUIRED:
+            others = [c for c in header if c not in REQUIRED + OPTIONAL]
+            raise ModelError(f'missing column "{name}"{did_you_mean(name, others)} (an event '
+                             f"log has the columns {_FORMAT}; other columns are ignored)",
+                             file=path, item=f"line {line_no}")
+    labels = [f"c{i}" for i in range(len(header))]
+    try:
+        # no usecols: with it pandas would drop the extra cells of a ragged line silently
+        frame = pd.read_csv(io.BytesIO(data), header=0, names=labels,
+                            dtype={labels[position["transition"]]: str}, keep_default_na=False,
+                            na_filter=False, skipinitialspace=True, encoding="utf-8-sig")
+    except (pd.errors.ParserError, ValueError) as exc:
+        msg = str(exc).strip().removeprefix("Error tokenizing data. C error: ")
+        m = re.search(r"in line (\d+)", msg)
+        raise ModelError(f"cannot read the event log as CSV: {msg}", file=path,
+                         item=f"line {m.group(1)}" if m else None) from None
+    if len(frame) == 0:
+        raise ModelError("the event log is empty: it has a header but no firing", file=path,
+                         item=f"line {line_no}")
+    cols = {name: frame[labels[i]] for name, i in position.items()}
+    return _events(model, cols, len(frame), _Where(path, text))
+
+
+def _numbers(col: pd.Series, name: str, where: _Where) -> np.ndarray:
+    """A numeric column as float64; empty and non-numeric cells are errors."""
+    import pandas as pd
+
+    if col.dtype.kind in "iuf":
+        return col.to_numpy(dtype=np.float64)
+    text = col.astype(str).str.strip()
+    values = pd.to_numeric(text, errors="coerce").to_numpy(dtype=np.float64)
+    bad = np.flatnonzero(np.isnan(values) & ~text.str.lower().isin(["nan", "+nan", "-nan"])
+                         .to_numpy(bool))
+    if bad.size:
+        r, cell = int(bad[0]), text.iloc[int(bad[0])]
+        raise where.error(r, f"{name} is empty" if cell == "" else
+                          f'{name} must be a number, got "{cell}"', bad.size)
+    return values
+
+
+def _times(col: pd.Series, name: str, where: _Where) -> np.ndarray:
+    values = _numbers(col, name, where)
+    with np.errstate(invalid="ignore"):
+        bad = np.flatnonzero(~np.isfinite(values) | (values < 0))
+    if bad.size:
+        r = int(bad[0])
+        raise where.error(r, f"{name} must be a finite number >= 0, got {float(values[r])!r}",
+                          bad.size)
+    return values + 0.0  # no negative zero
+
+
+def _firings(col: pd.Series, where: _Where) -> np.ndarray:
+    values = col.to_numpy() if col.dtype.kind in "iu" else _numbers(col, "firing", where)
+    with np.errstate(invalid="ignore"):
+        bad = np.flatnonzero(~((values >= 1) & (values <= MAX_FIRING) & (values % 1 == 0)))
+    if bad.size:
+        r = int(bad[0])
+        raise where.error(r, f'firing must be an integer >= 1 (firings count from 1), got '
+                             f'"{str(col.iloc[r]).strip()}"', bad.size)
+    return values.astype(np.int64)
+
+
+def _transitions(model: Model, col: pd.Series, where: _Where) -> np.ndarray:
+    import pandas as pd
+
+    ids = col.fillna("").astype(str).to_numpy(dtype=object)
+    table = pd.Index(model.transition_ids)
+    found = table.get_indexer(ids).astype(np.int64)
+    missing = np.flatnonzero(found < 0)
+    if missing.size:  # stripping every cell would cost more than the rest: only the misses
+        ids[missing] = pd.Series(ids[missing], dtype=object).str.strip().to_numpy(dtype=object)
+        found[missing] = table.get_indexer(ids[missing])
+    unknown = np.flatnonzero(found < 0)
+    if unknown.size:
+        r = int(unknown[0])
+        if ids[r] == "":
+            raise where.error(r, "transition is empty", unknown.size)
+        hint = (did_you_mean(ids[r], model.transition_ids)
+                if model.n_transitions <= _SUGGEST_LIMIT else "")
+        raise where.error(r, f'unknown transition "{ids[r]}"{hint}: the log must use the '
+                             "transition ids of the model", unknown.size)
+    return found
+
+
+def _sort_key(t: np.ndarray, k: np.ndarray, n: int) -> np.ndarray | None:
+    """``t · (max k + 1) + k`` as int64, or None when it could overflow."""
+    width = int(k.max()) + 1
+    return t * np.int64(width) + k if n * width < KEY_LIMIT else None
+
+
+def _events(model: Model, cols: dict[str, Any], n_rows: int, where: _Where) -> EventLog:
+    for name in REQUIRED:
+        if name not in cols:
+            raise ModelError(f'missing column "{name}" (an event log has the columns '
+                             f"{_FORMAT})", file=where.path, item="columns")
+    if n_rows == 0:
+        raise ModelError("the event log is empty: it has no firing", file=where.path)
+    t = _transitions(model, cols["transition"], where)
+    k = _firings(cols["firing"], where)
+    x = _times(cols["time"], "time", where)
+    s = _times(cols["start"], "start", where) if "start" in cols else None
+    if s is not None and (late := np.flatnonzero(s > x)).size:
+        r = int(late[0])
+        raise where.error(r, f"start {_fmt(s[r])} is after the completion time {_fmt(x[r])}",
+                          late.size)
+    key = _sort_key(t, k, model.n_transitions)
+    order = np.lexsort((k, t)) if key is None else np.argsort(key)
+    ts, ks = t[order], k[order]
+    dup = np.flatnonzero((ts[1:] == ts[:-1]) & (ks[1:] == ks[:-1]))
+    if dup.size:  # name the duplicate met first in the file, at its second line
+        later = np.maximum(order[dup], order[dup + 1])
+        j = int(np.argmin(later))
+        first = int(min(order[dup[j]], order[dup[j] + 1]))
+        raise where.error(int(later[j]), f'firing {ks[dup[j]]} of '
+                          f'"{model.transition_ids[int(ts[dup[j]])]}" is logged twice (first '
+                          f"at {where.item(first)})", dup.size)
+    return EventLog(ts, ks, x[order], None if s is None else s[order], order.astype(np.int64),
+                    where.path)
+
+
+# --------------------------------------------------------------------------- the judge
+
+
+class _Index:
+    """Find logged firings ``(u, j)`` in a log sorted by (transition, firing), vectorized.
+
+    A complete log fills most cells of the table ``u · W + j`` (``W`` = largest firing + 1),
+    looked up directly. A sparse log (or huge firing numbers) uses binary search over sorted
+    keys in which each firing number is replaced by its rank among the logged ones.
+    """
+
+    def __init__(self, log: EventLog, n_transitions: int) -> None:
+        t, k, self.n = log.transition, log.firing, log.n_firings
+        key = _sort_key(t, k, n_transitions)
+        self.table = None
+        self.numbers: np.ndarray | None = None
+        if key is not None and (int(k.max()) + 1) * n_transitions <= DENSE_FACTOR * self.n:
+            self.width = np.int64(k.max() + 1)
+            self.table = np.full(int(self.width) * n_transitions, -1, dtype=np.int64)
+            self.table[key] = np.arange(self.n)
+        else:
+            self.numbers = np.unique(k)
+            self.width = np.int64(self.numbers.size)
+            key = t * self.width + np.searchsorted(self.numbers, k)
+        self.keys = key
+
+    def find(self, u: np.ndarray, j: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+        """``(found, pos)`` for firings ``1 <= j <= largest logged firing``.
+
+        Where firing ``j`` of ``u`` is not logged, ``pos`` is the position of the first logged
+        firing after it in (transition, firing) order (``n`` when there is none).
+        """
+        if self.table is not None:
+            q = u * self.width + j
+            pos = self.table[q]
+            found = pos >= 0
+            pos[~found] = np.searchsorted(self.keys, q[~found])
+            return found, pos
+        r = np.searchsorted(self.numbers, j)
+        q = u * self.width + r
+        pos = np.searchsorted(self.keys, q)
+        pc = np.minimum(pos, self.n - 1)
+        found = (self.numbers[np.minimum(r, self.width - 1)] == j) & (self.keys[pc] == q)
+        return found, pos
+
+
+def _tolerance(tolerance: float) -> float:
+    if (isinstance(tolerance, bool) or not isinstance(tolerance, (int, float, np.floating))
+            or not math.isfinite(tolerance) or tolerance < 0):
+        raise ModelError(f"must be a finite number >= 0, got {tolerance!r}", item="tolerance")
+    return float(tolerance)
+
+
+def _below(a: np.ndarray, b: np.ndarray, tol: float) -> np.ndarray:
+    """``a`` lies below ``b`` by more than the tolerance (never where either is infinite)."""
+    with np.errstate(invalid="ignore"):
+        scale = np.maximum(np.maximum(np.abs(a), np.abs(b)), 1.0)
+        return np.isfinite(a) & np.isfinite(b) & (b - a > tol * scale)
+
+
+@dataclass
+class _Pairs:
+    """Every (logged firing, input place) pair, grouped by firing: firing ``i`` owns the pairs
+    ``offsets[i] : offsets[i] + in_degree``."""
+
+    place: np.ndarray
+    offsets: np.ndarray
+    need: np.ndarray   # the term needs a predecessor firing (k > m_p)
+    pred: np.ndarray   # its firing number j = k − m_p
+    found: np.ndarray  # it is logged
+    pos: np.ndarray    # its position in the log (see _Index.find); -1 where not needed
+    low: np.ndarray    # earliest availability of the token (0 for an initial token)
+    high: np.ndarray   # latest availability (inf when the hold is unbounded)
+
+
+def _pairs(model: Model, log: EventLog, index: _Index, hold_lo: np.ndarray,
+           hold_hi: np.ndarray) -> _Pairs:
+    graph = model.graph()
+    porder, pstart = graph.by_target
+    t = log.transition
+    count = graph.in_degree[t]
+    offsets = np.cumsum(count) - count
+    row_of = np.repeat(np.arange(log.n_firings), count)
+    place = porder[pstart[t][row_of] + np.arange(row_of.size) - offsets[row_of]]
+    pred = log.firing[row_of] - model.tokens[place]
+    need = pred >= 1
+    found = np.zeros(row_of.size, dtype=bool)
+    pos = np.full(row_of.size, -1, dtype=np.int64)
+    low, high = np.zeros(row_of.size), np.zeros(row_of.size)
+    sel = np.flatnonzero(need)
+    found[sel], pos[sel] = index.find(model.source[place[sel]], pred[sel])
+    ok = sel[found[sel]]
+    low[ok] = log.time[pos[ok]] + hold_lo[place[ok]]
+    high[ok] = log.time[pos[ok]] + hold_hi[place[ok]]
+    return _Pairs(place, offsets, need, pred, found, pos, low, high)
+
+
+def _holes(model: Model, log: EventLog, pairs: _Pairs, first: np.ndarray) -> tuple[Any, ...]:
+    """Firings missing inside the logged range of their transition.
+
+    Returns ``gap`` (missing firings just before each logged one), ``count`` (those of them
+    that are violations), ``needed_by`` (a logged firing that needed one of them, or -1) and
+    whether every logged transition has its firing 1.
+    """
+    t, k, n = log.transition, log.firing, log.n_firings
+    gap = np.r_[0, k[1:] - k[:-1] - 1]
+    gap[first] = 0
+    from_one = bool(np.all(k[first] == 1))
+    count = np.zeros(n, dtype=np.int64)
+    needed_by = np.full(n, -1, dtype=np.int64)
+    if not model.is_random:
+        count[:] = gap
+    elif from_one and gap.any():
+        miss = np.flatnonzero(pairs.need & ~pairs.found)
+        pc = np.minimum(pairs.pos[miss], n - 1)
+        inside = ((pairs.pos[miss] < n) & (t[pc] == model.source[pairs.place[miss]])
+                  & ~first[pc])  # pc is the logged firing right after the hole
+        miss, pc = miss[inside], pc[inside]
+        if miss.size:
+            distinct = np.unique(np.stack([pc, pairs.pred[miss]]), axis=1)
+            np.add.at(count, distinct[0], 1)
+            rows = np.searchsorted(pairs.offsets, miss, side="right") - 1
+            needed_by[pc[::-1]] = rows[::-1]  # the first firing that needed it is named
+    return gap, count, needed_by, from_one
+
+
+def judge_events(model: Model, log: EventLog, *, tolerance: float = 1e-6,
+                 max_listed: int = MAX_LISTED) -> dict[str, Any]:
+    """Judge a checked :class:`EventLog` against the model; see :func:`judge_log`."""
+    tol = _tolerance(tolerance)
+    ids = model.transition_ids
+    hold_lo, hold_hi = _bounds(model.holds)
+    dur_lo, dur_hi = _bounds(model.durations)
+    index = _Index(log, model.n_transitions)
+    pairs = _pairs(model, log, index, hold_lo, hold_hi)
+    t, k, x, s = log.transition, log.firing, log.time, log.start
+    n_rows = log.n_firings
+
+    judged = np.add.reduceat((pairs.need & ~pairs.found).astype(np.int64), pairs.offsets) == 0
+    low = np.maximum.reduceat(pairs.low, pairs.offsets)
+    high = np.maximum.reduceat(pairs.high, pairs.offsets)
+    dlo, dhi = dur_lo[t], dur_hi[t]
+    kind = np.zeros(n_rows, dtype=np.int8)
+    expected, when = np.full(n_rows, np.nan), np.full(n_rows, np.nan)
+    with np.errstate(invalid="ignore"):  # inf - inf where a bound is unbounded
+        # (code, a, b, logged value, its lower bound): a below b is a violation. A violation
+        # is dated by the lower of the logged value and its lower bound: a firing that waits
+        # for a wrong time is dated no earlier, so the cause comes first in the list.
+        checks = ([(1, s, low, s, low), (2, high, s, s, low), (3, x, s + dlo, x, s + dlo),
+                   (4, s + dhi, x, x, s + dlo)] if s is not None else
+                  [(5, x, low + dlo, x, low + dlo), (6, high + dhi, x, x, low + dlo)])
+        for code, a, b, value, lower in checks:  # the first violation found is kept
+            hit = _below(a, b, tol) & judged & (kind == 0)
+            kind[hit], expected[hit] = code, (b if code % 2 else a)[hit]
+            when[hit] = np.minimum(value, lower)[hit]
+
+    first = np.r_[True, t[1:] != t[:-1]]
+    gap, hole_count, needed_by, from_one = _holes(model, log, pairs, first)
+    violating, hole_rows = np.flatnonzero(kind), np.flatnonzero(hole_count)
+    n_violations = int(violating.size + hole_count.sum())
+    entries = [(when[i], t[i], k[i], i, True)
+               for i in _earliest(violating, when, t, k, max_listed)]
+    entries += [(x[i], t[i], k[i] - gap[i], i, False)
+                for i in _earliest(hole_rows, x, t, k - gap, max_listed)]
+    first_violations = [
+        _violation(model, log, pairs, i, int(kind[i]), float(expected[i]), dur_lo, dur_hi)
+        if timing else _hole(model, log, i, int(gap[i]), int(hole_count[i]), int(needed_by[i]))
+        for *_, i, timing in sorted(entries)[:max_listed]]
+
+    notes = []
+    n_checked, n_unjudged = int(judged.sum()), int((~judged).sum())
+    if n_checked == 0 and n_violations == 0:
+        raise ModelError("no firing of the event log can be judged: every firing needs an "
+                         "earlier firing that is not in the log", file=log.path)
+    if n_unjudged:
+        notes.append(f"{_many(n_unjudged, 'logged firing')} not judged: each needs an "
+                     "earlier firing that is not in the log (the log starts after firing 1 of a transition, "
+                     "misses a firing, or stops before it)")
+    excused = np.flatnonzero(gap > hole_count)
+    if excused.size:
+        i = int(excused[0])
+        notes.append(f"{_many(int((gap - hole_count).sum()), 'firing')} missing inside the "
+                     f'logged range of its transition (for example firing {k[i] - gap[i]} of '
+                     f'"{ids[t[i]]}" while firing {k[i]} is logged); with random durations '
+                     "firings may end out of order, so they may still have been in progress "
+                     "where the log ends" + ("" if from_one else
+                                             ", or the log was cut at its beginning"))
+    present = np.zeros(model.n_transitions, dtype=bool)
+    present[t] = True
+    if not present.all():
+        absent = [f'"{ids[i]}"' for i in np.flatnonzero(~present)[:10]]
+        more = int((~present).sum()) - len(absent)
+        notes.append("transitions never logged: " + ", ".join(absent)
+                     + (f" and {more} more" if more else ""))
+
+    lam = float(howard(model.graph()).max_cycle_time)
+    from_log = _log_cycle_time(log, index, first)
+    if from_log is not None:
+        rel = (from_log - lam) / lam if lam > 0 else 0.0
+        if model.is_random and rel < -RATE_NOTE_TOLERANCE:
+            notes.append(f"the log's cycle time {_fmt(from_log)} is below the lower bound "
+                         f"{_fmt(lam)} given by the mean durations: over a short log this can "
+                         "happen by chance, over a long one it suggests draws shorter than the "
+                         "model's distributions")
+        elif not model.is_random and abs(rel) > RATE_NOTE_TOLERANCE:
+            notes.append(f"the log's cycle time {_fmt(from_log)} differs from the model's "
+                         f"{_fmt(lam)} by {100 * rel:+.3g} %: over few firings or a long "
+                         "transient the growth rate of the log has not settled")
+
+    reasons = [v["message"] for v in first_violations]
+    if n_violations > len(reasons):
+        reasons.append(f"... and {n_violations - len(reasons)} more violations")
+    if n_violations == 0:
+        what = ("every bound the model's distributions allow" if model.is_random else
+                "the model's equations")
+        reasons.append(f"all {n_checked} judged firings obey {what} within a relative tolerance "
+                       f"of {tol:g}" + (f" ({n_unjudged} not judged)" if n_unjudged else ""))
+    return {
+        "verdict": "agrees" if n_violations == 0 else "disagrees",
+        "reasons": reasons,
+        "notes": notes,
+        "log": None if log.path is None else str(log.path),
+        "tolerance": tol,
+        "checks": "bounds" if model.is_random else "exact",
+        "firings_logged": n_rows,
+        "firings_checked": n_checked,
+        "firings_unjudged": n_unjudged,
+        "firings_missing": int(gap.sum()),
+        "violations": n_violations,
+        "first_violations": first_violations,
+        "complete": bool(present.all() and from_one and not gap.any()),
+        "cycle_time_from_log": from_log,
+        "cycle_time": lam,
+        "cycle_time_basis": ("lower bound: the cycle time of the mean durations (Baccelli et al. "
+                             "1992, ch. 8)" if model.is_random else "exact"),
+        "time_unit": model.time_unit,
+    }
+
+
+def _earliest(rows: np.ndarray, when: np.ndarray, t: np.ndarray, k: np.ndarray,
+              count: int) -> list[int]:
+    """The ``count`` rows of ``rows`` that come first by (when, transition, firing)."""
+    if rows.size == 0 or count <= 0:
+        return []
+    if rows.size > count:  # a superset of the first ones, before the exact sort
+        rows = rows[when[rows] <= np.partition(when[rows], count - 1)[count - 1]]
+    return rows[np.lexsort((k[rows], t[rows], when[rows]))][:count].tolist()
+
+
+def _violation(model: Model, log: EventLog, pairs: _Pairs, i: int, kind: int, expected: float,
+               dur_lo: np.ndarray, dur_hi: np.ndarray) -> dict[str, Any]:
+    t, k, x = int(log.transition[i]), int(log.firing[i]), float(log.time[i])
+    s = None if log.start is None else float(log.start[i])
+    rule, early = _KINDS[kind]
+    name = f'firing {k} of "{model.transition_ids[t]}"'
+    lo, hi, law = float(dur_lo[t]), float(dur_hi[t]), model.durations[t].describe()
+    a = int(pairs.offsets[i])
+    span = slice(a, a + int(model.graph().in_degree[t]))
+    exact_tokens = bool(np.array_equal(pairs.low[span], pairs.high[span]))
+    j = a + int(np.argmax(pairs.low[span] if early else pairs.high[span]))
+    place = f'"{model.place_name(int(pairs.place[j]))}"'
+    token = "its initial tokens were available at 0"
+    if pairs.need[j]:  # name the firing that made the binding token, and the hold
+        hold, pred = model.holds[int(pairs.place[j])], int(pairs.pos[j])
+        plus = (f"plus the hold {_fmt(hold.mean)}" if not hold.is_random else
+                f"plus the shortest hold {_fmt(pairs.low[j] - log.time[pred])} of "
+                f"{hold.describe()}")
+        token = (f"its input place {place} was available at {_fmt(pairs.low[j])} (firing "
+                 f'{log.firing[pred]} of "{model.transition_ids[log.transition[pred]]}" '
+                 f"completed at {_fmt(log.time[pred])}, {plus})")
+    if rule == "completion" and exact_tokens and lo == hi:
+        text = (f"{name} completed at {_fmt(x)} but the model gives {_fmt(expected)}: {token} "
+                f"and the duration is {_fmt(lo)}")
+    elif rule == "completion" and early:
+        text = (f"{name} completed at {_fmt(x)}, earlier than any draw allows: at least "
+                f"{_fmt(expected)}, as {token} and the shortest duration of {law} is {_fmt(lo)}")
+    elif rule == "completion":
+        text = (f"{name} completed at {_fmt(x)}, later than any draw allows: at most "
+                f"{_fmt(expected)}, as its last token was there by {_fmt(pairs.high[j])} at the "
+                f"latest and the longest duration of {law} is {_fmt(hi)}")
+    elif rule == "start" and early:
+        text = f"{name} started at {_fmt(s)}, before its tokens were available: {token}"
+    elif rule == "start":
+        text = (f"{name} started at {_fmt(s)}, later than its tokens allowed: "
+                + (f"they were all there at {_fmt(expected)}" if exact_tokens else
+                   f"the last of them was there by {_fmt(expected)} at the latest")
+                + f" (input place {place})")
+    elif lo == hi:
+        text = (f"{name} took {_fmt(x - s)} (from {_fmt(s)} to {_fmt(x)}) but its duration is "
+                f"{_fmt(lo)}")
+    else:
+        text = (f"{name} took {_fmt(x - s)} (from {_fmt(s)} to {_fmt(x)}), "
+                + (f"less than the shortest duration {_fmt(lo)}" if early else
+                   f"more than the longest duration {_fmt(hi)}") + f" of {law}")
+    out: dict[str, Any] = {"transition": model.transition_ids[t], "firing": k, "time": x,
+                           "expected": expected, "rule": rule, "message": text}
+    if s is not None:
+        out["start"] = s
+    return out
+
+
+def _hole(model: Model, log: EventLog, i: int, gap: int, count: int,
+          needed_by: int) -> dict[str, Any]:
+    tid, k = model.transition_ids[int(log.transition[i])], int(log.firing[i])
+    text = (f'firing {k - 1} of "{tid}" is' if gap == 1 else
+            f'firings {k - gap} to {k - 1} of "{tid}" are') + f" missing while firing {k} is logged"
+    if needed_by >= 0:
+        text += (f' (firing {log.firing[needed_by]} of '
+                 f'"{model.transition_ids[log.transition[needed_by]]}", logged, needed '
+                 + ("it)" if gap == 1 else f"{count} of them)"))
+    return {"transition": tid, "firing": k - gap, "time": None, "expected": None,
+            "rule": "missing", "message": text, "missing": count, "next_logged": k}
+
+
+def _log_cycle_time(log: EventLog, index: _Index, first: np.ndarray) -> float | None:
+    r"""Largest :math:`(x_t(K) - x_t(\lfloor K/2 \rfloor)) / (K - \lfloor K/2 \rfloor)`.
+
+    ``K`` is the last logged firing of ``t``; transitions with ``K <`` :data:`MIN_RATE_FIRINGS`
+    or without firing ``K // 2`` in the log are left out.
+    """
+    last = np.r_[np.flatnonzero(first)[1:] - 1, log.n_firings - 1]
+    last = last[log.firing[last] >= MIN_RATE_FIRINGS]
+    found, pos = index.find(log.transition[last], log.firing[last] // 2)
+    if not found.any():
+        return None
+    last, pos = last[found], pos[found]
+    kk = log.firing[last]
+    return float(((log.time[last] - log.time[pos]) / (kk - kk // 2)).max())
+
+
+def judge_log(model: Model, log_path: str | os.PathLike[str], *, tolerance: float = 1e-6,
+              max_listed: int = MAX_LISTED) -> dict[str, Any]:
+    """Judge an event log of any simulator against the model's max-plus equations.
+
+    Parameters
+    ----------
+    model : Model
+        The model the log claims to follow.
+    log_path : str or path-like
+        CSV with the columns ``transition,firing,time`` and optionally ``start``.
+    tolerance : float, default 1e-6
+        Relative tolerance on times: ``|a − b| <= tolerance · max(1, |a|, |b|)``.
+    max_listed : int, default MAX_LISTED
+        Violations spelled out in ``reasons`` and ``first_violations``.
+
+    Returns
+    -------
+    dict
+        ``verdict`` (``"agrees"`` or ``"disagrees"``), ``reasons`` (plain sentences),
+        ``notes``, ``violations`` (count), ``first_violations`` (dicts with ``transition``,
+        ``firing``, ``time``, ``expected``, ``rule`` in ``"start"``, ``"duration"``,
+        ``"completion"``, ``"missing"``, and ``message``), ``firings_logged``,
+        ``firings_checked``, ``firings_unjudged``, ``firings_missing``, ``complete`` (every
+        transition logged with firings 1..K and no gap), ``cycle_time_from_log`` (None when no
+        transition has :data:`MIN_RATE_FIRINGS` firings), ``cycle_time`` and
+        ``cycle_time_basis`` (``"exact"``, or the lower bound of the mean durations for random
+        models), ``checks`` (``"exact"`` or ``"bounds"``), ``tolerance``, ``log``, ``time_unit``.
+
+    Raises
+    ------
+    ModelError
+        For a bad log (see :func:`read_log`), a bad tolerance, or a log of which no firing can
+        be judged.
+    """
+    tol = _tolerance(tolerance)
+    return judge_events(model, read_log(model, log_path), tolerance=tol, max_listed=max_listed)
