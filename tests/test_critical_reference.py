@@ -642,3 +642,23 @@ def test_certificate_holds_on_scaled_graph(factor):
     r = howard(g)
     np.testing.assert_allclose(r.cycle_time, 2.0 * factor, rtol=1e-12)
     assert certify(g, r).holds
+
+
+@pytest.mark.parametrize("scale", [1e12, math.inf])
+def test_certificate_does_not_trust_the_results_own_scale(scale):
+    """A wrong cycle time is rejected whatever rounding scale the result claims for its biases.
+
+    The certificate checks a result "independently of how it was found": here λ is claimed 50 %
+    too large (6.75 for 4.5, the ratio of circuit 0 -> 1 -> 2 -> 0: (2 + 0.5 + 1 + 1) / 1; the
+    self-loop at 1 has ratio 2), the circuit list is dropped and ``bias_scale`` inflated. Source:
+    Cochet-Terrasson et al. (1998): the eigenmode equations hold only for the true λ.
+    """
+    g = EventGraph([1.0, 2.0, 0.5], [0, 1, 2, 1], [1, 2, 0, 1], [0, 0, 1, 1], [0.0, 0.0, 1.0, 0.0])
+    r = howard(g)
+    np.testing.assert_allclose(r.cycle_time, 4.5)
+    bad = dataclasses.replace(r, cycle_time=r.cycle_time * 1.5, circuits=[])
+    assert not certify(g, bad).holds
+    fields = {f.name for f in dataclasses.fields(r)}
+    if "bias_scale" in fields:
+        bad = dataclasses.replace(bad, bias_scale=np.full(3, scale))
+        assert not certify(g, bad).holds
