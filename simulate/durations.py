@@ -1,32 +1,11 @@
-r"""Random durations and holding times: distribution specs and the indexed sampler.
+r"""Random durations and holding times of a model: reading specs, storing them, drawing them.
 
 Specs
 -----
 A duration or a hold is a number (a fixed value) or a distribution table, as written in a model
-file. :func:`parse_spec` turns either into a :class:`Distribution`:
-
-==============  ===============================  ==============================================
-``dist``        parameters                       meaning
-==============  ===============================  ==============================================
-``fixed``       ``value``                        always ``value`` (alias ``deterministic``)
-``exponential`` ``mean``                         exponential law
-``gamma``       ``mean``, ``cv``                 gamma law, shape ``1/cv²``
-``erlang``      ``mean``, ``k``                  sum of ``k`` exponentials, ``cv = 1/√k``
-``lognormal``   ``mean``, ``cv``                 log-normal law with that mean and cv
-``weibull``     ``shape`` and ``mean`` or        Weibull law, ``mean = scale·Γ(1 + 1/shape)``
-                ``scale``
-``normal``      ``mean``, ``sd``,                the normal law *conditioned on* ``>= 0``;
-                ``truncate = true``              ``mean`` and ``sd`` are those of the normal
-                                                 before truncation
-``uniform``     ``low``, ``high``                uniform on ``[low, high]``
-``triangular``  ``low``, ``mode``, ``high``      triangular law
-``empirical``   ``values = [...]``               one of the values, each with equal chance
-==============  ===============================  ==============================================
-
-A normal law can go negative, so it must say ``truncate = true``: draws below 0 are redrawn
-(inverse-CDF sampling of the normal conditioned on ``>= 0``, no mass at 0), and ``.mean`` is the
-mean of the truncated law, which is larger than the ``mean`` parameter. Clipping at 0 was not
-chosen: it puts an atom at 0 that a duration rarely has.
+file. :func:`parse_spec` turns either into a :class:`~cyclecheck.simulate.laws.Distribution`
+(the laws and their parameters are listed in :mod:`cyclecheck.simulate.laws`, whose names are
+re-exported here), and :class:`SpecTable` keeps the specs of all the elements of one kind.
 
 In a CSV cell, or as a TOML string, a distribution is written ``name(key=value, ...)`` with
 TOML values, for example ``gamma(mean=3, cv=0.5)`` or ``empirical(values=[2, 3, 5])``; a plain
@@ -51,15 +30,27 @@ import re
 import tomllib
 from collections import OrderedDict
 from collections.abc import Iterable, Sequence
-from dataclasses import dataclass
-from functools import cached_property
-from typing import Any, ClassVar
+from typing import Any
 
 import numpy as np
 
 from .errors import ModelError, did_you_mean, shown
+from .laws import (
+    DISTRIBUTIONS,
+    Distribution,
+    Empirical,
+    Erlang,
+    Exponential,
+    Fixed,
+    Gamma,
+    Lognormal,
+    Normal,
+    Triangular,
+    Uniform,
+    Weibull,
+)
 
-__all__ = [
+__all__ = [  # the law classes are re-exported from .laws, where they live
     "BLOCK",
     "CACHE_BYTES",
     "DISTRIBUTIONS",
@@ -87,361 +78,6 @@ CACHE_BYTES = 128 * 2**20
 """Default memory budget of a :class:`Sampler`'s block cache."""
 
 PathLike = str | os.PathLike[str]
-
-
-def _short(x: float) -> str:
-    return f"{x:.6g}"
-
-
-def _toml_value(x: object) -> str:
-    if isinstance(x, bool):
-        return "true" if x else "false"
-    if isinstance(x, int):
-        return str(x)
-    if isinstance(x, float):
-        return repr(x)
-    if isinstance(x, (list, tuple)):
-        return "[" + ", ".join(_toml_value(v) for v in x) + "]"
-    raise TypeError(f"cannot write {x!r}")
-
-
-class Distribution:
-    """A law of a duration or a hold (base class).
-
-    Every subclass has ``mean`` (exact), :attr:`variance`, :attr:`cv`, :attr:`is_random`,
-    :meth:`sample`, :meth:`describe`, :meth:`to_dict` and :meth:`to_text`. Instances are frozen
-    and compare equal when their parameters are equal.
-    """
-
-    name: ClassVar[str]
-    required: ClassVar[tuple[str, ...]]
-    optional: ClassVar[tuple[str, ...]] = ()
-    mean: float
-
-    @property
-    def variance(self) -> float:
-        """Variance of the law."""
-        raise NotImplementedError
-
-    @property
-    def sd(self) -> float:
-        """Standard deviation of the law."""
-        return math.sqrt(max(self.variance, 0.0))
-
-    @property
-    def cv(self) -> float:
-        """Coefficient of variation sd / mean (0 for a law concentrated at 0)."""
-        return self.sd / self.mean if self.mean > 0 else 0.0
-
-    @property
-    def is_random(self) -> bool:
-        """False when the law is a single value (no draws needed)."""
-        return self.variance > 0
-
-    def sample(self, rng: np.random.Generator, size: int) -> np.ndarray:
-        """Draw ``size`` values with ``rng`` (a fixed law does not touch ``rng``)."""
-        if not self.is_random:
-            return np.full(size, float(self.mean))
-        return self._draw(rng, size)
-
-    def _draw(self, rng: np.random.Generator, size: int) -> np.ndarray:
-        raise NotImplementedError
-
-    def params(self) -> dict[str, Any]:
-        """The parameters as written in a model file."""
-        raise NotImplementedError
-
-    def to_dict(self) -> dict[str, Any]:
-        """The TOML table of this law; ``parse_spec(d.to_dict()) == d``."""
-        return {"dist": self.name, **self.params()}
-
-    def to_text(self) -> str:
-        """The exact cell syntax, e.g. ``gamma(mean=3.0, cv=0.5)``; parsed back by parse_spec."""
-        inner = ", ".join(f"{k}={_toml_value(v)}" for k, v in self.params().items())
-        return f"{self.name}({inner})"
-
-    def describe(self) -> str:
-        """Short text for people, e.g. ``gamma(mean=3, cv=0.5)``."""
-        inner = ", ".join(f"{k}={shown(v) if isinstance(v, bool) else _short(v)}"
-                          for k, v in self.params().items())
-        return f"{self.name}({inner})"
-
-    def __str__(self) -> str:
-        return self.describe()
-
-
-@dataclass(frozen=True)
-class Fixed(Distribution):
-    """Always ``value``."""
-
-    value: float
-    name: ClassVar[str] = "fixed"
-    required: ClassVar[tuple[str, ...]] = ("value",)
-
-    @property
-    def mean(self) -> float:  # type: ignore[override]
-        return self.value
-
-    @property
-    def variance(self) -> float:
-        return 0.0
-
-    def params(self) -> dict[str, Any]:
-        return {"value": self.value}
-
-    def to_text(self) -> str:
-        return repr(float(self.value))
-
-    def describe(self) -> str:
-        return _short(self.value)
-
-
-@dataclass(frozen=True)
-class Exponential(Distribution):
-    """Exponential law with the given mean."""
-
-    mean: float
-    name: ClassVar[str] = "exponential"
-    required: ClassVar[tuple[str, ...]] = ("mean",)
-
-    @property
-    def variance(self) -> float:
-        return self.mean**2
-
-    def _draw(self, rng: np.random.Generator, size: int) -> np.ndarray:
-        return rng.exponential(self.mean, size)
-
-    def params(self) -> dict[str, Any]:
-        return {"mean": self.mean}
-
-
-@dataclass(frozen=True)
-class Gamma(Distribution):
-    """Gamma law with shape ``1/cv²`` and scale ``mean·cv²``."""
-
-    mean: float
-    cv_: float
-    name: ClassVar[str] = "gamma"
-    required: ClassVar[tuple[str, ...]] = ("mean", "cv")
-
-    @property
-    def cv(self) -> float:
-        return self.cv_
-
-    @property
-    def variance(self) -> float:
-        return (self.mean * self.cv_) ** 2
-
-    def _draw(self, rng: np.random.Generator, size: int) -> np.ndarray:
-        return rng.gamma(1.0 / self.cv_**2, self.mean * self.cv_**2, size)
-
-    def params(self) -> dict[str, Any]:
-        return {"mean": self.mean, "cv": self.cv_}
-
-
-@dataclass(frozen=True)
-class Erlang(Distribution):
-    """Sum of ``k`` independent exponentials, total mean ``mean``."""
-
-    mean: float
-    k: int
-    name: ClassVar[str] = "erlang"
-    required: ClassVar[tuple[str, ...]] = ("mean", "k")
-
-    @property
-    def variance(self) -> float:
-        return self.mean**2 / self.k
-
-    def _draw(self, rng: np.random.Generator, size: int) -> np.ndarray:
-        return rng.gamma(float(self.k), self.mean / self.k, size)
-
-    def params(self) -> dict[str, Any]:
-        return {"mean": self.mean, "k": self.k}
-
-
-@dataclass(frozen=True)
-class Lognormal(Distribution):
-    """Log-normal law with the given mean and cv: ``σ² = ln(1 + cv²)``, ``μ = ln mean − σ²/2``."""
-
-    mean: float
-    cv_: float
-    name: ClassVar[str] = "lognormal"
-    required: ClassVar[tuple[str, ...]] = ("mean", "cv")
-
-    @property
-    def cv(self) -> float:
-        return self.cv_
-
-    @property
-    def variance(self) -> float:
-        return (self.mean * self.cv_) ** 2
-
-    def _draw(self, rng: np.random.Generator, size: int) -> np.ndarray:
-        s2 = math.log1p(self.cv_**2)
-        return rng.lognormal(math.log(self.mean) - s2 / 2, math.sqrt(s2), size)
-
-    def params(self) -> dict[str, Any]:
-        return {"mean": self.mean, "cv": self.cv_}
-
-
-@dataclass(frozen=True)
-class Weibull(Distribution):
-    """Weibull law; given by ``shape`` and either ``mean`` or ``scale`` (kept as given)."""
-
-    shape: float
-    scale: float
-    mean: float
-    by_mean: bool = True
-    name: ClassVar[str] = "weibull"
-    required: ClassVar[tuple[str, ...]] = ("shape",)
-    optional: ClassVar[tuple[str, ...]] = ("mean", "scale")
-
-    @property
-    def variance(self) -> float:
-        g1 = math.exp(math.lgamma(1 + 1 / self.shape))
-        g2 = math.exp(math.lgamma(1 + 2 / self.shape))
-        return self.scale**2 * max(g2 - g1 * g1, 0.0)
-
-    def _draw(self, rng: np.random.Generator, size: int) -> np.ndarray:
-        return self.scale * rng.weibull(self.shape, size)
-
-    def params(self) -> dict[str, Any]:
-        if self.by_mean:
-            return {"mean": self.mean, "shape": self.shape}
-        return {"scale": self.scale, "shape": self.shape}
-
-
-@dataclass(frozen=True)
-class Normal(Distribution):
-    r"""Normal law ``N(loc, sd²)`` conditioned on ``>= 0``.
-
-    With :math:`\alpha = -\mathrm{loc}/\mathrm{sd}` and :math:`\lambda = \varphi(\alpha) /
-    (1 - \Phi(\alpha))`, the mean is :math:`\mathrm{loc} + \mathrm{sd}\,\lambda` and the variance
-    :math:`\mathrm{sd}^2 (1 + \alpha\lambda - \lambda^2)` (Johnson, Kotz, Balakrishnan,
-    *Continuous Univariate Distributions* vol. 1, 2nd ed., 1994, §13.10.1).
-    """
-
-    loc: float
-    sd_: float
-    name: ClassVar[str] = "normal"
-    required: ClassVar[tuple[str, ...]] = ("mean", "sd", "truncate")
-
-    @cached_property
-    def _alpha_lambda(self) -> tuple[float, float]:
-        alpha = -self.loc / self.sd_
-        tail = 0.5 * math.erfc(alpha / math.sqrt(2.0))  # 1 − Φ(α) >= 1/2 since loc >= 0
-        lam = math.exp(-alpha * alpha / 2) / math.sqrt(2 * math.pi) / tail
-        return alpha, lam
-
-    @property
-    def mean(self) -> float:  # type: ignore[override]
-        return self.loc + self.sd_ * self._alpha_lambda[1]
-
-    @property
-    def variance(self) -> float:
-        alpha, lam = self._alpha_lambda
-        return self.sd_**2 * (1 + alpha * lam - lam * lam)
-
-    def _draw(self, rng: np.random.Generator, size: int) -> np.ndarray:
-        from scipy.special import ndtr, ndtri
-
-        tail = float(ndtr(self.loc / self.sd_))  # P(N(loc, sd²) >= 0)
-        v = tail * (1.0 - rng.random(size))  # uniform on (0, tail]
-        return np.maximum(self.loc - self.sd_ * ndtri(v), 0.0)
-
-    def params(self) -> dict[str, Any]:
-        return {"mean": self.loc, "sd": self.sd_, "truncate": True}
-
-    def describe(self) -> str:
-        return f"normal(mean={_short(self.loc)}, sd={_short(self.sd_)}, truncated at 0)"
-
-
-@dataclass(frozen=True)
-class Uniform(Distribution):
-    """Uniform law on ``[low, high]``."""
-
-    low: float
-    high: float
-    name: ClassVar[str] = "uniform"
-    required: ClassVar[tuple[str, ...]] = ("low", "high")
-
-    @property
-    def mean(self) -> float:  # type: ignore[override]
-        return (self.low + self.high) / 2
-
-    @property
-    def variance(self) -> float:
-        return (self.high - self.low) ** 2 / 12
-
-    def _draw(self, rng: np.random.Generator, size: int) -> np.ndarray:
-        return rng.uniform(self.low, self.high, size)
-
-    def params(self) -> dict[str, Any]:
-        return {"low": self.low, "high": self.high}
-
-
-@dataclass(frozen=True)
-class Triangular(Distribution):
-    """Triangular law on ``[low, high]`` with its peak at ``mode``."""
-
-    low: float
-    mode: float
-    high: float
-    name: ClassVar[str] = "triangular"
-    required: ClassVar[tuple[str, ...]] = ("low", "mode", "high")
-
-    @property
-    def mean(self) -> float:  # type: ignore[override]
-        return (self.low + self.mode + self.high) / 3
-
-    @property
-    def variance(self) -> float:
-        a, c, b = self.low, self.mode, self.high
-        return (a * a + b * b + c * c - a * b - a * c - b * c) / 18
-
-    def _draw(self, rng: np.random.Generator, size: int) -> np.ndarray:
-        return rng.triangular(self.low, self.mode, self.high, size)
-
-    def params(self) -> dict[str, Any]:
-        return {"low": self.low, "mode": self.mode, "high": self.high}
-
-
-@dataclass(frozen=True)
-class Empirical(Distribution):
-    """One of ``values``, each with probability ``1/len(values)`` (resampling)."""
-
-    values: tuple[float, ...]
-    name: ClassVar[str] = "empirical"
-    required: ClassVar[tuple[str, ...]] = ("values",)
-
-    @cached_property
-    def _array(self) -> np.ndarray:
-        return np.array(self.values, dtype=np.float64)
-
-    @property
-    def mean(self) -> float:  # type: ignore[override]
-        return float(np.mean(self._array))
-
-    @property
-    def variance(self) -> float:
-        return float(np.var(self._array)) if len(self.values) > 1 else 0.0
-
-    def _draw(self, rng: np.random.Generator, size: int) -> np.ndarray:
-        return self._array[rng.integers(0, len(self.values), size)]
-
-    def params(self) -> dict[str, Any]:
-        return {"values": list(self.values)}
-
-    def describe(self) -> str:
-        return f"empirical(n={len(self.values)}, mean={_short(self.mean)})"
-
-
-DISTRIBUTIONS: dict[str, type[Distribution]] = {
-    c.name: c
-    for c in (Fixed, Exponential, Gamma, Erlang, Lognormal, Weibull, Normal, Uniform,
-              Triangular, Empirical)
-}
-"""The distribution classes by their ``dist`` name."""
 
 _ALIASES = {"deterministic": "fixed"}
 _CELL = re.compile(r"\s*([A-Za-z_][A-Za-z0-9_]*)\s*\((.*)\)\s*")
