@@ -12,7 +12,6 @@ from __future__ import annotations
 import json
 import os
 import tempfile
-from collections.abc import Callable
 from pathlib import Path
 from typing import Any
 
@@ -20,6 +19,7 @@ from ..algebra.analysis import analyze_graph
 from .errors import ModelError
 from .experiment import estimate_with_executor
 from .modelfile import Model
+from .progress import ProgressLine
 from .result import (
     DOCUMENT_KIND,
     analysis_section,
@@ -43,20 +43,6 @@ __all__ = [
 
 #: Default target relative half-width for random models.
 DEFAULT_PRECISION = 0.01
-
-
-def _progress(enabled: bool, what: str) -> Callable[[int, float], None] | None:
-    """A one-line progress report on stderr, only when stderr is a terminal."""
-    import sys
-
-    if not enabled or not sys.stderr.isatty():
-        return None
-
-    def report(replications: int, estimate: float) -> None:
-        sys.stderr.write(f"\r{what}: {replications} replications, estimate {estimate:.6g}   ")
-        sys.stderr.flush()
-
-    return report
 
 
 def _base(model: Model, command: str) -> dict[str, Any]:
@@ -84,9 +70,14 @@ def analyze_model(model: Model, *, seed: int = 1, precision: float | None = None
         doc["settings"] = settings_section(seed, None, None, None)
         return doc
     precision = precision if precision is not None else DEFAULT_PRECISION
-    est = estimate_with_executor(model, "recursion", seed=seed, precision=precision,
-                                 replications=replications, firings=firings, workers=workers,
-                                 scheduler=scheduler, progress=_progress(progress, "recursion"))
+    line = ProgressLine.when_useful(progress, precision)
+    try:
+        est = estimate_with_executor(model, "recursion", seed=seed, precision=precision,
+                                     replications=replications, firings=firings,
+                                     workers=workers, scheduler=scheduler, progress=line)
+    finally:
+        if line is not None:
+            line.close()
     doc.update(random_analysis_section(model, exact, est))
     doc["settings"] = settings_section(seed, precision, est.replications, est.firings)
     return doc
@@ -101,9 +92,14 @@ def simulate_model(model: Model, *, seed: int = 1, precision: float | None = Non
 
     doc = _base(model, "simulate")
     lower = analyze_graph(model.graph()).cycle_time
-    est = estimate_with_executor(model, "simpy", seed=seed, precision=precision,
-                                 replications=replications, firings=firings, workers=workers,
-                                 scheduler=scheduler, progress=_progress(progress, "simpy"))
+    line = ProgressLine.when_useful(progress, precision)
+    try:
+        est = estimate_with_executor(model, "simpy", seed=seed, precision=precision,
+                                     replications=replications, firings=firings,
+                                     workers=workers, scheduler=scheduler, progress=line)
+    finally:
+        if line is not None:
+            line.close()
     doc.update(estimate_section(model, est, lower))
     if not model.is_random:
         doc["bounds"] = None
@@ -123,9 +119,14 @@ def check_model(model: Model, *, seed: int = 1, precision: float | None = None,
     from .compare import compare
 
     doc = _base(model, "check")
-    doc.update(compare(model, seed=seed, precision=precision, replications=replications,
-                       firings=firings, workers=workers, scheduler=scheduler,
-                       progress=_progress(progress, "check")))
+    line = ProgressLine.when_useful(progress, precision)
+    try:
+        doc.update(compare(model, seed=seed, precision=precision, replications=replications,
+                           firings=firings, workers=workers, scheduler=scheduler,
+                           progress=line))
+    finally:
+        if line is not None:
+            line.close()
     return doc
 
 

@@ -138,7 +138,7 @@ def _overlap(a: Estimate, b: Estimate) -> bool:
 
 def _random(model: Model, exact: GraphAnalysis, *, seed: int, precision: float | None,
             replications: int | None, firings: int | None, workers: int,
-            scheduler: str | None, progress: Callable[[int, float], None] | None
+            scheduler: str | None, progress: Callable[[str, int, np.ndarray], None] | None
             ) -> dict[str, Any]:
     precision = 0.01 if precision is None else precision
     rec_est = estimate_with_executor(model, "recursion", seed=seed, precision=precision,
@@ -151,7 +151,7 @@ def _random(model: Model, exact: GraphAnalysis, *, seed: int, precision: float |
                                      record=True, progress=progress)
     sim_times = sim_est.batch.times
     rec_batch = run_replications(model, "recursion", seed, sim_est.batch.replications.tolist(),
-                                 sim_firings, record=True)
+                                 sim_est.firings, record=True)
     diff = _path_difference(sim_times, rec_batch.times)
     identical = diff <= PATH_RTOL
     overlap = _overlap(rec_est, sim_est)
@@ -207,7 +207,7 @@ def _random(model: Model, exact: GraphAnalysis, *, seed: int, precision: float |
 def compare(model: Model, *, seed: int = 1, precision: float | None = None,
             replications: int | None = None, firings: int | None = None, workers: int = 1,
             scheduler: str | None = None,
-            progress: Callable[[int, float], None] | None = None) -> dict[str, Any]:
+            progress: Callable[[str, int, np.ndarray], None] | None = None) -> dict[str, Any]:
     """Run both engines and judge: the ``analysis``, ``simulation``, ``comparison``,
     ``figures`` and ``settings`` sections of a check document."""
     exact = analyze_graph(model.graph())
