@@ -1,37 +1,29 @@
 r"""Judge an event log of any simulator against the model's max-plus equations.
 
-An event log is a CSV table with one line per completed firing and the columns
-``transition,firing,time`` (firing numbers count from 1, ``time`` is the completion time),
-optionally ``start``; other columns are ignored. Firing ``k`` of transition ``t`` is judged
-*locally*, from the logged completion times of the firings it waits for:
+An event log is a CSV table, one line per completed firing, with the columns
+``transition,firing,time`` (firings count from 1, ``time`` is the completion) and optionally
+``start``; other columns are ignored. Firing ``k`` of ``t`` is judged *locally*, from the logged
+completion times of the firings it waits for: with
+:math:`\operatorname{term}_p(k) = 0` for :math:`k \le m_p`, else :math:`x_u(k - m_p) + h_p(k)`,
 
-.. math::
+.. math::  s_t(k) = \max_{p = (u \to t)} \operatorname{term}_p(k), \qquad x_t(k) = s_t(k) + d_t(k).
 
-    \operatorname{term}_p(k) = \begin{cases} 0 & k \le m_p \\
-    x_u(k - m_p) + h_p(k) & k > m_p \end{cases}, \qquad
-    s_t(k) = \max_{p = (u \to t)} \operatorname{term}_p(k), \qquad x_t(k) = s_t(k) + d_t(k).
+With fixed numbers the log must match these equations. Random draws are unknown, so the judge
+checks what holds for *every* draw in the support ``[lo, hi]`` of each law
+(:func:`support_bounds`): the start lies in ``[max_p (x_u + lo_p), max_p (x_u + hi_p)]``, the
+duration ``x − s`` in ``[lo_t, hi_t]`` (without ``start``: the completion between the sums).
+Where a transition's duration and input holds are fixed the interval is a point: a firing that
+waits longer than its tokens is a violation. A wrong time also upsets the firings that wait for
+it, so violations are listed by the earlier of the logged value and its lower bound: the first
+one is usually the cause of those that follow.
 
-With fixed numbers the log must match these equations. With random durations or holds the draws
-are unknown, so the judge checks what holds for *every* draw in the support ``[lo, hi]`` of each
-law (:func:`support_bounds`): the start lies between ``max_p (x_u + lo_p)`` and
-``max_p (x_u + hi_p)`` and the duration ``x − s`` between ``lo_t`` and ``hi_t`` (without a
-``start`` column, the completion lies between the sums). Where a transition's duration and the
-holds of its input places are fixed the interval is a point and the check is exact: a firing
-that waits longer than its tokens is a violation.
+A firing whose predecessor is not logged (the log starts late or stops early) is not judged. A
+firing missing *inside* the logged range of its transition (7 absent, 8 logged) is a violation
+when all numbers are fixed, since firings of a transition then complete in order. With random
+ones firing 7 may still run where the log ends: it is a violation only when a logged firing
+needed it and every logged transition has its firing 1 (the log was not cut at its beginning).
 
-Because every check uses the logged times of the other firings, a wrong time also upsets the
-firings that wait for it. Violations are therefore listed by the earlier of the logged and the
-expected time: the first one listed is usually the cause of those that follow.
-
-A firing whose predecessor is not in the log (the log starts after firing 1, or stops before the
-predecessor) is not judged (``firings_unjudged``). A firing missing *inside* the logged range of
-its transition (firing 7 absent while firing 8 is logged) is a violation when all durations and
-holds are fixed: the firings of a transition then complete in order, so firing 7 belongs to any
-log that holds firing 8. With random ones firings may overtake each other, and firing 7 may still
-be in progress where the log ends: it is a violation only when a logged firing needed it and
-every logged transition has its firing 1 (the log was not cut at its beginning).
-
-Two times ``a`` and ``b`` are equal when ``|a − b| <= tolerance · max(1, |a|, |b|)``.
+Two times are equal when ``|a − b| <= tolerance · max(1, |a|, |b|)``.
 
 References
 ----------
@@ -126,19 +118,11 @@ def _bounds(table: SpecTable) -> tuple[np.ndarray, np.ndarray]:
 
 @dataclass(frozen=True, eq=False)
 class EventLog:
-    """A checked event log, sorted by transition, then firing number.
+    """A checked event log, sorted by transition index, then firing number.
 
-    Attributes
-    ----------
-    transition, firing : ndarray of int64, shape (R,)
-        Transition index in the model and firing number (from 1); pairs are unique.
-    time : ndarray of float64, shape (R,)
-        Completion times.
-    start : ndarray of float64, shape (R,), or None
-        Start times, when the log has a ``start`` column.
-    row : ndarray of int64, shape (R,)
-        Position of each firing among the data rows of the file (0 for the first one).
-    path : pathlib.Path or None
+    ``transition`` and ``firing`` (int64, pairs unique), ``time`` and ``start`` (float64;
+    ``start`` is None without the column), ``row``: position of each firing among the data rows
+    of the file (from 0), ``path``: the file or None.
     """
 
     transition: np.ndarray
@@ -517,8 +501,8 @@ def judge_events(model: Model, log: EventLog, *, tolerance: float = 1e-6,
                          "earlier firing that is not in the log", file=log.path)
     if n_unjudged:
         notes.append(f"{_many(n_unjudged, 'logged firing')} not judged: each needs an "
-                     "earlier firing that is not in the log (the log starts after firing 1 of a transition, "
-                     "misses a firing, or stops before it)")
+                     "earlier firing that is not in the log (the log starts after firing 1 of "
+                     "a transition, misses a firing, or stops before it)")
     excused = np.flatnonzero(gap > hole_count)
     if excused.size:
         i = int(excused[0])
