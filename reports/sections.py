@@ -182,8 +182,7 @@ def _numbers(document: Mapping[str, Any]) -> str:
                      fmt(simulation.get("firings_simulated"))])
         out += table(["", "Max-plus recursion", "SimPy simulation"], rows, {1, 2},
                       "Both engines side by side" + (f" (times in {e(unit)})" if unit else ""))
-    by_t = analysis.get("cycle_time_by_transition") or {}
-    if len(set(by_t.values())) > 1:
+    if analysis.get("strongly_connected") is False:
         out += ('<p class="note">The graph is not strongly connected: transitions have '
                 "different cycle times (column “cycle time” of the transitions table).</p>\n")
     return section("numbers", "Cycle time and throughput", out)
@@ -281,7 +280,7 @@ def _elements(document: Mapping[str, Any]) -> str:
         columns.append(("Criticality", True, lambda t: pct(t_crit.get(t["id"]))))
     if start:
         columns.append(("Periodic start", True, lambda t: fmt(start.get(t["id"]))))
-    if len(set(by_t.values())) > 1:
+    if analysis.get("strongly_connected") is False:
         columns.append(("Cycle time", True, lambda t: fmt(by_t.get(t["id"]))))
     items = list(enumerate(model["transitions"]))
 

@@ -122,6 +122,7 @@ def trace_text(doc: dict[str, Any]) -> str:
     """Summary of ``cyclecheck trace``."""
     lines = [f"verdict        {doc['verdict'].upper()}"]
     lines += [f"  - {r}" for r in doc.get("reasons", [])]
+    lines += [f"  note: {n}" for n in doc.get("notes", [])]
     est = doc.get("cycle_time_from_log")
     if est is not None and math.isfinite(est):
         model_value = _num(doc.get("cycle_time"))
