@@ -14,9 +14,6 @@ from functools import reduce
 import networkx as nx
 import numpy as np
 import pytest
-from hypothesis import assume, given
-from hypothesis import strategies as st
-
 from cyclecheck.algebra.critical import (
     certify,
     critical_places,
@@ -26,6 +23,9 @@ from cyclecheck.algebra.critical import (
 )
 from cyclecheck.algebra.eventgraph import EventGraph, strongly_connected_components
 from cyclecheck.algebra.spectral import howard
+from hypothesis import assume, given
+from hypothesis import strategies as st
+
 from tests.strategies import live_event_graphs
 from tests.test_spectral_reference import (
     REFERENCE,
@@ -291,7 +291,8 @@ def tokens_in_component(graph: EventGraph) -> np.ndarray:
 @REFERENCE
 @given(live_event_graphs())
 def test_slack_by_perturbation(graph):
-    """Adding its slack to a hold or duration leaves every cycle time unchanged; slack + δ raises it.
+    """Adding its slack to a hold or duration leaves every cycle time unchanged; slack + δ
+    raises it.
 
     Source: definition of slack from the cycle time as maximum cycle ratio (Baccelli et al. 1992,
     ch. 2), recomputed with Howard on ``graph.with_values``. Infinite slack: adding a large

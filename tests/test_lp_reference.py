@@ -20,13 +20,13 @@ from __future__ import annotations
 import networkx as nx
 import numpy as np
 import pytest
+from cyclecheck.algebra.critical import critical_places
+from cyclecheck.algebra.eventgraph import EventGraph, check_live
+from cyclecheck.algebra.spectral import howard
 from hypothesis import given, settings
 from scipy.optimize import linprog
 from scipy.sparse import coo_matrix
 
-from cyclecheck.algebra.critical import critical_places
-from cyclecheck.algebra.eventgraph import EventGraph, check_live
-from cyclecheck.algebra.spectral import howard
 from tests.strategies import live_event_graphs
 from tests.test_spectral_reference import REFERENCE
 
@@ -144,12 +144,12 @@ def test_lp_per_component_gives_cycle_time_of_every_transition(graph):
     comp = cond.graph["mapping"]
     own = {}
     for c in cond.nodes:
-        inside = np.flatnonzero(
-            [comp[int(s)] == c and comp[int(t)] == c for s, t in zip(graph.source, graph.target, strict=True)]
-        )
+        pairs = zip(graph.source.tolist(), graph.target.tolist(), strict=True)
+        inside = np.flatnonzero([comp[s] == c == comp[t] for s, t in pairs])
         own[c] = float(lp_cycle_ratio(graph, inside).x[-1]) if inside.size else -np.inf
-    expected = np.array(
-        [max(own[a] for a in nx.ancestors(cond, comp[t]) | {comp[t]}) for t in range(graph.n_transitions)]
-    )
+    expected = np.array([
+        max(own[a] for a in nx.ancestors(cond, comp[t]) | {comp[t]})
+        for t in range(graph.n_transitions)
+    ])
     scale = max(1.0, float(graph.weight.max(initial=0.0)))
     np.testing.assert_allclose(howard(graph).cycle_time, expected, rtol=1e-7, atol=1e-8 * scale)

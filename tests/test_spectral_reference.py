@@ -20,11 +20,11 @@ from collections import defaultdict
 import networkx as nx
 import numpy as np
 import pytest
+from cyclecheck.algebra.eventgraph import EventGraph
+from cyclecheck.algebra.spectral import HowardResult, howard
 from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
 
-from cyclecheck.algebra.eventgraph import EventGraph
-from cyclecheck.algebra.spectral import HowardResult, howard
 from tests.strategies import live_event_graphs
 
 #: Deterministic hypothesis runs: the same examples on every machine, no deadline (shared CPUs).
@@ -235,7 +235,8 @@ def twin_augmented_matrix(graph: EventGraph) -> np.ndarray:
     a1 = np.full((size, size), NEG)
     nxt = n
     for p in range(graph.n_places):
-        u, t, m, w = int(graph.source[p]), int(graph.target[p]), int(graph.tokens[p]), float(graph.weight[p])
+        u, t = int(graph.source[p]), int(graph.target[p])
+        m, w = int(graph.tokens[p]), float(graph.weight[p])
         if m == 0:
             a0[t, u] = max(a0[t, u], w)
             continue
@@ -473,7 +474,8 @@ def test_mixed_magnitudes_separate_components():
     brute force and by hand: (1e6, 1e−6, 3e−6). Source: Baccelli et al. (1992), ch. 3 (each
     transition follows the largest ratio upstream of it).
     """
-    g = EventGraph([0.0, 0.0, 0.0], [0, 1, 2, 1], [0, 1, 2, 2], [1, 1, 1, 0], [1e6, 1e-6, 3e-6, 5.0])
+    hold = [1e6, 1e-6, 3e-6, 5.0]
+    g = EventGraph([0.0, 0.0, 0.0], [0, 1, 2, 1], [0, 1, 2, 2], [1, 1, 1, 0], hold)
     expected = brute_force_cycle_times(g)
     np.testing.assert_allclose(expected, [1e6, 1e-6, 3e-6], rtol=1e-12)
     np.testing.assert_allclose(howard(g).cycle_time, expected, rtol=1e-9)
@@ -537,7 +539,11 @@ def test_scaled_graph_converges():
 
 @pytest.mark.parametrize(
     ("duration", "tokens"),
-    [([0.0, 1.0], [1, 2]), ([0.0, 0.0, 1.0], [0, 1, 2]), ([0.0, 0.0, 0.0, 0.0, 1.0], [0, 0, 0, 1, 2])],
+    [
+        ([0.0, 1.0], [1, 2]),
+        ([0.0, 0.0, 1.0], [0, 1, 2]),
+        ([0.0, 0.0, 0.0, 0.0, 1.0], [0, 0, 0, 1, 2]),
+    ],
 )
 def test_ring_with_a_third_converges(duration, tokens):
     """A ring of weight 1 holding 3 tokens: λ = 1/3 (inexact in binary), one policy, no improvement.
