@@ -134,6 +134,7 @@ def analysis_section(model: Model, analysis: GraphAnalysis) -> dict[str, Any]:
         "certificate": {
             "checked": cert.holds,
             "circuit_gap": cert.circuit_gap,
+            "policy_gap": finite_or_none(cert.policy_gap),
             "monotone_gap": cert.monotone_gap,
             "max_reduced_weight": cert.max_reduced_weight,
             "eigen_residual": cert.eigen_residual,
