@@ -54,7 +54,8 @@ SLACK_EXACT_LIMIT = 2_000_000
 def reduced_weights(graph: EventGraph, result: HowardResult) -> np.ndarray:
     r"""Reduced weight ``r_p = w_p - eta_t m_p + v_u - v_t`` of every place."""
     eta_t = result.cycle_time[graph.target]
-    return graph.weight - eta_t * graph.tokens + result.bias[graph.source] - result.bias[graph.target]
+    v = result.bias
+    return graph.weight - eta_t * graph.tokens + v[graph.source] - v[graph.target]
 
 
 #: Relative precision of the equalities read off the eigenmode: a reduced weight counts as zero,
@@ -124,7 +125,7 @@ def cyclicity(graph: EventGraph, result: HowardResult, critical: np.ndarray | No
     src, dst = graph.source[critical], graph.target[critical]
     tok = graph.tokens[critical]
     adj = csr_matrix((np.ones(src.size, dtype=np.int8), (src, dst)), shape=(n, n))
-    count, labels = connected_components(adj, directed=True, connection="strong")
+    _, labels = connected_components(adj, directed=True, connection="strong")
     inside = labels[src] == labels[dst]
     src, dst, tok = src[inside], dst[inside], tok[inside]
     if src.size == 0:

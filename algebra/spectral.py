@@ -160,7 +160,7 @@ def chain_sums(parent: np.ndarray, *values: np.ndarray) -> tuple[np.ndarray, lis
 
 
 def _policy_cycles(pred: np.ndarray) -> np.ndarray:
-    """Mask of the one node per circuit of a functional graph that has the circuit's smallest index."""
+    """Mask of one node per circuit of a functional graph: the circuit's smallest index."""
     n = pred.shape[0]
     smallest = np.arange(n)
     jump = pred.copy()

@@ -111,7 +111,7 @@ def main() -> None:
 def analyze(model: Path, as_json: bool, seed: int, precision: float | None,
             replications: int | None, firings: int | None, workers: int,
             scheduler: str | None, quiet: bool) -> None:
-    """Max-plus analysis of MODEL: exact for fixed durations, a Lyapunov estimate for random ones."""
+    """Max-plus analysis of MODEL: exact for fixed durations, Lyapunov estimate for random ones."""
     from . import summary
     from .api import analyze_model
     from .modelfile import load_model

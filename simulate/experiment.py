@@ -34,7 +34,14 @@ from ..algebra.critical import cyclicity
 from ..algebra.recursion import RandomRecursion
 from ..algebra.spectral import howard
 from .errors import ModelError
-from .estimate import Interval, mser5, replication_interval, sequential_precision
+from .estimate import (
+    Interval,
+    batch_means,
+    choose_batch_count,
+    mser5,
+    replication_interval,
+    sequential_precision,
+)
 from .modelfile import Model
 
 __all__ = [
@@ -191,7 +198,8 @@ def _run_chunk(engine: str, model: Model, seed: int, replications: Sequence[int]
     return run(model, seed, replications, firings, block, record)
 
 
-def open_executor(workers: int = 1, scheduler: str | None = None) -> tuple[Executor | None, Callable]:
+def open_executor(workers: int = 1,
+                  scheduler: str | None = None) -> tuple[Executor | None, Callable]:
     """An executor for replications and a function that closes it.
 
     ``scheduler`` is the address of a Dask scheduler (``tcp://host:port``); else ``workers > 1``
@@ -269,6 +277,22 @@ class Estimate:
     def firings_simulated(self) -> int:
         """All firings of all transitions in all replications."""
         return self.firings * self.replications * self.batch.x.shape[2]
+
+    def batch_means_interval(self) -> Interval | None:
+        """Batch means inside the first replication, after its warm-up (Law & Kelton §9.5.3):
+        a second interval from one long run, for comparison with the replication interval.
+        None when the run has fewer than 20 blocks after the warm-up."""
+        b = self.batch
+        t = int(np.argmax(self.by_transition))
+        j = int(np.searchsorted(b.checkpoints, self.warmup_firings))
+        points = b.checkpoints[j:]
+        sizes = np.diff(points)
+        rates = np.diff(b.x[j:, 0, t]) / sizes
+        rates = rates[sizes == sizes[0]] if sizes.size else rates  # a shorter last block out
+        if rates.size < 20:
+            return None
+        choice = choose_batch_count(rates)
+        return batch_means(rates, n_batches=choice.n_batches)
 
 
 def _warmup(batch: Batch) -> int:

@@ -140,6 +140,7 @@ def analysis_section(model: Model, analysis: GraphAnalysis) -> dict[str, Any]:
             "eigen_residual": cert.eigen_residual,
             "tolerance": cert.tolerance,
             "text": _certificate_text(analysis),
+            "charpoly_largest_corner_matches": _corner_matches(analysis),
         },
         "charpoly": (
             {
@@ -162,7 +163,8 @@ def analysis_section(model: Model, analysis: GraphAnalysis) -> dict[str, Any]:
         "transient_horizon": analysis.transient_horizon,
         "howard_iterations": hw.iterations,
         "schedule": {
-            "completion": {ids[t]: float(analysis.completion[t]) for t in range(graph.n_transitions)},
+            "completion": {ids[t]: float(analysis.completion[t])
+                           for t in range(graph.n_transitions)},
             "start": {ids[t]: float(analysis.start[t]) for t in range(graph.n_transitions)},
         },
     }
@@ -198,6 +200,7 @@ def estimate_section(model: Model, est: Estimate, lower: float) -> dict[str, Any
         "firings_per_replication": est.firings,
         "warmup_firings": est.warmup_firings,
         "relative_half_width": finite_or_none(iv.relative_half_width),
+        "batch_means": _batch_means(est),
         "precision_met": est.target_met,
         "utilization": {ids[t]: float(u) for t, u in enumerate(est.utilization)},
         "per_replication": [float(v) for v in est.per_replication],
@@ -217,6 +220,16 @@ def estimate_section(model: Model, est: Estimate, lower: float) -> dict[str, Any
                            "the largest share among its output places"),
         }
     return section
+
+
+def _batch_means(est: Estimate) -> dict[str, Any] | None:
+    iv = est.batch_means_interval()
+    if iv is None:
+        return None
+    return {"cycle_time": iv.estimate, "cycle_time_ci": [iv.low, iv.high],
+            "batches": iv.n, "batch_blocks": iv.batch_size, "lag1": finite_or_none(iv.lag1),
+            "batches_correlated": iv.batches_correlated,
+            "method": "batch means inside replication 0 after its warm-up (Law & Kelton 9.5.3)"}
 
 
 def random_analysis_section(model: Model, exact: GraphAnalysis, est: Estimate) -> dict[str, Any]:
@@ -240,6 +253,15 @@ def settings_section(seed: int, precision: float | None, replications: int | Non
     """The settings of a run, for reproducibility."""
     return {"seed": seed, "precision": precision, "replications": replications,
             "firings_per_replication": firings}
+
+
+def _corner_matches(analysis: GraphAnalysis) -> bool | None:
+    """The largest corner of the characteristic maxpolynomial is the eigenvalue (Akian, Bapat &
+    Gaubert 2014): one more, independent certificate where χ was computed."""
+    if analysis.charpoly is None:
+        return None
+    corner, lam = analysis.charpoly.largest_corner, analysis.cycle_time
+    return bool(abs(corner - lam) <= 1e-9 * max(1.0, abs(lam)))
 
 
 def _certificate_text(analysis: GraphAnalysis) -> str:

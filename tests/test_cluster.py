@@ -15,7 +15,6 @@ from pathlib import Path
 
 import numpy as np
 import pytest
-
 from cyclecheck.simulate.experiment import open_executor, run_replications
 from cyclecheck.simulate.modelfile import load_model
 

@@ -13,7 +13,6 @@ from pathlib import Path
 
 import networkx as nx
 import pytest
-
 from cyclecheck.algebra.analysis import analyze_graph
 from cyclecheck.simulate.modelfile import load_model
 
