@@ -370,7 +370,9 @@ def estimate_cycle_time(model: Model, engine: str = "recursion", *, seed: int = 
         # Law & Kelton's rule stops at gamma / (1 + gamma) for a relative *error* gamma; the
         # contract here is the relative half-width itself, hence gamma = p / (1 - p).
         gamma = precision / (1.0 - precision)
-        seq = sequential_precision(step, gamma, initial=replications, max_work=max_replications)
+        # The limit never undercuts what the user asked for in the first round.
+        seq = sequential_precision(step, gamma, initial=replications,
+                                   max_work=max(max_replications, replications))
         interval, target_met = seq.interval, seq.target_met
         history = [(c.work, c.estimate, c.low, c.high) for c in seq.history]
     batch = Batch.concatenate(batches)

@@ -177,3 +177,11 @@ def test_interrupt_leaves_no_output(tmp_path: Path) -> None:
     assert "Traceback" not in err
     assert not page.exists() and not saved.exists()
     assert not list(tmp_path.glob(".*tmp"))
+
+
+def test_asking_for_more_memory_than_the_machine_has_exits_2() -> None:
+    """A run that cannot fit in memory is refused before it starts, with the sizes named."""
+    out = run("analyze", str(MODELS / "closed_line_exponential.toml"), "--replications",
+              "100000000")
+    assert out.returncode == 2, out.stderr
+    assert "GiB" in out.stderr and "Traceback" not in out.stderr
