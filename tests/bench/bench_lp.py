@@ -24,7 +24,10 @@ repetition runs both whole processes, in alternating order, and records wall and
 (child rusage). Speed-up = median of the LP / median of ``cyclecheck analyze MODEL --json >
 /dev/null``, in the same run. Target (our own): at least 10x.
 
-Run with ``python tests/bench/bench_lp.py [--repeat R]``.
+``--profile`` adds the stage breakdown of ``cyclecheck analyze`` at each size (in process, CPU
+seconds, as in bench_analyze.py).
+
+Run with ``python tests/bench/bench_lp.py [--repeat R] [--profile]``.
 """
 
 from __future__ import annotations
@@ -85,6 +88,8 @@ def solve_lp(toml: Path) -> dict[str, Any]:
 def main() -> None:
     parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     parser.add_argument("--repeat", type=int, default=3, help="timed runs of each program")
+    parser.add_argument("--profile", action="store_true",
+                        help="stage breakdown of cyclecheck analyze (see bench_analyze.py)")
     parser.add_argument("--lp", type=Path, default=None, metavar="MODEL",
                         help="(internal) run the LP baseline on MODEL and print λ as JSON")
     args = parser.parse_args()
@@ -127,6 +132,14 @@ def main() -> None:
             print(f"{'':>16}speed-up of cyclecheck: wall {w[1] / w[0]:.1f}x, CPU "
                   f"{c[1] / c[0]:.1f}x (target >= {TARGET_SPEEDUP:.0f}x); "
                   f"λ agree to {rel:.1e} relative")
+            if args.profile:
+                from bench_analyze import stage_profile
+
+                tables = [stage_profile(toml) for _ in range(2)]
+                print(f"{'':>16}cyclecheck stages in process, CPU seconds, minimum of 2 runs:")
+                for i, (name, _) in enumerate(tables[0]):
+                    sec = min(t[i][1] for t in tables)
+                    print(f"{'':>18}{name:<48} {'' if sec != sec else f'{sec:8.2f}'}")
 
 
 if __name__ == "__main__":
