@@ -28,7 +28,7 @@ import numpy as np
 import pandas as pd
 import pytest
 from click.testing import CliRunner
-from cyclecheck.simulate import tracecheck
+from cyclecheck.simulate import eventlog, tracecheck
 from cyclecheck.simulate.cli import main
 from cyclecheck.simulate.durations import parse_spec
 from cyclecheck.simulate.engine import simulate_event_graph
@@ -679,8 +679,10 @@ def test_vectorized_judge_matches_plain_twin(case):
         frame["start"] = [s for *_, s in rows]
     violations, unjudged, missing = twin_judge(graph, rows, with_start, tol)
     patches = {"dense": {"DENSE_FACTOR": tracecheck.DENSE_FACTOR}, "ranked": {"DENSE_FACTOR": 0},
-               "lexsort": {"DENSE_FACTOR": 0, "KEY_LIMIT": 0}}[path]
-    with mock.patch.multiple(tracecheck, **patches):
+               "lexsort": {"DENSE_FACTOR": 0}}[path]
+    key_limit = 0 if path == "lexsort" else eventlog.KEY_LIMIT  # the sort key lives in eventlog
+    with mock.patch.multiple(tracecheck, **patches), mock.patch.object(eventlog, "KEY_LIMIT",
+                                                                       key_limit):
         log = EventLog.from_frame(model, frame)
         if len(unjudged) == len(rows) and not missing:
             with pytest.raises(ModelError, match="can be judged"):
