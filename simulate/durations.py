@@ -70,9 +70,11 @@ __all__ = [  # the law classes are re-exported from .laws, where they live
     "parse_spec",
 ]
 
-BLOCK = 1024
-"""Firings per block of draws. Generator set-up (~10 µs) is then small beside the draws, and a
-cached block costs 8 KiB per element, so the SimPy engine can keep one block of every element."""
+BLOCK = 8192
+"""Firings per block of draws. Setting up a block's generator (SeedSequence and PCG64, about
+35 µs) costs as much as 2000 exponential draws: at 8192 it adds about 4 ns per draw, where 1024
+added 35 ns and capped the vectorized recursion at about 13 million firings per second. A cached
+block costs 64 KiB per element."""
 
 CACHE_BYTES = 128 * 2**20
 """Default memory budget of a :class:`Sampler`'s block cache."""

@@ -33,6 +33,7 @@ import numpy as np
 from ..algebra.critical import cyclicity
 from ..algebra.recursion import RandomRecursion
 from ..algebra.spectral import howard
+from .durations import BLOCK
 from .errors import ModelError
 from .estimate import (
     Interval,
@@ -134,6 +135,34 @@ def _clearing_time(graph: Any, last: np.ndarray, future_holds: np.ndarray) -> np
     return np.maximum(z, 0.0)
 
 
+#: Firings fetched from the samplers at a time by the recursion: a divisor of the sampler's
+#: ``BLOCK``, small enough that a chunk of all replications stays a few MB.
+CHUNK = 1024
+assert BLOCK % CHUNK == 0, "a chunk must not straddle two blocks of draws"
+
+
+class _AlignedDraws:
+    """Serves a recursion's sequential requests for draws from chunks aligned on the sampler's
+    blocks: one fetch per ``CHUNK`` firings, however finely the run is checkpointed."""
+
+    def __init__(self, fetch: Callable[[int, int], np.ndarray]) -> None:
+        self.fetch = fetch
+        self.start = 0
+        self.data: np.ndarray | None = None
+
+    def __call__(self, first: int, count: int) -> np.ndarray:
+        parts = []
+        k, end = first, first + count
+        while k < end:
+            start = (k - 1) // CHUNK * CHUNK + 1
+            if self.data is None or self.start != start:
+                self.data, self.start = self.fetch(start, CHUNK), start
+            take = min(end, start + CHUNK) - k
+            parts.append(self.data[k - start : k - start + take])
+            k += take
+        return parts[0] if len(parts) == 1 else np.concatenate(parts)
+
+
 def _recursion_batch(model: Model, seed: int, replications: Sequence[int], firings: int,
                      block: int, record: bool) -> Batch:
     reps = np.asarray(replications, dtype=np.int64)
@@ -146,7 +175,8 @@ def _recursion_batch(model: Model, seed: int, replications: Sequence[int], firin
     def holds(first: int, count: int) -> np.ndarray:
         return np.stack([s.hold_block(first, count) for s in samplers], axis=1)
 
-    rec = RandomRecursion(graph, durations, holds, len(reps), criticality=True)
+    rec = RandomRecursion(graph, _AlignedDraws(durations), _AlignedDraws(holds), len(reps),
+                          criticality=True)
     depth = min(firings, max(1, int(graph.tokens.max(initial=0))))
     points = _checkpoints(firings, block)
     x = np.zeros((points.size, len(reps), graph.n_transitions))
@@ -281,7 +311,7 @@ class Estimate:
     def batch_means_interval(self) -> Interval | None:
         """Batch means inside the first replication, after its warm-up (Law & Kelton §9.5.3):
         a second interval from one long run, for comparison with the replication interval.
-        None when the run has fewer than 20 blocks after the warm-up."""
+        None when the run has fewer than 100 blocks after the warm-up."""
         b = self.batch
         t = int(np.argmax(self.by_transition))
         j = int(np.searchsorted(b.checkpoints, self.warmup_firings))
@@ -289,7 +319,7 @@ class Estimate:
         sizes = np.diff(points)
         rates = np.diff(b.x[j:, 0, t]) / sizes
         rates = rates[sizes == sizes[0]] if sizes.size else rates  # a shorter last block out
-        if rates.size < 20:
+        if rates.size < 100:  # too few blocks to choose batches by their correlation
             return None
         choice = choose_batch_count(rates)
         return batch_means(rates, n_batches=choice.n_batches)

@@ -160,6 +160,17 @@ def main() -> None:
     args = parser.parse_args()
 
     check_same_path()
+    from cyclecheck.simulate.experiment import run_replications
+    from cyclecheck.simulate.modelfile import load_model
+
+    model_dir = tempfile.TemporaryDirectory(prefix="bench_recursion_model_")
+    model = load_model(line_toml(Path(model_dir.name)))
+
+    def product(R: int, K: int, seed: int) -> Callable[[], None]:
+        """What `analyze` runs: experiment.run_replications on the model file (sampler,
+        aligned draws, checkpoints, criticality, the clearing time of the upper bound)."""
+        return lambda: run_replications(model, "recursion", seed, range(R), K)
+
     rows: dict[str, tuple[int, Callable[[int], Callable[[], None]]]] = {
         "minimal SimPy": (args.simpy_firings * STATIONS,
                           lambda r: lambda: minimal_model(args.simpy_firings, SEED + r)),
@@ -167,7 +178,7 @@ def main() -> None:
     for R in [int(x) for x in args.replications.split(",")]:
         K = max(200, args.work // (R * STATIONS))
         for label, make in (("pre-generated", pregenerated), ("Generator", generator),
-                            ("Sampler", project_sampler)):
+                            ("Sampler", project_sampler), ("product path", product)):
             rows[f"recursion R={R}, {label}"] = (
                 K * R * STATIONS, lambda r, make=make, R=R, K=K: make(R, K, SEED + r))
     rates: dict[str, list[float]] = {name: [] for name in rows}
