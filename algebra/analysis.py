@@ -28,10 +28,13 @@ from .recursion import transient as measure_transient
 from .semiring import augmented_matrix
 from .spectral import HowardResult, howard
 
-__all__ = ["TRANSIENT_WORK_LIMIT", "GraphAnalysis", "analyze_graph"]
+__all__ = ["TRANSIENT_MAX_PLACES", "TRANSIENT_WORK_LIMIT", "GraphAnalysis", "analyze_graph"]
 
 #: Largest ``firings * places`` spent on measuring the transient of the recursion.
 TRANSIENT_WORK_LIMIT = 20_000_000
+#: Above this many places the transient is not measured: setting up the recursion alone costs
+#: seconds there, more than the rest of the analysis.
+TRANSIENT_MAX_PLACES = 50_000
 
 
 @dataclass(frozen=True)
@@ -60,7 +63,7 @@ class GraphAnalysis:
         First firing from which ``x(k + c) = x(k) + c * eta`` holds, measured on the
         recursion; None if not reached within ``transient_horizon`` firings.
     transient_horizon : int
-        Number of firings the transient was looked for in.
+        Number of firings the transient was looked for in (0: not measured).
     n_components : int
         Number of strongly connected components.
     """
@@ -104,7 +107,8 @@ def analyze_graph(
         :data:`~cyclecheck.algebra.charpoly.MAX_DENSE_SIZE` states.
     transient_firings : int, optional
         Horizon for measuring the transient; by default as many firings as
-        :data:`TRANSIENT_WORK_LIMIT` allows, between 20 and 2000.
+        :data:`TRANSIENT_WORK_LIMIT` allows, between 20 and 2000, and none at all (not
+        measured) above :data:`TRANSIENT_MAX_PLACES` places.
 
     Raises
     ------
@@ -121,10 +125,14 @@ def analyze_graph(
     period = cyclicity(graph, result, critical)
     completion, start = periodic_schedule(graph, result)
     poly, note = _charpoly(graph) if charpoly else (None, "not requested")
+    explicit = transient_firings is not None
     if transient_firings is None:
         transient_firings = int(np.clip(TRANSIENT_WORK_LIMIT // max(graph.n_places, 1), 20, 2000))
     horizon = max(transient_firings, 2 * period + 2)
-    k0 = measure_transient(graph, result.cycle_time, period, horizon)
+    if graph.n_places > TRANSIENT_MAX_PLACES and not explicit:
+        k0, horizon = None, 0
+    else:
+        k0 = measure_transient(graph, result.cycle_time, period, horizon)
     count, _ = strongly_connected_components(graph)
     return GraphAnalysis(
         graph=graph,

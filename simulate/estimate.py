@@ -34,7 +34,6 @@ from typing import Any, Literal, NamedTuple
 
 import numpy as np
 from numpy.typing import ArrayLike, NDArray
-from scipy import stats
 
 from .warmup import Truncation, _count, _series, mser, mser5, welch_average
 
@@ -130,6 +129,8 @@ def _t_interval(values: NDArray[np.float64], level: float, method: str) -> Inter
     n = values.size
     mean = float(values.mean())
     sd = float(values.std(ddof=1))
+    from scipy import stats  # 0.5 s to import: only when an interval is built
+
     half = float(stats.t.ppf(0.5 + level / 2.0, n - 1)) * sd / math.sqrt(n)
     if mean != 0.0:
         rel = half / abs(mean)

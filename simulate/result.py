@@ -162,11 +162,6 @@ def analysis_section(model: Model, analysis: GraphAnalysis) -> dict[str, Any]:
         "transient_firings": analysis.transient,
         "transient_horizon": analysis.transient_horizon,
         "howard_iterations": hw.iterations,
-        "schedule": {
-            "completion": {ids[t]: float(analysis.completion[t])
-                           for t in range(graph.n_transitions)},
-            "start": {ids[t]: float(analysis.start[t]) for t in range(graph.n_transitions)},
-        },
     }
     return doc
 
