@@ -9,9 +9,13 @@
 
 from __future__ import annotations
 
+import contextlib
 import json
 import os
+import signal
 import tempfile
+import threading
+from collections.abc import Iterator
 from pathlib import Path
 from typing import Any
 
@@ -38,6 +42,7 @@ __all__ = [
     "load_result",
     "save_result",
     "simulate_model",
+    "write_outputs",
     "write_report",
 ]
 
@@ -162,6 +167,46 @@ def save_result(doc: dict[str, Any], path: Path, *, force: bool = False) -> None
         raise ModelError("exists and is not an earlier cyclecheck result; use --force",
                          file=path)
     _atomic_write(path, dumps(doc) + "\n")
+
+
+@contextlib.contextmanager
+def _interrupt_deferred() -> Iterator[None]:
+    """Hold Ctrl-C back while files are renamed into place, then deliver it: the outputs of a
+    run appear together or not at all."""
+    if threading.current_thread() is not threading.main_thread():
+        yield
+        return
+    caught: list[object] = []
+    previous = signal.signal(signal.SIGINT, lambda *args: caught.append(args))
+    try:
+        yield
+    finally:
+        signal.signal(signal.SIGINT, previous)
+    if caught:
+        raise KeyboardInterrupt
+
+
+def write_outputs(doc: dict[str, Any], *, report_path: Path | None = None,
+                  save_path: Path | None = None, force: bool = False) -> None:
+    """Write the result document and the review page, both or neither.
+
+    The page is rendered and the JSON text made first (the slow, interruptible part, which
+    writes nothing); then both files are written atomically with Ctrl-C held back.
+    """
+    from ..reports.page import render_page
+    from .result import dumps
+
+    for path in (report_path, save_path):
+        if path is not None and path.exists() and not force and not is_our_output(path):
+            raise ModelError("exists and is not an earlier cyclecheck output; use --force",
+                             file=path)
+    page = render_page(doc) if report_path is not None else None
+    text = dumps(doc) + "\n" if save_path is not None else None
+    with _interrupt_deferred():
+        if save_path is not None and text is not None:
+            _atomic_write(save_path, text)
+        if report_path is not None and page is not None:
+            _atomic_write(report_path, page)
 
 
 def load_result(path: Path) -> dict[str, Any]:

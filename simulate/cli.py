@@ -239,12 +239,9 @@ def _refuse_overwrite(path: Path, force: bool, ours: bool = False) -> None:
 
 def _write_outputs(doc: dict[str, Any], report_path: Path | None, save_path: Path | None,
                    force: bool) -> None:
-    from .api import save_result, write_report
+    from .api import write_outputs
 
-    if save_path is not None:
-        save_result(doc, save_path, force=force)
-    if report_path is not None:
-        write_report(doc, report_path, force=force)
+    write_outputs(doc, report_path=report_path, save_path=save_path, force=force)
 
 
 if __name__ == "__main__":  # pragma: no cover

@@ -166,7 +166,7 @@ def test_interrupt_leaves_no_output(tmp_path: Path) -> None:
     page, saved = tmp_path / "p.html", tmp_path / "r.json"
     proc = subprocess.Popen(
         [str(SCRIPT), "check", str(MODELS / "closed_line_exponential.toml"), "--precision",
-         "0.0005", "--report", str(page), "--save", str(saved)],
+         "0.0001", "--report", str(page), "--save", str(saved)],
         stdout=subprocess.PIPE, stderr=subprocess.PIPE, text=True,
         env={**os.environ, "PYTHONUNBUFFERED": "1"},
     )
