@@ -43,7 +43,6 @@ __all__ = [
     "save_result",
     "simulate_model",
     "write_outputs",
-    "write_report",
 ]
 
 #: Default target relative half-width for random models.
@@ -230,16 +229,6 @@ def load_result(path: Path) -> dict[str, Any]:
                          f"`cyclecheck {doc.get('command')}`; pages are made from `check` "
                          "results (cyclecheck check MODEL --save RESULT.json)", file=path)
     return doc
-
-
-def write_report(doc: dict[str, Any], path: Path, *, force: bool = False) -> None:
-    """Render and write the review page (atomically)."""
-    from ..reports.page import ReportError, write_page
-
-    try:
-        write_page(doc, path, force=force)
-    except ReportError as err:
-        raise ModelError(str(err), file=None) from None
 
 
 def is_our_output(path: Path) -> bool:

@@ -11,7 +11,6 @@ throughput of a zero cycle time) become ``null``.
 from __future__ import annotations
 
 import datetime as _dt
-import hashlib
 import json
 import math
 import platform
@@ -304,11 +303,3 @@ def _json_default(value: object) -> object:
         return str(value)
     raise TypeError(f"not JSON serialisable: {type(value).__name__}")
 
-
-def file_sha256(path: Path) -> str:
-    """SHA-256 of a file's bytes."""
-    digest = hashlib.sha256()
-    with open(path, "rb") as fh:
-        for chunk in iter(lambda: fh.read(1 << 20), b""):
-            digest.update(chunk)
-    return digest.hexdigest()
