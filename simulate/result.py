@@ -23,6 +23,7 @@ from typing import Any
 import numpy as np
 
 from ..algebra.analysis import GraphAnalysis
+from .estimate import replication_interval
 from .experiment import Estimate
 from .modelfile import Model
 
@@ -198,10 +199,11 @@ def estimate_section(model: Model, est: Estimate, lower: float) -> dict[str, Any
         "precision_met": est.target_met,
         "utilization": {ids[t]: float(u) for t, u in enumerate(est.utilization)},
         "per_replication": [float(v) for v in est.per_replication],
-        "running_estimate": {
-            "work": [h[0] for h in est.history], "estimate": [h[1] for h in est.history],
-            "low": [h[2] for h in est.history], "high": [h[3] for h in est.history],
-        },
+        "running_estimate": _running_estimate(est, model.n_transitions),
+        "sequential_rounds": [
+            {"replications": h[0], "estimate": h[1], "low": h[2], "high": h[3]}
+            for h in est.history
+        ],
     }
     if crit_p is not None:
         graph = model.graph()
@@ -214,6 +216,19 @@ def estimate_section(model: Model, est: Estimate, lower: float) -> dict[str, Any
                            "the largest share among its output places"),
         }
     return section
+
+
+def _running_estimate(est: Estimate, n_transitions: int) -> dict[str, list[float]]:
+    """The estimate and its 95 % interval after each replication, against firings computed."""
+    values = est.per_replication
+    work, mean, low, high = [], [], [], []
+    for r in range(2, values.size + 1):
+        iv = replication_interval(values[:r])
+        work.append(float(r * est.firings * n_transitions))
+        mean.append(iv.estimate)
+        low.append(iv.low)
+        high.append(iv.high)
+    return {"work": work, "estimate": mean, "low": low, "high": high}
 
 
 def _batch_means(est: Estimate) -> dict[str, Any] | None:
@@ -235,6 +250,8 @@ def random_analysis_section(model: Model, exact: GraphAnalysis, est: Estimate) -
     """
     section = analysis_section(model, exact)
     section["mean_value_cycle_time"] = section["cycle_time"]
+    # A random graph has no periodic regime: the transient belongs to the mean durations.
+    section["mean_value_transient_firings"] = section.pop("transient_firings")
     section.update(estimate_section(model, est, exact.cycle_time))
     section["critical_circuits"] = [[model.transition_ids[t] for t in c.transitions]
                                     for c in exact.howard.circuits]
