@@ -49,6 +49,17 @@ __all__ = [
 DEFAULT_PRECISION = 0.01
 
 
+@contextlib.contextmanager
+def _progress_line(enabled: bool, target: float | None) -> Iterator[ProgressLine | None]:
+    """A progress line for the duration of a run (None when not wanted), cleared at the end."""
+    line = ProgressLine.when_useful(enabled, target)
+    try:
+        yield line
+    finally:
+        if line is not None:
+            line.close()
+
+
 def _base(model: Model, command: str) -> dict[str, Any]:
     doc = provenance()
     doc["command"] = command
@@ -74,14 +85,10 @@ def analyze_model(model: Model, *, seed: int = 1, precision: float | None = None
         doc["settings"] = settings_section(seed, None, None, None)
         return doc
     precision = precision if precision is not None else DEFAULT_PRECISION
-    line = ProgressLine.when_useful(progress, precision)
-    try:
+    with _progress_line(progress, precision) as line:
         est = estimate_with_executor(model, "recursion", seed=seed, precision=precision,
                                      replications=replications, firings=firings,
                                      workers=workers, scheduler=scheduler, progress=line)
-    finally:
-        if line is not None:
-            line.close()
     doc.update(random_analysis_section(model, exact, est))
     doc["settings"] = settings_section(seed, precision, est.replications, est.firings)
     return doc
@@ -96,14 +103,10 @@ def simulate_model(model: Model, *, seed: int = 1, precision: float | None = Non
 
     doc = _base(model, "simulate")
     lower = analyze_graph(model.graph()).cycle_time
-    line = ProgressLine.when_useful(progress, precision)
-    try:
+    with _progress_line(progress, precision) as line:
         est = estimate_with_executor(model, "simpy", seed=seed, precision=precision,
                                      replications=replications, firings=firings,
                                      workers=workers, scheduler=scheduler, progress=line)
-    finally:
-        if line is not None:
-            line.close()
     doc.update(estimate_section(model, est, lower))
     if not model.is_random:
         doc["bounds"] = None
@@ -123,14 +126,10 @@ def check_model(model: Model, *, seed: int = 1, precision: float | None = None,
     from .compare import compare
 
     doc = _base(model, "check")
-    line = ProgressLine.when_useful(progress, precision)
-    try:
+    with _progress_line(progress, precision) as line:
         doc.update(compare(model, seed=seed, precision=precision, replications=replications,
                            firings=firings, workers=workers, scheduler=scheduler,
                            progress=line))
-    finally:
-        if line is not None:
-            line.close()
     return doc
 
 
