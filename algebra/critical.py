@@ -283,13 +283,33 @@ def _relative(violation: np.ndarray, scale: np.ndarray) -> float:
     return float(np.max(ratio, initial=0.0))
 
 
-def _policy_gap(graph: EventGraph, result: HowardResult) -> float:
-    """Relative ``|eta_u - eta_t|`` along the policy, or inf if the policy does not hold up."""
+def _valid_policy(graph: EventGraph, result: HowardResult) -> np.ndarray | None:
+    """The claimed policy if it picks one input place of every transition, else None."""
     n = graph.n_transitions
     policy = np.asarray(result.policy)
     if policy.shape != (n,) or policy.min(initial=0) < 0 or policy.max(initial=0) >= graph.n_places:
-        return math.inf
+        return None
     if not np.array_equal(graph.target[policy], np.arange(n)):
+        return None
+    return policy
+
+
+def _path_scale(graph: EventGraph, result: HowardResult, policy: np.ndarray) -> np.ndarray:
+    """Sum of ``w + |eta| m`` along each transition's policy path, recomputed here: what the
+    rounding of its bias scales with (the claimed ``bias_scale`` is not trusted)."""
+    n = graph.n_transitions
+    pred = graph.source[policy]
+    is_root = _policy_cycles(pred)
+    parent = np.where(is_root, np.arange(n), pred)
+    link = graph.weight[policy] + np.abs(result.cycle_time) * graph.tokens[policy]
+    _, (total,) = chain_sums(parent, link)
+    return total + link  # a root's bias closes its circuit: count its own link too
+
+
+def _policy_gap(graph: EventGraph, result: HowardResult) -> float:
+    """Relative ``|eta_u - eta_t|`` along the policy, or inf if the policy does not hold up."""
+    policy = _valid_policy(graph, result)
+    if policy is None:
         return math.inf
     reported: set[int] = set()
     for c in result.circuits:
@@ -310,8 +330,7 @@ def certify(graph: EventGraph, result: HowardResult, tolerance: float = RTOL) ->
     """Check a Howard result independently of how it was found.
 
     The rounding allowance comes from the graph and the claimed numbers only: the size of each
-    place's terms, plus a floor for the cancellation in sums along paths,
-    ``4 n eps (sum w + max|eta| sum m)``.
+    place's terms and of the sums along the claimed policy paths that make up the biases.
 
     Examples
     --------
@@ -330,10 +349,11 @@ def certify(graph: EventGraph, result: HowardResult, tolerance: float = RTOL) ->
     eta_u, eta_t = eta[graph.source], eta[graph.target]
     monotone = _relative(eta_u - eta_t, np.abs(eta_u) + np.abs(eta_t))
     same = _same_cycle_time(graph, result)
-    floor = (4 * graph.n_transitions * np.finfo(float).eps
-             * (graph.weight.sum() + np.abs(eta).max(initial=0.0) * graph.tokens.sum()))
+    policy = _valid_policy(graph, result)
+    paths = (_path_scale(graph, result, policy) if policy is not None
+             else np.zeros(graph.n_transitions))
     scale = (graph.weight + np.abs(eta_t) * graph.tokens + np.abs(v[graph.source])
-             + np.abs(v[graph.target]) + floor / tolerance)
+             + np.abs(v[graph.target]) + paths[graph.source] + paths[graph.target])
     max_red = _relative(np.where(same, reduced_weights(graph, result), 0.0), scale)
     order, starts = graph.by_target
     value = np.where(same, graph.weight - eta_t * graph.tokens + v[graph.source], -np.inf)

@@ -20,8 +20,10 @@ from pathlib import Path
 from typing import Any
 
 from ..algebra.analysis import analyze_graph
+from ..algebra.critical import cyclicity
+from ..algebra.spectral import howard
 from .errors import ModelError
-from .experiment import estimate_with_executor
+from .experiment import DEFAULT_PRECISION, estimate_with_executor
 from .modelfile import Model
 from .progress import ProgressLine
 from .result import (
@@ -45,8 +47,10 @@ __all__ = [
     "write_outputs",
 ]
 
-#: Default target relative half-width for random models.
-DEFAULT_PRECISION = 0.01
+
+
+#: First line of the event logs ``simulate --trace`` writes.
+TRACE_HEADER = "transition,firing,start,time\n"
 
 
 @contextlib.contextmanager
@@ -102,14 +106,21 @@ def simulate_model(model: Model, *, seed: int = 1, precision: float | None = Non
     from .engine import simulate_event_graph
 
     doc = _base(model, "simulate")
-    lower = analyze_graph(model.graph()).cycle_time
+    if precision is None and model.is_random:
+        precision = DEFAULT_PRECISION
+    graph = model.graph()
+    mean_value = howard(graph)
     with _progress_line(progress, precision) as line:
         est = estimate_with_executor(model, "simpy", seed=seed, precision=precision,
                                      replications=replications, firings=firings,
                                      workers=workers, scheduler=scheduler, progress=line)
-    doc.update(estimate_section(model, est, lower))
+    doc.update(estimate_section(model, est, mean_value.max_cycle_time))
     if not model.is_random:
+        # Fixed durations: the simulation is exact up to the transient; the structure is known.
         doc["bounds"] = None
+        doc["cyclicity"] = cyclicity(graph, mean_value)
+        doc["critical_circuits"] = [[model.transition_ids[t] for t in c.transitions]
+                                    for c in mean_value.circuits]
     doc["settings"] = settings_section(seed, precision, est.replications, est.firings)
     if trace_path is not None:
         run = simulate_event_graph(model.graph(), model.sampler(seed, 0), n_firings=est.firings)
@@ -142,18 +153,40 @@ def judge_trace(model: Model, log: Path, *, tolerance: float = 1e-6) -> dict[str
     return doc
 
 
-def _atomic_write(path: Path, text: str) -> None:
-    """Write through a temporary file in the same folder and rename: never a half-written file."""
+def check_output_path(path: Path) -> None:
+    """Fail before any work when an output cannot be written there (missing folder, a folder)."""
     path = Path(path)
-    fd, tmp = tempfile.mkstemp(prefix=f".{path.name}.", suffix=".tmp", dir=path.parent or ".")
+    if path.is_dir():
+        raise ModelError("is a folder; give a file name for the output", file=path)
+    if not (path.parent if str(path.parent) else Path(".")).is_dir():
+        raise ModelError(f"cannot be written: the folder {path.parent} does not exist", file=path)
+
+
+def _atomic_write(path: Path, text: str) -> None:
+    """Write through a temporary file in the same folder and rename: never a half-written file.
+
+    The file gets the permissions of a plain ``open`` (0666 less the umask), not the private
+    0600 of a temporary file; errors name the output, not the temporary file.
+    """
+    path = Path(path)
+    check_output_path(path)
+    umask = os.umask(0)
+    os.umask(umask)
+    try:
+        fd, tmp = tempfile.mkstemp(prefix=f".{path.name}.", suffix=".tmp", dir=path.parent)
+    except OSError as err:
+        raise ModelError(f"cannot be written: {err.strerror}", file=path) from None
     try:
         with os.fdopen(fd, "w", encoding="utf-8") as fh:
             fh.write(text)
             fh.flush()
             os.fsync(fh.fileno())
+        os.chmod(tmp, 0o666 & ~umask)
         os.replace(tmp, path)
-    except BaseException:
+    except BaseException as err:
         Path(tmp).unlink(missing_ok=True)
+        if isinstance(err, OSError):
+            raise ModelError(f"cannot be written: {err.strerror or err}", file=path) from None
         raise
 
 
@@ -169,8 +202,9 @@ def save_result(doc: dict[str, Any], path: Path, *, force: bool = False) -> None
 
 @contextlib.contextmanager
 def _interrupt_deferred() -> Iterator[None]:
-    """Hold Ctrl-C back while files are renamed into place, then deliver it: the outputs of a
-    run appear together or not at all."""
+    """Hold Ctrl-C back while files are renamed into place: the outputs of a run appear
+    together or not at all. A Ctrl-C that came meanwhile is dropped: by then the run is
+    complete and written."""
     if threading.current_thread() is not threading.main_thread():
         yield
         return
@@ -180,8 +214,6 @@ def _interrupt_deferred() -> Iterator[None]:
         yield
     finally:
         signal.signal(signal.SIGINT, previous)
-    if caught:
-        raise KeyboardInterrupt
 
 
 def write_outputs(doc: dict[str, Any], *, report_path: Path | None = None,
@@ -200,6 +232,10 @@ def write_outputs(doc: dict[str, Any], *, report_path: Path | None = None,
                              file=path)
     page = render_page(doc) if report_path is not None else None
     text = dumps(doc) + "\n" if save_path is not None else None
+    if report_path is not None and save_path is not None and (
+            Path(report_path).resolve() == Path(save_path).resolve()):
+        raise ModelError("is given for both --report and --save; give two files",
+                         file=report_path)
     with _interrupt_deferred():
         if save_path is not None and text is not None:
             _atomic_write(save_path, text)
@@ -231,7 +267,8 @@ def load_result(path: Path) -> dict[str, Any]:
 
 
 def is_our_output(path: Path) -> bool:
-    """True when ``path`` is a result document or a review page written by cyclecheck."""
+    """True when ``path`` is a result document, a review page or an event log written by
+    cyclecheck (a log is known by the exact header ``simulate --trace`` writes)."""
     from ..reports.page import is_report
 
     try:
@@ -241,4 +278,5 @@ def is_our_output(path: Path) -> bool:
             head = fh.read(4096)
     except OSError:
         return False
-    return f'"document": "{DOCUMENT_KIND}"'.encode() in head
+    return (f'"document": "{DOCUMENT_KIND}"'.encode() in head
+            or head.startswith(TRACE_HEADER.encode()))

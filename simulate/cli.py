@@ -39,11 +39,12 @@ def _guarded(func: F) -> F:
     @functools.wraps(func)
     def wrapper(*args: Any, **kwargs: Any) -> Any:
         from ..algebra.exceptions import MaxPlusError
+        from ..reports.page import ReportError
         from .errors import ModelError
 
         try:
             return func(*args, **kwargs)
-        except ModelError as err:
+        except (ModelError, ReportError) as err:
             _fail(str(err))
         except MaxPlusError as err:
             _fail(f"the model breaks a rule of the algebra: {err}")
@@ -72,13 +73,13 @@ def _common(func: F) -> F:
     options = [
         click.option("--json", "as_json", is_flag=True,
                      help="Print the result document as JSON on stdout, nothing else."),
-        click.option("--seed", type=int, default=1, show_default=True,
+        click.option("--seed", type=click.IntRange(min=0), default=1, show_default=True,
                      help="Seed of the random draws (numpy SeedSequence)."),
         click.option("--precision", type=float, default=None, callback=_precision,
                      help="Target relative half-width of the 95 % confidence interval; the "
                           "run adds work until it is reached. [default: 0.01 for random models]"),
         click.option("--replications", type=click.IntRange(min=2), default=None,
-                     help="Independent replications per round [default: 10]."),
+                     help="Independent replications per round (default 10)."),
         click.option("--firings", type=click.IntRange(min=10), default=None,
                      help="Firings of every transition per replication [default: chosen "
                           "from the model size]."),
@@ -93,7 +94,12 @@ def _common(func: F) -> F:
     return func
 
 
-@click.group(context_settings={"help_option_names": ["-h", "--help"]})
+EXIT_CODES = ("Exit codes: 0 done, or the model agrees with the theory; 1 the simulation or "
+              "the log disagrees; 2 bad input or usage; 130 interrupted.")
+
+
+@click.group(context_settings={"help_option_names": ["-h", "--help"], "max_content_width": 100},
+             epilog=EXIT_CODES)
 @click.version_option(package_name="cyclecheck")
 def main() -> None:
     """Check a timed event graph model against max-plus theory.
@@ -104,7 +110,8 @@ def main() -> None:
     """
 
 
-@main.command()
+@main.command(short_help="Exact cycle time, critical circuit, slack; Lyapunov estimate.",
+              epilog=EXIT_CODES)
 @click.argument("model", type=click.Path(path_type=Path))
 @_common
 @_guarded
@@ -123,7 +130,8 @@ def analyze(model: Path, as_json: bool, seed: int, precision: float | None,
     _emit(doc, as_json, summary.analysis_text)
 
 
-@main.command(name="simulate")
+@main.command(name="simulate", short_help="Cycle time estimated from the SimPy engine.",
+              epilog=EXIT_CODES)
 @click.argument("model", type=click.Path(path_type=Path))
 @_common
 @click.option("--trace", "trace_path", type=click.Path(path_type=Path), default=None,
@@ -148,7 +156,8 @@ def simulate_cmd(model: Path, as_json: bool, seed: int, precision: float | None,
     _emit(doc, as_json, summary.simulation_text)
 
 
-@main.command()
+@main.command(short_help="SimPy beside the max-plus recursion, with a verdict.",
+              epilog=EXIT_CODES)
 @click.argument("model", type=click.Path(path_type=Path))
 @_common
 @click.option("--report", "report_path", type=click.Path(path_type=Path), default=None,
@@ -172,16 +181,19 @@ def check(model: Path, as_json: bool, seed: int, precision: float | None,
     loaded = load_model(model)
     for path in (report_path, save_path):
         if path is not None:
-            _refuse_overwrite(path, force, ours=True)
+            _refuse_overwrite(path, force)
     doc = check_model(loaded, seed=seed, precision=precision, replications=replications,
                       firings=firings, workers=workers, scheduler=scheduler,
                       progress=not quiet and not as_json)
     _write_outputs(doc, report_path, save_path, force)
     _emit(doc, as_json, summary.check_text)
+    for path in (report_path, save_path):
+        if path is not None and not quiet:
+            click.echo(f"wrote {path}", err=True)
     sys.exit(EXIT_AGREES if doc["comparison"]["verdict"] == "agrees" else EXIT_DISAGREES)
 
 
-@main.command()
+@main.command(short_help="Re-render a saved result document as a page.", epilog=EXIT_CODES)
 @click.argument("result", type=click.Path(path_type=Path))
 @click.option("-o", "--output", "output", type=click.Path(path_type=Path), required=True,
               help="The page to write (HTML).")
@@ -196,7 +208,8 @@ def report(result: Path, output: Path, force: bool) -> None:
     click.echo(f"wrote {output}", err=True)
 
 
-@main.command()
+@main.command(short_help="Judge an event log of any simulator against the model.",
+              epilog=EXIT_CODES)
 @click.argument("model", type=click.Path(path_type=Path))
 @click.argument("log", type=click.Path(path_type=Path))
 @click.option("--json", "as_json", is_flag=True, help="Print the judgement as JSON on stdout.")
@@ -223,17 +236,14 @@ def _emit(doc: dict[str, Any], as_json: bool, text: Callable[[dict[str, Any]], s
     click.echo(dumps(doc) if as_json else text(doc))
 
 
-def _refuse_overwrite(path: Path, force: bool, ours: bool = False) -> None:
-    """Stop before any work when an output would overwrite a file the user did not make with us."""
-    if force or not path.exists():
-        return
-    if path.is_dir():
-        _fail(f"{path}: is a directory; give a file name for the output")
-    if ours:
-        from .api import is_our_output
+def _refuse_overwrite(path: Path, force: bool) -> None:
+    """Stop before any work when an output cannot be written, or would overwrite a file the
+    user did not make with cyclecheck."""
+    from .api import check_output_path, is_our_output
 
-        if is_our_output(path):
-            return
+    check_output_path(path)
+    if force or not path.exists() or is_our_output(path):
+        return
     _fail(f"{path}: exists and is not an earlier cyclecheck output; use --force to overwrite it")
 
 

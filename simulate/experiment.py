@@ -31,6 +31,7 @@ from typing import Any
 import numpy as np
 
 from ..algebra.critical import cyclicity
+from ..algebra.eventgraph import strongly_connected_components
 from ..algebra.recursion import RandomRecursion
 from ..algebra.spectral import howard
 from .durations import BLOCK
@@ -39,7 +40,7 @@ from .estimate import (
     Interval,
     batch_means,
     choose_batch_count,
-    mser5,
+    mser,
     replication_interval,
     sequential_precision,
 )
@@ -60,6 +61,10 @@ ENGINES = ("recursion", "simpy")
 DEFAULT_REPLICATIONS = 10
 #: Most replications any estimate may use.
 MAX_REPLICATIONS = 2000
+#: Default target relative half-width for random models.
+DEFAULT_PRECISION = 0.01
+#: Longest cyclicity that runs are aligned to (they are made at least 10 periods long).
+MAX_ALIGNED_PERIOD = 10_000
 
 
 @dataclass
@@ -118,8 +123,9 @@ def _clearing_time(graph: Any, last: np.ndarray, future_holds: np.ndarray) -> np
     """``Z(K)`` per replication: the latest availability of the tokens in the places after ``K``
     firings of every transition.
 
-    ``last`` holds the firing times of firings ``K - M + 1 .. K`` (shape (M, R, n), ``M`` the
-    largest marking) and ``future_holds`` the holds ``h_p(K + 1 .. K + M)`` (shape (M, R, m)).
+    ``last`` holds the firing times of the last ``min(K, M)`` firings (shape (., R, n), ``M``
+    the largest marking) and ``future_holds`` the holds ``h_p(K + 1 .. K + M)`` (shape
+    (M, R, m)); tokens still there from the initial marking are available at 0.
     The ``i``-th newest token of place ``p`` (``i <= m_p``) was produced by firing
     ``j = K - i + 1`` of its source and is consumed by firing ``j + m_p``, whose hold it carries.
     """
@@ -193,7 +199,8 @@ def _recursion_batch(model: Model, seed: int, replications: Sequence[int], firin
             recorded.append(out.times)
         x[i] = rec.state()
     kept = np.concatenate(recorded)
-    clearing = _clearing_time(graph, kept[-depth:], holds(firings + 1, depth))
+    marking = max(1, int(graph.tokens.max(initial=0)))
+    clearing = _clearing_time(graph, kept[-depth:], holds(firings + 1, marking))
     return Batch(reps, points, x, busy, critical, clearing, kept if record else None)
 
 
@@ -215,7 +222,8 @@ def _simpy_batch(model: Model, seed: int, replications: Sequence[int], firings: 
         run = simulate_event_graph(graph, sampler, n_firings=firings)
         x[1:, i] = run.time[points[1:] - 1]
         busy[i] = np.nansum(run.time - run.start, axis=0)
-        future = sampler.hold_block(firings + 1, depth)[:, None, :]
+        future = sampler.hold_block(firings + 1, max(1, int(graph.tokens.max(initial=0))))
+        future = future[:, None, :]
         clearing[i] = _clearing_time(graph, run.time[-depth:, None, :], future)[0]
         if times is not None:
             times[:, i] = run.time
@@ -243,7 +251,7 @@ def open_executor(workers: int = 1,
                              "'cyclecheck[cluster]'", item="--scheduler") from err
         try:
             client = Client(scheduler, timeout="10s")
-        except (OSError, TimeoutError) as err:
+        except (OSError, TimeoutError, ValueError, TypeError) as err:
             raise ModelError(f"cannot reach the Dask scheduler at {scheduler}: {err}",
                              item="--scheduler") from err
         return client.get_executor(pure=False), client.close
@@ -272,7 +280,10 @@ def run_replications(model: Model, engine: str, seed: int, replications: Sequenc
 
 def _check_memory(model: Model, replications: int, firings: int, record: bool) -> None:
     per_value = 8 * model.n_transitions * replications
-    need = per_value * (firings if record else 400) + 16 * model.n_places * replications
+    # The recursion keeps the last (largest marking + 1) firings of every transition.
+    depth = int(model.tokens.max(initial=0)) + 1
+    need = (per_value * ((firings if record else 400) + depth) + 160 * depth
+            + 16 * model.n_places * replications)
     try:
         available = os.sysconf("SC_AVPHYS_PAGES") * os.sysconf("SC_PAGE_SIZE")
     except (ValueError, OSError, AttributeError):  # pragma: no cover - non-POSIX
@@ -302,6 +313,7 @@ class Estimate:
     history: list[tuple[int, float, float, float]]
     target_met: bool | None
     batch: Batch
+    warmup_at_limit: bool = False
 
     @property
     def firings_simulated(self) -> int:
@@ -325,14 +337,46 @@ class Estimate:
         return batch_means(rates, n_batches=choice.n_batches)
 
 
-def _warmup(batch: Batch) -> int:
-    """MSER-5 on the mean block rates of the pilot replications: firings to delete."""
+class _Components:
+    """Strongly connected components of a model's graph, to average growth rates over.
+
+    In a strongly connected component every transition has the same cycle time and their
+    growth rates differ by noise of order 1/K; the *mean* over the component is the estimate
+    (the maximum over its transitions would be biased upwards, more so the more transitions).
+    A graph that is not strongly connected is reported by its slowest component.
+    """
+
+    def __init__(self, model: Model) -> None:
+        count, labels = strongly_connected_components(model.graph())
+        self.labels = labels
+        self.sizes = np.bincount(labels, minlength=count).astype(np.float64)
+
+    def means(self, per_transition: np.ndarray) -> np.ndarray:
+        """Mean over each component, for values of shape (..., n): shape (..., components)."""
+        flat = per_transition.reshape(-1, per_transition.shape[-1])
+        out = np.stack([np.bincount(self.labels, weights=row, minlength=self.sizes.size)
+                        for row in flat]) / self.sizes
+        return out.reshape(*per_transition.shape[:-1], self.sizes.size)
+
+    def headline(self, per_transition: np.ndarray) -> np.ndarray:
+        """The slowest component's mean, for values of shape (..., n)."""
+        return self.means(per_transition).max(axis=-1)
+
+    def spread(self, per_transition: np.ndarray) -> np.ndarray:
+        """Each transition's value replaced by its component's mean."""
+        return self.means(per_transition)[..., self.labels]
+
+
+def _warmup(batch: Batch, components: _Components) -> tuple[int, bool]:
+    """MSER-5 on the mean block rates of the pilot replications: firings to delete, and
+    whether the truncation point fell on the search limit (the run is too short)."""
     rates = np.diff(batch.x, axis=0) / np.diff(batch.checkpoints)[:, None, None]
-    series = rates.max(axis=2).mean(axis=1)
+    series = components.headline(rates).mean(axis=1)
     if series.size < 10:
-        return 0
-    deleted_blocks = mser5(series)
-    return int(batch.checkpoints[min(deleted_blocks, batch.checkpoints.size - 2)])
+        return 0, False
+    cut = mser(series, 5)
+    deleted_blocks = cut.deleted
+    return int(batch.checkpoints[min(deleted_blocks, batch.checkpoints.size - 2)]), cut.at_limit
 
 
 def _aligned(model: Model, firings: int) -> tuple[int, int]:
@@ -346,8 +390,9 @@ def _aligned(model: Model, firings: int) -> tuple[int, int]:
     graph = model.graph()
     result = howard(graph)
     period = cyclicity(graph, result)
-    if period > max(1, firings // 10):
-        period = 1  # a period this long is not worth aligning to; the bias is O(1/firings)
+    if period > MAX_ALIGNED_PERIOD:
+        period = 1  # a period this long cannot be run through; the bias is O(1/firings)
+    firings = max(firings, 10 * period)
     firings = -(-firings // period) * period
     block = period * max(1, firings // (200 * period))
     return firings, block
@@ -363,18 +408,21 @@ def estimate_cycle_time(model: Model, engine: str = "recursion", *, seed: int = 
                         firings: int, replications: int = DEFAULT_REPLICATIONS,
                         precision: float | None = None, max_replications: int = MAX_REPLICATIONS,
                         executor: Executor | None = None, chunks: int = 1,
-                        record: bool = False,
+                        record: bool = False, first_replication: int = 0,
                         progress: Callable[[str, int, np.ndarray], None] | None = None
                         ) -> Estimate:
     """Estimate the cycle time of a model by independent replications.
 
     With ``precision`` the sequential procedure adds replications until the 95 % interval's
     relative half-width is at most ``precision`` (or ``max_replications`` are used).
+    Replications are numbered from ``first_replication`` (another range gives independent
+    draws).
     """
     firings, block = _aligned(model, firings)
+    components = _Components(model)
     batches: list[Batch] = []
     so_far: list[np.ndarray] = []
-    state: dict[str, int] = {"next": 0, "warmup": -1}
+    state: dict[str, int] = {"next": first_replication, "warmup": -1, "at_limit": 0}
 
     def step(count: int) -> np.ndarray:
         reps = range(state["next"], state["next"] + count)
@@ -382,12 +430,13 @@ def estimate_cycle_time(model: Model, engine: str = "recursion", *, seed: int = 
         batch = run_replications(model, engine, seed, reps, firings, block=block,
                                  executor=executor, chunks=chunks, record=record)
         if state["warmup"] < 0:
-            state["warmup"] = _warmup(batch)
+            state["warmup"], at_limit = _warmup(batch, components)
+            state["at_limit"] = int(at_limit)
         batches.append(batch)
-        values = _growth(batch, state["warmup"]).max(axis=1)
+        values = components.headline(_growth(batch, state["warmup"]))
         so_far.append(values)
         if progress is not None:
-            progress(engine, state["next"], np.concatenate(so_far))
+            progress(engine, state["next"] - first_replication, np.concatenate(so_far))
         return values
 
     history: list[tuple[int, float, float, float]] = []
@@ -399,7 +448,9 @@ def estimate_cycle_time(model: Model, engine: str = "recursion", *, seed: int = 
     else:
         # Law & Kelton's rule stops at gamma / (1 + gamma) for a relative *error* gamma; the
         # contract here is the relative half-width itself, hence gamma = p / (1 - p).
-        gamma = precision / (1.0 - precision)
+        # (Capped below 1, which the procedure requires: a half-width target of 50 % or more
+        # is then met a little more strictly than asked.)
+        gamma = min(precision / (1.0 - precision), 0.999)
         # The limit never undercuts what the user asked for in the first round.
         seq = sequential_precision(step, gamma, initial=replications,
                                    max_work=max(max_replications, replications))
@@ -414,21 +465,23 @@ def estimate_cycle_time(model: Model, engine: str = "recursion", *, seed: int = 
         if batch.critical is not None:
             crit = batch.critical.sum(axis=0) / (batch.firings * len(batch.replications))
     upper = replication_interval(batch.clearing / batch.firings)
-    return Estimate(engine, interval, growth.mean(axis=0), growth.max(axis=1),
-                    state["warmup"], batch.firings, len(batch.replications), upper,
-                    utilization, crit, history, target_met, batch)
+    return Estimate(engine, interval, components.spread(growth).mean(axis=0),
+                    components.headline(growth), state["warmup"], batch.firings,
+                    len(batch.replications), upper, utilization, crit, history, target_met,
+                    batch, bool(state["at_limit"]))
 
 
 def default_firings(model: Model, engine: str) -> int:
     """Firings per replication when the user gives none: enough for the warm-up to be a small
     part of the run, few enough that a round takes seconds on one core."""
-    budget = 2_000_000 if engine == "recursion" else 60_000
-    return int(np.clip(budget // max(model.n_transitions, 1), 200, 20_000))
+    budget, least = (2_000_000, 2000) if engine == "recursion" else (60_000, 200)
+    return int(np.clip(budget // max(model.n_transitions, 1), least, 20_000))
 
 
 def estimate_with_executor(model: Model, engine: str, *, seed: int, precision: float | None,
                            replications: int | None, firings: int | None, workers: int = 1,
                            scheduler: str | None = None, record: bool = False,
+                           first_replication: int = 0,
                            progress: Callable[[str, int, np.ndarray], None] | None = None
                            ) -> Estimate:
     """:func:`estimate_cycle_time` with defaults filled in, on the executor the options ask for."""
@@ -438,8 +491,10 @@ def estimate_with_executor(model: Model, engine: str, *, seed: int, precision: f
             model, engine, seed=seed,
             firings=firings or default_firings(model, engine),
             replications=replications or DEFAULT_REPLICATIONS,
-            precision=precision, executor=executor, chunks=max(workers, 1) if executor else 1,
-            record=record, progress=progress,
+            precision=precision, executor=executor,
+            # A cluster gets one task per replication; a local pool one per worker.
+            chunks=(MAX_REPLICATIONS if scheduler else max(workers, 1)) if executor else 1,
+            record=record, first_replication=first_replication, progress=progress,
         )
     finally:
         close()

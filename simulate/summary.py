@@ -38,11 +38,26 @@ def _estimate_lines(side: dict[str, Any], unit: str) -> list[str]:
     lines.append(f"throughput     {_num(side['throughput'])} firings{per}")
     bounds = side.get("bounds")
     if bounds:
-        lines.append(f"bounds         {_num(bounds['lower'])} <= cycle time <= "
-                     f"{_num(bounds['upper'])}{unit}  ({bounds.get('upper_method', '')})".rstrip())
+        lines.append(f"lower bound    {_num(bounds['lower'])}{unit}  (exact: the cycle time of the "
+                     "mean durations)")
+        lines.append(f"upper bound    {_num(bounds['upper'])}{unit}  (estimated: E Z(K)/K, "
+                     "subadditive)")
     if side.get("firings_simulated"):
         lines.append(f"firings        {side['firings_simulated']:,} simulated")
     return lines
+
+
+#: Transitions of a circuit printed in full; longer ones are shortened in the middle.
+CIRCUIT_SHOWN = 12
+
+
+def _circuit_text(circuit: list[str]) -> str:
+    ids = [*circuit, circuit[0]]
+    if len(circuit) <= CIRCUIT_SHOWN:
+        return " -> ".join(ids)
+    head, tail = ids[: CIRCUIT_SHOWN // 2], ids[-CIRCUIT_SHOWN // 2 :]
+    return (" -> ".join(head) + f" -> ... ({len(circuit)} transitions) ... -> "
+            + " -> ".join(tail))
 
 
 def analysis_text(doc: dict[str, Any]) -> str:
@@ -58,10 +73,13 @@ def analysis_text(doc: dict[str, Any]) -> str:
         shown = sorted(by_t.items(), key=lambda kv: -kv[1])[:TOP_SLACKS]
         lines += [f"  {tid:<20} {_num(v)}{unit}" for tid, v in shown]
     basis = doc.get("critical_circuits_basis")
+    ratios = doc.get("critical_circuit_ratios") or []
     for i, circuit in enumerate(doc.get("critical_circuits", [])[:3]):
         head = "critical       " if i == 0 else "               "
         tail = f"  (of the {basis})" if basis and i == 0 else ""
-        lines.append(head + " -> ".join(circuit) + f" -> {circuit[0]}{tail}")
+        if len(ratios) > i and doc.get("strongly_connected") is False:
+            tail += f"  ratio {_num(ratios[i])}"
+        lines.append(head + _circuit_text(circuit) + tail)
     if doc.get("cyclicity"):
         lines.append(f"cyclicity      {doc['cyclicity']}")
     if doc.get("transient_firings") is not None:
@@ -69,7 +87,9 @@ def analysis_text(doc: dict[str, Any]) -> str:
     slack = doc.get("slack", {}).get("transitions", {})
     near = sorted((v, k) for k, v in slack.items() if v is not None and v > 0)[:TOP_SLACKS]
     if near:
-        lines.append("smallest slack (duration increase before the cycle time changes):")
+        of_mean = " of the mean durations" if basis else ""
+        lines.append(f"smallest slack{of_mean} (duration increase before the cycle time "
+                     "changes):")
         lines += [f"  {tid:<20} {_num(v)}{unit}" for v, tid in near]
     cert = doc.get("certificate")
     if cert:
@@ -78,7 +98,8 @@ def analysis_text(doc: dict[str, Any]) -> str:
     crit = doc.get("criticality", {}) or {}
     if crit.get("transitions"):
         top = sorted(crit["transitions"].items(), key=lambda kv: -kv[1])[:TOP_SLACKS]
-        lines.append("criticality under variability (share of firings on the critical path):")
+        lines.append("criticality under variability (share of the downstream firings whose "
+                     "start it set):")
         lines += [f"  {tid:<20} {100 * v:.1f} %" for tid, v in top]
     return "\n".join(lines)
 
@@ -126,5 +147,8 @@ def trace_text(doc: dict[str, Any]) -> str:
     est = doc.get("cycle_time_from_log")
     if est is not None and math.isfinite(est):
         model_value = _num(doc.get("cycle_time"))
-        lines.append(f"cycle time in log {_num(est)}{_unit(doc)}; model {model_value}")
+        basis = doc.get("cycle_time_basis") or ""
+        which = "lower bound" if basis.startswith("lower") else "model"
+        lines.append(f"cycle time in log {_num(est)}{_unit(doc)}; {which} {model_value}"
+                     f"{_unit(doc)}")
     return "\n".join(lines)

@@ -185,3 +185,56 @@ def test_asking_for_more_memory_than_the_machine_has_exits_2() -> None:
               "100000000")
     assert out.returncode == 2, out.stderr
     assert "GiB" in out.stderr and "Traceback" not in out.stderr
+
+
+def test_bad_options_on_a_random_model_exit_2(tmp_path: Path) -> None:
+    """A negative seed and an unreachable or malformed scheduler address are usage errors on a
+    random model too; a precision of 0.7 is honoured (met more strictly), not a crash."""
+    model = str(MODELS / "closed_line_exponential.toml")
+    for args in (["--seed", "-1"], ["--scheduler", "foo://bar"],
+                 ["--scheduler", "tcp://127.0.0.1:notaport"]):
+        out = run("analyze", model, *args, timeout=120)
+        assert out.returncode == 2, (args, out.stderr)
+        assert "Traceback" not in out.stderr
+    out = run("analyze", model, "--precision", "0.7", "--firings", "500")
+    assert out.returncode == 0, out.stderr
+
+
+def test_outputs_are_checked_before_the_run_and_readable(tmp_path: Path) -> None:
+    """A missing output folder, a folder as output, and one path for both outputs are refused
+    at once; written files get the usual permissions (0666 less the umask)."""
+    model = str(MODELS / "batch_plant.toml")
+    for args in (["--report", str(tmp_path / "nodir" / "p.html")],
+                 ["--save", str(tmp_path)],
+                 ["--report", str(tmp_path / "x"), "--save", str(tmp_path / "x")]):
+        out = run("check", model, *args)
+        assert out.returncode == 2, (args, out.stderr)
+        assert "Traceback" not in out.stderr and ".tmp" not in out.stderr
+    assert list(tmp_path.iterdir()) == []
+    page = tmp_path / "p.html"
+    assert run("check", model, "--report", str(page), "--quiet").returncode == 0
+    assert page.stat().st_mode & 0o044 == 0o044  # group and others may read
+
+
+def test_report_of_a_damaged_document_exits_2(tmp_path: Path) -> None:
+    """A result document with a wrong schema version or a text for a number: exit 2."""
+    saved = tmp_path / "r.json"
+    assert run("check", str(MODELS / "batch_plant.toml"), "--save", str(saved),
+               "--quiet").returncode == 0
+    doc = json.loads(saved.read_text())
+    for damage in ({"schema_version": 99}, {"analysis": None}):
+        broken = tmp_path / "broken.json"
+        broken.write_text(json.dumps({**doc, **damage}))
+        out = run("report", str(broken), "-o", str(tmp_path / "p.html"))
+        assert out.returncode == 2, (damage, out.stderr)
+        assert "Traceback" not in out.stderr
+
+
+def test_simulate_may_overwrite_its_own_trace(tmp_path: Path) -> None:
+    """Re-running the README's `simulate --trace` replaces the earlier log without --force."""
+    log = tmp_path / "log.csv"
+    args = ("simulate", str(MODELS / "shuttle_loop.toml"), "--trace", str(log),
+            "--replications", "2", "--firings", "50", "--quiet")
+    assert run(*args).returncode == 0
+    out = run(*args)
+    assert out.returncode == 0, out.stderr

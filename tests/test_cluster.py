@@ -40,6 +40,13 @@ def test_process_pool_gives_the_same_replications(model) -> None:
     np.testing.assert_array_equal(here.replications, there.replications)
 
 
+def _chunks_done(dask_scheduler) -> int:
+    """Replication tasks that reached memory on the cluster (the scheduler counts every state
+    a task of a prefix has entered, so this only grows)."""
+    prefix = dask_scheduler.task_prefixes.get("run_chunk")
+    return 0 if prefix is None else int(prefix.state_counts.get("memory", 0))
+
+
 @pytest.mark.cluster
 def test_dask_cluster_gives_the_same_estimate(model) -> None:
     """A real LocalCluster on 127.0.0.1: `analyze --scheduler` prints the same document numbers
@@ -56,6 +63,15 @@ def test_dask_cluster_gives_the_same_estimate(model) -> None:
                 np.testing.assert_array_equal(remote.x, local.x)
         finally:
             close()
+        # The command line sends its replications to the cluster (one task each), not to
+        # this process: the scheduler has seen the tasks.
+        from cyclecheck.simulate.experiment import estimate_with_executor
+
+        with distributed.Client(cluster.scheduler_address) as client:
+            before = client.run_on_scheduler(_chunks_done)
+            estimate_with_executor(model, "recursion", seed=2, precision=None, replications=4,
+                                   firings=300, scheduler=cluster.scheduler_address)
+            assert client.run_on_scheduler(_chunks_done) >= before + 4
         args = ["analyze", str(MODELS / "closed_line_exponential.toml"), "--json",
                 "--replications", "4", "--firings", "2000", "--seed", "3"]
         remote = subprocess.run([str(SCRIPT), *args, "--scheduler", cluster.scheduler_address],
