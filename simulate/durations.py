@@ -225,6 +225,9 @@ def parse_spec(
         if k not in allowed:
             raise error(f'{name} has no parameter "{k}"{did_you_mean(k, allowed)} '
                         f'(parameters: {", ".join(allowed)})')
+    if name == "normal" and not isinstance(table.get("truncate", False), bool):
+        raise error(f"normal truncate must be true or false (a boolean), got "
+                    f"{shown(table['truncate'])}")
     if name == "normal" and table.get("truncate") is not True:
         raise error("normal can go negative: add truncate = true (draws below 0 are redrawn), "
                     "or use gamma or lognormal")

@@ -27,8 +27,9 @@ class ModelError(Exception):
     file : str or os.PathLike, optional
         The file at fault, or ``None`` when the input did not come from a file.
     item : str, optional
-        The element at fault, for example ``'transition "cap"'``, ``'place 3 (fill -> cap)'``
-        or ``'line 12'``; ``None`` when the whole file is at fault.
+        The element at fault, for example ``'transition "cap"'``,
+        ``'place 3 (fill -> cap, index 2)'`` or ``'line 12'``; ``None`` when the whole file is
+        at fault.
 
     Attributes
     ----------
@@ -39,8 +40,8 @@ class ModelError(Exception):
     Examples
     --------
     >>> str(ModelError("tokens must be an integer >= 0, got -1", file="models/x.toml",
-    ...                item="place 3 (fill -> cap)"))
-    'models/x.toml: place 3 (fill -> cap): tokens must be an integer >= 0, got -1'
+    ...                item="place 3 (fill -> cap, index 2)"))
+    'models/x.toml: place 3 (fill -> cap, index 2): tokens must be an integer >= 0, got -1'
     """
 
     def __init__(
@@ -92,13 +93,25 @@ def _rebuild(rule: str, file: Path | None, item: str | None) -> ModelError:
 
 
 def did_you_mean(word: str, choices: Iterable[str]) -> str:
-    """``'; did you mean "x"?'`` for the closest choice (difflib ratio >= 0.6), else ``''``.
+    """``'; did you mean "x"?'`` for the closest choice, else ``''``.
+
+    A choice that differs from ``word`` only in case wins; otherwise the closest choice by
+    difflib's ratio (>= 0.6), with case ignored. ``word`` itself is never suggested.
 
     >>> did_you_mean("toekns", ["from", "to", "tokens", "hold"])
     '; did you mean "tokens"?'
+    >>> did_you_mean("M2", ["m1", "m2", "m3"])
+    '; did you mean "m2"?'
     """
-    match = difflib.get_close_matches(word, list(choices), n=1)
-    return f'; did you mean "{match[0]}"?' if match else ""
+    folded: dict[str, str] = {}
+    for choice in choices:
+        if choice != word:  # the word itself is no suggestion
+            folded.setdefault(choice.casefold(), choice)
+    key = word.casefold()
+    if key in folded:
+        return f'; did you mean "{folded[key]}"?'
+    match = difflib.get_close_matches(key, list(folded), n=1)
+    return f'; did you mean "{folded[match[0]]}"?' if match else ""
 
 
 def shown(x: object) -> str:

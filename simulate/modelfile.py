@@ -34,15 +34,18 @@ CSV tables
 Order and numbering
 -------------------
 Transitions are numbered from 0: the ``[[transitions]]`` entries in file order, then the rows of
-``transitions_csv``; places likewise. Messages name a TOML place by its position among the
-``[[places]]`` entries counted from 1, e.g. ``place 3 (fill -> cap)``, and a CSV row by its
-line, e.g. ``line 12 (place fill -> cap)``.
+``transitions_csv``; places likewise. This index is the one of the result documents and the
+review page. Messages name a place by its position in its file *and* by that index: a TOML
+place by its rank among the ``[[places]]`` entries counted from 1, e.g. ``place 3 (fill -> cap,
+index 2)``, a CSV row by its line, e.g. ``line 12 (place fill -> cap, index 10)``. A transition
+is named by its id, ``transition "cap"`` (``transition 3 (index 2)`` when it has none).
 
 Checks
 ------
 :func:`load_model` checks everything later code relies on and raises :class:`ModelError` (file,
 item, rule) otherwise: unreadable, binary or non-UTF-8 files, TOML syntax, unknown keys and
-columns (with the closest known name), missing or duplicate ids, places naming unknown
+columns (with the closest known name, case ignored), CSV lines with more or fewer fields than
+the header, missing or duplicate ids (with where the id was first defined), places naming unknown
 transitions, numbers that are negative, NaN, infinite or (tokens) not integers, bad
 distributions, a model without transitions, a transition without an input place, and a circuit
 without a token. The CSV path is vectorized with pandas, so 10^6 places load in about a second.
@@ -231,7 +234,8 @@ def _toml_transitions(entries: object, file: Path) -> _Rows:
     for i, entry in enumerate(_entries(entries, file, "transitions")):
         tid = entry.get("id")
         named = isinstance(tid, str) and tid.strip()
-        error = _raiser(file, f'transition "{tid.strip()}"' if named else f"transition {i + 1}")
+        error = _raiser(file, f'transition "{tid.strip()}"' if named
+                        else f"transition {i + 1} (index {i})")
         _unknown_keys(entry, TRANSITION_KEYS, error)
         ids.append(_text(entry, "id", error, required=True))
         labels.append(_text(entry, "label", error))
@@ -244,9 +248,9 @@ def _toml_places(entries: object, file: Path) -> _Rows:
     src, dst, tokens, labels, specs = [], [], [], [], []
     for i, entry in enumerate(_entries(entries, file, "places")):
         ends = [entry.get(k) for k in ("from", "to")]
-        item = f"place {i + 1}"
+        item = f"place {i + 1} (index {i})"
         if all(isinstance(e, str) for e in ends):
-            item += f" ({ends[0].strip()} -> {ends[1].strip()})"
+            item = f"place {i + 1} ({ends[0].strip()} -> {ends[1].strip()}, index {i})"
         error = _raiser(file, item)
         _unknown_keys(entry, PLACE_KEYS, error)
         src.append(_text(entry, "from", error, required=True))
@@ -265,13 +269,19 @@ def _objects(values: list[str]) -> np.ndarray:
 # --------------------------------------------------------------------------- the whole model
 
 
-def _locate(parts: list[_Rows], index: int, rule: str) -> ModelError:
-    """The error for element ``index`` of the concatenated parts, located in its own file."""
+def _part(parts: list[_Rows], index: int) -> tuple[_Rows, int]:
+    """The part holding element ``index`` of the concatenated parts, and its row there."""
     for rows in parts:
         if index < len(rows.ids):
-            return ModelError(rule, file=rows.file, item=rows.item(index))
+            return rows, index
         index -= len(rows.ids)
     raise IndexError(index)
+
+
+def _locate(parts: list[_Rows], index: int, rule: str) -> ModelError:
+    """The error for element ``index`` of the concatenated parts, located in its own file."""
+    rows, row = _part(parts, index)
+    return ModelError(rule, file=rows.file, item=rows.item(row))
 
 
 def _circuit_text(ids: Sequence[str]) -> str:
@@ -361,9 +371,11 @@ def load_model(path: str | os.PathLike[str]) -> Model:
     if "places" in doc:
         prows.append(_toml_places(doc["places"], path))
     if field["transitions_csv"]:
-        trows.append(_csv_transitions(path.parent / field["transitions_csv"], path))
+        trows.append(_csv_transitions(path.parent / field["transitions_csv"], path,
+                                      first=sum(len(r.ids) for r in trows)))
     if field["places_csv"]:
-        prows.append(_csv_places(path.parent / field["places_csv"], path))
+        prows.append(_csv_places(path.parent / field["places_csv"], path,
+                                 first=sum(len(r.ids) for r in prows)))
     vectorized = any(r.line is not None for r in trows + prows)  # pandas is loaded anyway
 
     def joined(name: str, parts: list[_Rows], dtype: Any = object) -> np.ndarray:
@@ -376,12 +388,11 @@ def load_model(path: str | os.PathLike[str]) -> Model:
                     "transitions_csv in [model]")
     dup = _first_duplicate(ids, vectorized)
     if dup is not None:
-        first = _locate(trows, dup[0], "")
-        second = _locate(trows, dup[1], f'duplicate transition id "{ids[dup[1]]}" (first at '
-                                        f"{first.item})")
-        if first.file != second.file:
-            second = _locate(trows, dup[1], f"{second.rule[:-1]} of {first.file})")
-        raise second
+        (rows_a, a), (rows_b, b) = _part(trows, dup[0]), _part(trows, dup[1])
+        where = "the file" if rows_a.file == rows_b.file else str(rows_a.file)
+        again = f", again {rows_b.position(b)}" if rows_b.line is None else ""
+        raise _locate(trows, dup[1], f'duplicate transition id "{ids[dup[1]]}": first defined '
+                                     f"{rows_a.position(a)} of {where}{again}")
     ends = []
     for key, name in (("from", "ids"), ("to", "dst")):
         wanted = joined(name, prows)

@@ -16,18 +16,28 @@ cell syntax, ``name(key=value, ...)`` with TOML values, quoted because it contai
     cap,fill,3,"gamma(mean=3, cv=0.5)"
     cap,cap,1,"empirical(values=[0.5, 0.7, 1.1])"
 
-Cells are stripped of surrounding blanks; an empty number cell is an error (write 0), an empty
-label is no label; blank lines are skipped. Line numbers in messages count every line of the file
-from 1 (header included) and assume no quoted cell spans several lines.
+Every line has one cell per column of the header: a line with more or fewer fields is refused
+with its line number (an unquoted distribution cell is the usual cause). Cells are stripped of
+surrounding blanks; an empty number cell is an error (write 0), an empty label is no label; blank
+lines are skipped. Line numbers in messages count every line of the file from 1 (header
+included, and the lines inside a quoted cell too); places are also named by their index, the
+place number of the result documents (TOML places first, then the rows of ``places_csv``).
+
+The field count of each line comes from one vectorized pass over the bytes (commas and line
+ends outside quotes), which agrees with pandas' reading whenever every quote that opens a
+quoted cell stands at the start of a cell; files where it does not (a literal ``"`` inside an
+unquoted cell) are counted by the :mod:`csv` module instead, slower but exact.
 """
 
 from __future__ import annotations
 
+import codecs
 import csv
 import io
 import json
 import os
 import re
+import warnings
 from collections.abc import Callable, Sequence
 from dataclasses import dataclass
 from pathlib import Path
@@ -86,23 +96,175 @@ class _Rows:
     specs: SpecTable | None = None
     line: Callable[[int], int] | None = None  # CSV: row -> line number
     data: bytes = b""  # CSV: the file's bytes, for the digest
+    first: int = 0  # index in the whole model of row 0 (CSV rows follow the TOML entries)
 
     def item(self, i: int) -> str:
-        """How messages name element ``i`` of these rows."""
+        """How messages name element ``i`` of these rows.
+
+        A place is named by its index in the model (counted from 0, as in the result
+        documents) beside its position in the file: ``place 3 (fill -> cap, index 2)`` for
+        the third ``[[places]]`` entry, ``line 12 (place fill -> cap, index 10)`` for a row.
+        """
         if self.dst is None:
             what = f'transition "{self.ids[i]}"'
         else:
-            what = f"place {self.ids[i]} -> {self.dst[i]}"
+            what = f"{self.ids[i]} -> {self.dst[i]}, index {self.first + i}"
         if self.line is not None:
-            return f"line {self.line(i)} ({what})"
-        return what if self.dst is None else f"place {i + 1} ({self.ids[i]} -> {self.dst[i]})"
+            return f"line {self.line(i)} ({what if self.dst is None else 'place ' + what})"
+        return what if self.dst is None else f"place {i + 1} ({what})"
+
+    def position(self, i: int) -> str:
+        """Where element ``i`` stands in its file: ``as transition 2``, ``at line 3``."""
+        if self.line is not None:
+            return f"at line {self.line(i)}"
+        return f"as {'transition' if self.dst is None else 'place'} {i + 1}"
 
 
 # --------------------------------------------------------------------------- CSV tables
 
 
-def _csv_lines(text: str) -> Any:
-    """Row index -> line number, computed only when a message needs one."""
+_SPACE, _LF, _CR, _QUOTE, _COMMA = 32, 10, 13, 34, 44
+_LAW_CELL = re.compile(r'[A-Za-z_]\w*\s*\([^()"\r\n]*,[^()"\r\n]*\)')
+
+
+@dataclass
+class _Layout:
+    """The records of a CSV file that pandas reads as lines: the header, then one per row.
+
+    Blank lines are left out, as pandas skips them. ``counts`` holds the fields of each record;
+    a record is located either by its byte offset (``starts``, ``stops``; the line number is
+    counted only when a message needs it) or directly by its line number (``lines``).
+    """
+
+    counts: np.ndarray
+    data: bytes
+    starts: np.ndarray | None = None
+    stops: np.ndarray | None = None
+    lines: list[int] | None = None
+
+    def line(self, record: int) -> int:
+        """Line number (from 1) where record ``record`` starts."""
+        record = min(record, len(self.counts) - 1)
+        if self.lines is not None:
+            return self.lines[record]
+        offset = int(self.starts[record])  # type: ignore[index]
+        d = self.data
+        return d.count(b"\n", 0, offset) + d.count(b"\r", 0, offset) \
+            - d.count(b"\r\n", 0, offset) + 1
+
+    def text(self, record: int) -> str:
+        """The text of a record (its first line when it comes from the csv module)."""
+        if self.lines is not None:
+            lines = re.split(r"\r\n|\r|\n", self.data.decode("utf-8", "replace"))
+            return lines[self.lines[record] - 1]
+        return self.data[int(self.starts[record]):int(self.stops[record])].decode(  # type: ignore[index]
+            "utf-8", "replace")
+
+
+def _quotes_open_cells(b: np.ndarray, quotes: np.ndarray, lo: int) -> bool:
+    """True when quote parity splits the file as pandas does.
+
+    Pandas opens a quoted cell only at the start of a cell (after blanks, which
+    ``skipinitialspace`` drops); ``""`` inside a quoted cell is a quote. Parity agrees with
+    that when every quote it takes for an opening one is one of those two.
+    """
+    opening = quotes[0::2]
+    escaped = np.zeros(opening.size, dtype=bool)
+    escaped[1:] = quotes[1:-1:2] == opening[1:] - 1  # the closing quote just before it
+    p = opening[~escaped] - 1
+    for _ in range(64):  # step back over the spaces before the quote
+        space = p >= lo
+        space[space] = b[p[space]] == _SPACE
+        if not space.any():
+            break
+        p[space] -= 1
+    else:
+        return False
+    inside = p >= lo
+    return bool(np.isin(b[p[inside]], (_COMMA, _LF, _CR)).all())
+
+
+def _scan(data: bytes) -> _Layout | None:
+    """Field counts of every record in a few vectorized passes; None if quoting defeats them."""
+    b = np.frombuffer(data, dtype=np.uint8)
+    n = b.size
+    lo = len(codecs.BOM_UTF8) if data.startswith(codecs.BOM_UTF8) else 0
+    quotes = np.flatnonzero(b == _QUOTE)
+    if quotes.size % 2:
+        return None
+    ends = np.flatnonzero(b == _LF)
+    cr = np.flatnonzero(b == _CR)
+    if cr.size:  # a CR ends a line unless an LF follows it
+        lone = cr[(cr + 1 == n) | (b[np.minimum(cr + 1, n - 1)] != _LF)]
+        if lone.size:
+            ends = np.union1d(ends, lone)
+    commas = np.flatnonzero(b == _COMMA)
+    if quotes.size:
+        if not _quotes_open_cells(b, quotes, lo):
+            return None
+        commas = commas[(np.searchsorted(quotes, commas) & 1) == 0]
+        ends = ends[(np.searchsorted(quotes, ends) & 1) == 0]
+    starts = np.concatenate(([lo], ends + 1))
+    stops = np.append(ends, n)
+    # Commas before each record's end; no comma sits on a line end, so the difference of
+    # consecutive counts is the number of commas in a record.
+    counts = np.diff(np.searchsorted(commas, stops), prepend=0) + 1
+    length = stops - starts
+    filled = np.flatnonzero(length > 0)
+    length[filled] -= b[stops[filled] - 1] == _CR  # the CR of a CR LF
+    keep = length > 0
+    maybe = np.flatnonzero(keep & (counts == 1))
+    if maybe.size:  # lines of blanks are blank lines too
+        first = b[starts[maybe]]
+        for r in maybe[(first == _SPACE) | (first == 9)].tolist():
+            if not data[starts[r]:starts[r] + length[r]].strip(b" \t"):
+                keep[r] = False
+    return _Layout(counts[keep], data, starts[keep], starts[keep] + length[keep])
+
+
+def _slow_scan(data: bytes, text: str) -> _Layout | None:
+    """Field counts and lines of every record through the csv module (exact, slower)."""
+    reader = csv.reader(io.StringIO(text, newline=""), skipinitialspace=True)
+    raw = re.split(r"\r\n|\r|\n", text)
+    counts, lines = [], []
+    end = 0
+    try:
+        for row in reader:
+            start, end = end + 1, reader.line_num
+            # A line of blanks is blank for pandas; a line "" is a row with an empty cell.
+            if len(row) > 1 or any(s.strip(" \t") for s in raw[start - 1:end]):
+                counts.append(len(row))
+                lines.append(start)
+    except csv.Error:
+        return None
+    return _Layout(np.array(counts, dtype=np.int64), data, lines=lines) if counts else None
+
+
+def _check_fields(layout: _Layout, header: list[str], path: Path) -> None:
+    """Refuse the first line whose number of fields differs from the header's."""
+    k = len(header)
+    bad = np.flatnonzero(layout.counts[1:] != k)
+    if not bad.size:
+        return
+    r = int(bad[0]) + 1
+    got = int(layout.counts[r])
+    rule = (f"the line has {got} field{'s' if got != 1 else ''}, the header has {k} "
+            f"({','.join(header)})")
+    law = _LAW_CELL.search(layout.text(r)) if got > k else None
+    if law:
+        rule += f"; a distribution cell with commas must be quoted: {json.dumps(law.group())}"
+    elif got > k:
+        rule += ('; quote a cell that contains a comma (e.g. "Filler, left") or remove the '
+                 "extra cells")
+    else:
+        rule += "; write a cell for every column (an empty cell is nothing between two commas)"
+    if bad.size > 1:
+        rule += f" ({bad.size - 1} more lines like this)"
+    raise ModelError(rule, file=path, item=f"line {layout.line(r)}")
+
+
+def _csv_lines(text: str) -> Callable[[int], int]:
+    """Row index -> line number when no layout could be made (a file pandas will refuse)."""
 
     def line(row: int) -> int:
         lines = re.split(r"\r\n|\r|\n", text)
@@ -143,10 +305,19 @@ def _read_csv(path: Path, required: tuple[str, ...], optional: tuple[str, ...],
     for name in required:
         if name not in header:
             raise bad_header(f'missing column "{name}" (columns: {", ".join(allowed)})')
+    layout = _scan(data) or _slow_scan(data, text)
+    if layout is not None:
+        _check_fields(layout, header, path)
     strings = {c: str for c in ("id", "from", "to", "label") if c in header}
     try:
-        df = pd.read_csv(io.BytesIO(data), dtype=strings, keep_default_na=False,
-                         na_filter=False, skipinitialspace=True, encoding="utf-8-sig")
+        # pandas infers types chunk by chunk and warns when chunks disagree (numbers above, a
+        # distribution or a bad cell further down); the checks below read such a column as
+        # text, so the warning says nothing to the user. low_memory=False would silence it
+        # too but costs a quarter of a second per 10^6 rows of mixed cells.
+        with warnings.catch_warnings():
+            warnings.simplefilter("ignore", pd.errors.DtypeWarning)
+            df = pd.read_csv(io.BytesIO(data), dtype=strings, keep_default_na=False,
+                             na_filter=False, skipinitialspace=True, encoding="utf-8-sig")
     except (pd.errors.ParserError, ValueError) as exc:
         msg = str(exc).strip().removeprefix("Error tokenizing data. C error: ")
         m = re.search(r"in line (\d+)", msg)
@@ -154,7 +325,11 @@ def _read_csv(path: Path, required: tuple[str, ...], optional: tuple[str, ...],
                          'commas, e.g. "gamma(mean=3, cv=0.5)")', file=path,
                          item=f"line {m.group(1)}" if m else None) from None
     df.columns = header
-    return df, _csv_lines(text), data
+    if layout is not None and len(layout.counts) != len(df) + 1:
+        layout = _slow_scan(data, text)  # the fast count disagrees with pandas: count exactly
+    if layout is None or len(layout.counts) != len(df) + 1:
+        return df, _csv_lines(text), data
+    return df, lambda row, lay=layout: lay.line(row + 1), data
 
 
 def _column(df: pd.DataFrame, name: str) -> np.ndarray:
@@ -243,21 +418,21 @@ def _failer(rows: _Rows) -> Callable[[int, str, int], None]:
     return fail
 
 
-def _csv_transitions(path: Path, toml: Path) -> _Rows:
+def _csv_transitions(path: Path, toml: Path, first: int = 0) -> _Rows:
     df, line, data = _read_csv(path, ("id",), ("duration", "label"), "transitions_csv", toml)
     ids = df["id"].fillna("").astype(str).str.strip().to_numpy(dtype=object)
-    rows = _Rows(path, ids, labels=_column(df, "label"), line=line, data=data)
+    rows = _Rows(path, ids, labels=_column(df, "label"), line=line, data=data, first=first)
     fail = _failer(rows)
     _require(ids, "id", fail)
     rows.specs = _spec_column(df, "duration", fail)
     return rows
 
 
-def _csv_places(path: Path, toml: Path) -> _Rows:
+def _csv_places(path: Path, toml: Path, first: int = 0) -> _Rows:
     df, line, data = _read_csv(path, ("from", "to"), ("tokens", "hold", "label"), "places_csv",
                                toml)
     rows = _Rows(path, _column(df, "from"), _column(df, "to"), labels=_column(df, "label"),
-                 line=line, data=data)
+                 line=line, data=data, first=first)
     fail = _failer(rows)
     _require(rows.ids, "from", fail)
     _require(rows.dst, "to", fail)

@@ -22,7 +22,7 @@ from cyclecheck.simulate.durations import (
     SpecTable,
     parse_spec,
 )
-from cyclecheck.simulate.errors import ModelError
+from cyclecheck.simulate.errors import ModelError, did_you_mean
 from hypothesis import given, settings
 from hypothesis import strategies as st
 from scipy import stats
@@ -171,6 +171,12 @@ BAD = [
     ({"dist": "exponential", "mean": True}, "exponential mean must be a number, got true"),
     ({"dist": "normal", "mean": 3, "sd": 1}, "normal can go negative"),
     ({"dist": "normal", "mean": 3, "sd": 1, "truncate": False}, "normal can go negative"),
+    ({"dist": "normal", "mean": 3, "sd": 1, "truncate": "yes"},
+     'normal truncate must be true or false (a boolean), got "yes"'),
+    ({"dist": "normal", "mean": 3, "sd": 1, "truncate": 1},
+     "normal truncate must be true or false (a boolean), got 1"),
+    ('normal(mean=3, sd=1, truncate="yes")',
+     'normal truncate must be true or false (a boolean), got "yes"'),
     ({"dist": "normal", "mean": 3, "sd": 0, "truncate": True}, "normal sd must be > 0, got 0"),
     ({"dist": "normal", "mean": -1, "sd": 1, "truncate": True}, "normal mean must be >= 0"),
     ({"dist": "uniform", "low": 5, "high": 3}, "uniform low must be <= high, got low=5, high=3"),
@@ -223,15 +229,31 @@ def test_unknown_dist_lists_known_names():
 
 def test_model_error_str_and_pickle():
     err = ModelError("tokens must be an integer >= 0, got -1", file="models/x.toml",
-                     item="place 3 (fill -> cap)")
+                     item="place 3 (fill -> cap, index 2)")
     assert str(err) == (
-        "models/x.toml: place 3 (fill -> cap): tokens must be an integer >= 0, got -1")
+        "models/x.toml: place 3 (fill -> cap, index 2): tokens must be an integer >= 0, got -1")
     back = pickle.loads(pickle.dumps(err))
     assert (str(back), back.file, back.item, back.rule) == (str(err), err.file, err.item, err.rule)
     assert str(ModelError("no such file", file="a.toml")) == "a.toml: no such file"
     assert str(ModelError("bad")) == "bad"
     moved = ModelError("bad", item="line 3").located(file="b.csv", item="ignored")
     assert str(moved) == "b.csv: line 3: bad"
+
+
+@pytest.mark.parametrize(("word", "choices", "hint"), [
+    ("M2", ["m1", "m2", "m3"], '; did you mean "m2"?'),
+    ("FILL", ["cap", "fill"], '; did you mean "fill"?'),
+    ("Toekns", ["from", "to", "tokens", "hold"], '; did you mean "tokens"?'),
+    ("toekns", ["from", "to", "tokens", "hold"], '; did you mean "tokens"?'),
+    ("zzz", ["from", "to"], ""),
+    ("m2", ["m2"], ""),
+    ("M2", [], ""),
+])
+def test_did_you_mean_ignores_case(word, choices, hint):
+    """A choice equal but for case is suggested first; otherwise the closest by difflib's
+    ratio >= 0.6 with case folded (Python Library Reference, difflib.get_close_matches).
+    The word itself is never suggested."""
+    assert did_you_mean(word, choices) == hint
 
 
 # ----------------------------------------------------------------------------- the sampler
