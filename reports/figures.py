@@ -278,8 +278,8 @@ def _bound_lines(ax: Any, bounds: Mapping[str, float] | None, vertical: bool) ->
     for name, style, text in (("lower", (0, (5, 2)), "lower bound"),
                               ("upper", (0, (1, 1.5)), "upper bound")):
         value = bounds.get(name)
-        if value is None:
-            continue
+        if value is None or not math.isfinite(value):
+            continue  # an unbounded side has no line to draw
         line = ax.axvline if vertical else ax.axhline
         line(value, color=ACCENT, linewidth=1.2, linestyle=style)
         handles.append(Line2D([], [], color=ACCENT, linewidth=1.2, linestyle=style,

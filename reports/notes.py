@@ -101,14 +101,18 @@ def semantics(document: Mapping[str, Any]) -> str:
         "hold may grow before λ changes.",
     ]
     if random:
+        criticality = (document.get("analysis") or {}).get("criticality") or {}
+        definition = criticality.get("definition")
+        meaning = (f"<em>Criticality</em>: {e(str(definition))}." if definition else
+                   "<em>Criticality</em> is the share of firings in which an element was on "
+                   "the path that set the firing time.")
         items.append(
             "With random durations λ is the long-run rate of the random max-plus recursion (its "
             "Lyapunov exponent), estimated from independent replications with a 95 % "
             "confidence interval. Each random draw is indexed by element and firing number, "
-            "so the simulation and the recursion use the same draws. <em>Criticality</em> is "
-            "the share of firings in which an element was on the path that set the firing "
-            "time. The cycle time of the mean durations is a lower bound: variability slows a "
-            "synchronised system down.")
+            f"so the simulation and the recursion use the same draws. {meaning} The cycle "
+            "time of the mean durations is a lower bound: variability slows a synchronised "
+            "system down.")
     else:
         items.append(
             "With fixed durations λ is exact: the largest ratio of duration to tokens over the "

@@ -9,8 +9,12 @@ escaped.
 The result document, version 1
 ------------------------------
 A JSON-ready ``dict``. Keys marked *required* must be there; every other key may be missing
-or ``None``, and the page then leaves its part out (a document of ``analyze`` has no
-``simulation`` and no ``comparison``; one of ``simulate`` has no ``analysis``)::
+or ``None``, and the page then leaves its part out. Which sections a document needs depends on
+its command: ``check`` needs ``analysis``, ``simulation`` and ``comparison``; ``analyze``
+needs ``analysis``; ``simulate`` needs ``simulation``; any other at least one of ``analysis``
+and ``simulation``. A key that is there must have the type given below (a number where a number
+belongs): :func:`cyclecheck.reports.schema.check_document` enforces all of it and raises
+:class:`ReportError` naming the key and the rule::
 
     document        "cyclecheck-result"                                   required
     schema_version  1                                                     required
@@ -36,7 +40,8 @@ or ``None``, and the page then leaves its part out (a document of ``analyze`` ha
                      interval), "replications": int, "firings_per_replication": int,
                      "warmup": int (firings deleted at the start of each replication)}
     analysis        the max-plus side (keys of ``cyclecheck analyze --json``)
-        cycle_time          float: λ, exact for fixed durations, the estimate otherwise
+        cycle_time          float: λ, exact for fixed durations, the estimate    required
+                            otherwise
         cycle_time_ci       [low, high], 95 %; [λ, λ] when exact
         throughput          float: 1/λ, firings per time unit
         cycle_time_by_transition  {id: float}
@@ -47,7 +52,9 @@ or ``None``, and the page then leaves its part out (a document of ``analyze`` ha
         cyclicity           int | None: period in firings of the periodic regime
         bounds              {"lower": float, "upper": float} | None (random durations)
         firings_simulated   int: firings computed for the estimate, all replications
-        exact               bool
+                            (0 for an exact analysis: the eigenvalue needs no firings)
+        exact               bool: fixed durations, so λ is exact
+        strongly_connected  bool: when false, transitions may have different cycle times
         eigenvector         {id: float} | None
         slack               {"transitions": {id: float | None}, "places": [float | None,
                             one per place]}: how much a duration (a hold) may grow before
@@ -57,25 +64,32 @@ or ``None``, and the page then leaves its part out (a document of ``analyze`` ha
                             "max_reduced_weight", "tolerance"}
         charpoly            {"corners": [[value | None (ε), multiplicity], ...], "terms":
                             [[k, coeff], ...] meaning coeff ⊗ z^k} | {"skipped": reason}
-        transient_firings   int | None: firings before the periodic regime
-        criticality         {"transitions": {id: fraction}, "places": [fraction, ...]} |
-                            None: share of firings in which the element was on the path that
-                            set the firing time (random durations)
+        transient_firings   int | None: firings before the periodic regime (fixed
+                            durations only; a random model has no periodic regime, and its
+                            ``mean_value_transient_firings``, which belongs to the mean
+                            durations, is not shown as the model's transient)
+        criticality         {"transitions": {id: fraction}, "places": [fraction, ...],
+                            "definition": str} | None: how often the element set the firing
+                            time (random durations); the definition, when given, is shown
         utilization         {id: fraction} | None: share of time busy (per server)
-    simulation      the SimPy side: cycle_time, cycle_time_ci, throughput, firings_simulated,
-                    utilization, criticality, as in ``analysis``
-    comparison      {"verdict": "agrees" | "disagrees", "reasons": [str, ...],
+    simulation      the SimPy side: cycle_time (required), cycle_time_ci, throughput,
+                    firings_simulated, exact, utilization, criticality, as in ``analysis``
+    comparison      {"verdict": "agrees" | "disagrees" (required), "reasons": [str, ...],
                      "sample_path": {"identical": bool, "max_relative_difference": float,
                                      "firings_compared": int, "replications_compared": int}}
     figures
         transient       {"k": [int], "recursion": {id: [x(k) − kλ]}, "simulation": {id: [...]}}
+                        (every curve as long as k)
         schedule        {"cycle_time": float, "start": {id: float}, "duration": {id: float}}
-                        (periodic schedule from the eigenvector) | None
+                        (periodic schedule from the eigenvector) | None: None for random
+                        durations and for components that run at different cycle times,
+                        and the page says which
         running_estimate {"work": [firings], "estimate": [...], "low": [...], "high": [...]}
-                        | None
+                        (four lists of one length) | None
         replication_estimates {"recursion": [float], "simulation": [float]} | None
 
-Numbers are written with 4 significant digits (6 for an exact cycle time), integers with
+Numbers are written with 4 significant digits (6 for an exact cycle time, wherever it is
+shown), integers with
 thousands separators, fractions as percentages, and negative numbers with a true minus sign.
 """
 
@@ -90,35 +104,12 @@ from importlib import resources
 from pathlib import Path
 from typing import Any
 
+from .schema import SCHEMA_VERSION, ReportError, check_document
+
 __all__ = ["MARKER", "ReportError", "fmt", "is_report", "render_page", "write_page"]
 
 #: The first line after the doctype of every page written here: how a report is recognised.
 MARKER = "<!-- cyclecheck-report"
-SCHEMA_VERSION = 1
-
-
-class ReportError(ValueError):
-    """A result document that cannot be rendered, or a page that may not be written.
-
-    Attributes
-    ----------
-    item
-        What is wrong: a key path in the document (``"analysis.cycle_time"``) or ``"output"``.
-    rule
-        The rule that was broken, in words.
-    path
-        The file concerned, when there is one.
-    """
-
-    def __init__(self, item: str, rule: str, path: str | os.PathLike[str] | None = None):
-        self.item = item
-        self.rule = rule
-        self.path = None if path is None else os.fspath(path)
-        super().__init__(str(self))
-
-    def __str__(self) -> str:
-        where = self.path if self.path is not None else "result document"
-        return f"{where}: {self.item}: {self.rule}"
 
 
 def fmt(value: Any, digits: int = 4) -> str:
@@ -163,45 +154,6 @@ def pct(value: Any) -> str:
     return f"{100 * float(value):.1f}\u202f%".replace("-", "−")
 
 
-def _check(document: Any) -> None:
-    """The few rules without which no page can be drawn."""
-    if not isinstance(document, Mapping):
-        raise ReportError("document", "a result document is a JSON object (a dict)")
-    if document.get("document") != "cyclecheck-result":
-        raise ReportError("document", "key 'document' must be 'cyclecheck-result'")
-    version = document.get("schema_version")
-    if version != SCHEMA_VERSION:
-        raise ReportError("schema_version",
-                          f"version {version!r} is not supported; this cyclecheck reads "
-                          f"version {SCHEMA_VERSION}")
-    model = document.get("model")
-    if not isinstance(model, Mapping):
-        raise ReportError("model", "the model section is required")
-    if not isinstance(model.get("name"), str):
-        raise ReportError("model.name", "the model name is required (a string)")
-    for key in ("transitions", "places"):
-        if not isinstance(model.get(key), list):
-            raise ReportError(f"model.{key}", "a list is required")
-    for i, t in enumerate(model["transitions"]):
-        if not isinstance(t, Mapping) or not isinstance(t.get("id"), str):
-            raise ReportError(f"model.transitions[{i}].id", "every transition needs a string id")
-    ids = {t["id"] for t in model["transitions"]}
-    for i, p in enumerate(model["places"]):
-        if not isinstance(p, Mapping):
-            raise ReportError(f"model.places[{i}]", "every place is an object")
-        for end in ("from", "to"):
-            if p.get(end) not in ids:
-                raise ReportError(f"model.places[{i}].{end}",
-                                  "must name a transition of model.transitions")
-        if not isinstance(p.get("tokens"), int) or p["tokens"] < 0:
-            raise ReportError(f"model.places[{i}].tokens", "must be an integer >= 0")
-    for key in ("analysis", "simulation", "comparison", "figures", "settings", "versions"):
-        if document.get(key) is not None and not isinstance(document[key], Mapping):
-            raise ReportError(key, "must be an object when present")
-    if not document.get("analysis") and not document.get("simulation"):
-        raise ReportError("analysis", "a document needs an analysis or a simulation section")
-
-
 def _stylesheet() -> str:
     return resources.files("cyclecheck.reports").joinpath("style.css").read_text("utf-8")
 
@@ -227,11 +179,14 @@ def render_page(document: Mapping[str, Any]) -> str:
     """
     from . import sections  # imports matplotlib; kept out of the CLI's start-up
 
-    _check(document)
+    check_document(document)
     model = document["model"]
     try:
         body = sections.body(document)
-    except (AttributeError, TypeError, ValueError, KeyError, IndexError) as error:
+    # check_document lets through only what the sections can draw; this is the last guard,
+    # so that a document never ends in anything but a ReportError.
+    except (AttributeError, TypeError, ValueError, KeyError, IndexError,
+            ArithmeticError) as error:
         if isinstance(error, ReportError):
             raise
         raise ReportError(getattr(error, "item", "document"),

@@ -23,6 +23,8 @@ __all__ = ["MAX_ROWS", "Figures", "body", "section", "table"]
 
 #: Longest table on the page; longer lists are cut and the page says so.
 MAX_ROWS = 40
+#: Tables with more columns than this are set tighter (class ``wide`` in style.css).
+WIDE = 6
 
 e = html.escape
 
@@ -66,7 +68,8 @@ def table(headers: Sequence[str], rows: Sequence[Sequence[str]], numeric: set[in
     lines = ["<tr>" + "".join(cell("td", i, c) for i, c in enumerate(row)) + "</tr>"
              for row in rows]
     cap = f"<caption>{caption}</caption>" if caption else ""
-    css = ' class="compact"' if compact else ""
+    # Many columns: a smaller type and headers that wrap, so that the table fits the page.
+    css = ' class="compact"' if compact else ' class="wide"' if len(headers) > WIDE else ""
     return (f'<div class="table-wrap"><table{css}>{cap}<thead><tr>{head}</tr></thead>\n'
             "<tbody>\n" + "\n".join(lines) + "\n</tbody></table></div>\n")
 
@@ -162,7 +165,8 @@ def _numbers(document: Mapping[str, Any]) -> str:
     firings = (simulation or main).get("firings_simulated")
     if firings is not None:
         cyclicity = analysis.get("cyclicity")
-        cards.append(("Firings simulated" if simulation else "Firings computed", fmt(firings),
+        value = _firings(simulation or main, exact and not simulation)
+        cards.append(("Firings simulated" if simulation else "Firings computed", value,
                       f"cyclicity {fmt(cyclicity)} firings" if cyclicity else
                       "all replications together"))
     html_cards = "".join(
@@ -172,20 +176,31 @@ def _numbers(document: Mapping[str, Any]) -> str:
         for label, value, sub in cards)
     out = f'<div class="cards">{html_cards}</div>\n'
     if analysis and simulation:
-        rows = []
-        for label, key in (("Cycle time", "cycle_time"), ("Throughput", "throughput")):
-            rows.append([label, fmt(analysis.get(key)), fmt(simulation.get(key))])
-        for label, side in (("95 % interval", "cycle_time_ci"),):
-            a, s = analysis.get(side) or [None, None], simulation.get(side) or [None, None]
-            rows.append([label, f"{fmt(a[0])} – {fmt(a[1])}", f"{fmt(s[0])} – {fmt(s[1])}"])
-        rows.append(["Firings computed", fmt(analysis.get("firings_simulated")),
-                     fmt(simulation.get("firings_simulated"))])
+        # Exact values keep the digits the cards give them (17.375, not 17.38).
+        sides = [(analysis, 6 if exact else 4),
+                 (simulation, 6 if simulation.get("exact", exact) else 4)]
+        rows = [["Cycle time", *(fmt(side.get("cycle_time"), d) for side, d in sides)],
+                ["Throughput", *(fmt(side.get("throughput")) for side, _ in sides)]]
+        cells = []
+        for side, digits in sides:
+            low, high = side.get("cycle_time_ci") or [None, None]
+            cells.append(f"{fmt(low, digits)} – {fmt(high, digits)}")
+        rows.append(["95 % interval", *cells])
+        rows.append(["Firings computed", _firings(analysis, exact), _firings(simulation, False)])
         out += table(["", "Max-plus recursion", "SimPy simulation"], rows, {1, 2},
                       "Both engines side by side" + (f" (times in {e(unit)})" if unit else ""))
     if analysis.get("strongly_connected") is False:
         out += ('<p class="note">The graph is not strongly connected: transitions have '
                 "different cycle times (column “cycle time” of the transitions table).</p>\n")
     return section("numbers", "Cycle time and throughput", out)
+
+
+def _firings(side: Mapping[str, Any], exact: bool) -> str:
+    """Firings computed by one side; an exact analysis computes none, and says so."""
+    firings = side.get("firings_simulated")
+    if exact and firings == 0:
+        return "exact (no simulation)"
+    return fmt(firings)
 
 
 def _places_spec(model: Mapping[str, Any]) -> list[PlaceSpec]:
@@ -217,7 +232,9 @@ def _graph(document: Mapping[str, Any], figs: Figures) -> str:
     unit = _unit(document)
     if random:
         text = {i: pct(v) for i, v in enumerate(criticality) if v is not None}
-        legend = "the criticality of the place (share of firings it was on the deciding path)"
+        definition = _get(analysis.get("criticality"), "definition")
+        legend = ("the criticality of the place (" + (e(definition) if definition else
+                  "share of firings it was on the deciding path") + ")")
     elif slack:
         text = {i: fmt(v) for i, v in enumerate(slack) if v is not None}
         legend = "the slack of the place" + (f" in {e(unit)}" if unit else "")
@@ -236,6 +253,12 @@ def _graph(document: Mapping[str, Any], figs: Figures) -> str:
                     f"{fmt(drawing.hidden_places)} places are not shown).")
     return section("graph", "The event graph and its critical circuit",
                     figs.wrap("graph", "Event graph", svg, caption))
+
+
+def _spec_text(spec: Any) -> str:
+    """A duration as written, with places to break after its opening parenthesis and commas
+    (``exponential(mean=1.25)`` has no space to wrap at)."""
+    return e(str(spec)).replace("(", "(<wbr>").replace(",", ",<wbr>")
 
 
 def _cut(items: list[Any], key: Any, what: str, total: int) -> tuple[list[Any], str]:
@@ -266,9 +289,11 @@ def _elements(document: Mapping[str, Any]) -> str:
     columns: list[tuple[str, bool, Any]] = [
         ("Transition", False, lambda t: ("◆ " if t["id"] in critical_t else "") + e(t["id"])),
         ("Label", False, lambda t: e(str(t.get("label") or ""))),
-        ("Duration", False, lambda t: e(str(t.get("duration", "")))),
+        ("Duration", False, lambda t: _spec_text(t.get("duration", ""))),
         ("Mean", True, lambda t: fmt(t.get("mean_duration"))),
     ]
+    if not any(t.get("label") for t in model["transitions"]):
+        del columns[1]  # an empty column only takes room from the others
     if util_a:
         columns.append(("Utilization" + (" (max-plus)" if util_s else ""), True,
                         lambda t: pct(util_a.get(t["id"]))))
@@ -297,14 +322,18 @@ def _elements(document: Mapping[str, Any]) -> str:
                  f"Transitions (◆ on a critical circuit{in_unit})") + note
     p_slack = slack.get("places") or []
     p_crit = crit.get("places") or []
+    definition = crit.get("definition")
+    if definition and (t_crit or p_crit):
+        out += f'<p class="note">Criticality: {e(str(definition))}.</p>\n'
     p_columns: list[tuple[str, bool, Any]] = [
         ("#", True, lambda i, p: ("◆ " if i in critical_p else "") + str(i)),
         ("From → to", False, lambda i, p: f"{e(str(p['from']))} → {e(str(p['to']))}"),
         ("Tokens", True, lambda i, p: fmt(int(p["tokens"]))),
-        ("Hold", False, lambda i, p: e(str(p.get("hold", "")))),
+        ("Hold", False, lambda i, p: _spec_text(p.get("hold", ""))),
         ("Mean hold", True, lambda i, p: fmt(p.get("mean_hold"))),
-        ("Label", False, lambda i, p: e(str(p.get("label") or ""))),
     ]
+    if any(p.get("label") for p in model["places"]):
+        p_columns.append(("Label", False, lambda i, p: e(str(p.get("label") or ""))))
     if p_slack:
         p_columns.append(("Slack", True,
                           lambda i, p: fmt(p_slack[i] if i < len(p_slack) else None)))
@@ -326,15 +355,34 @@ def _elements(document: Mapping[str, Any]) -> str:
     return section("elements", "Transitions and places", out)
 
 
+def _is_random(document: Mapping[str, Any]) -> bool:
+    """Random durations: the model says so, or the analysis is not exact."""
+    analysis = _get(document, "analysis") or {}
+    return bool(document["model"].get("is_random")) or analysis.get("exact") is False
+
+
+def _no_schedule(document: Mapping[str, Any]) -> str:
+    """Why the document has no periodic schedule, in plain words ("" when it does not say)."""
+    analysis = _get(document, "analysis") or {}
+    if _is_random(document):
+        why = ("the durations are random, so the firings never settle into a periodic regime: "
+               "each cycle takes a different time, and no start times repeat from one cycle "
+               "to the next")
+    elif analysis.get("strongly_connected") is False:
+        why = ("the graph is not strongly connected, and its parts run at different cycle "
+               "times (column “cycle time” of the transitions table): no single period fits "
+               "every transition")
+    else:
+        return ""
+    return section("schedule", "Periodic schedule",
+                   f'<p class="note">No periodic schedule: {why}.</p>\n')
+
+
 def schedule(document: Mapping[str, Any], figs: Figures) -> str:
     data = _get(document.get("figures"), "schedule")
     unit = _unit(document)
     if not data:
-        if document["model"].get("is_random"):
-            return section("schedule", "Periodic schedule",
-                           '<p class="note">No periodic schedule: with random durations the '
-                           "firing times do not settle into a repeating pattern.</p>\n")
-        return ""
+        return _no_schedule(document)
     analysis = _get(document, "analysis") or {}
     critical = {str(t) for c in analysis.get("critical_circuits") or [] for t in c}
     start = {str(k): float(v) for k, v in data["start"].items()}
@@ -361,21 +409,34 @@ def transient(document: Mapping[str, Any], figs: Figures) -> str:
     recursion = {str(k): v for k, v in data["recursion"].items()}
     simulation = {str(k): v for k, v in (data.get("simulation") or {}).items()}
     svg = figures.transient_figure(data["k"], recursion, simulation or None, unit)
-    caption = ("x(k) − kλ against the firing number k: the completion time of firing k less k "
-               "cycle times. Lines: the max-plus recursion; rings: the SimPy simulation. When "
-               "every ring sits on its line, both engines computed the same times.")
+    lines = ("Lines: the max-plus recursion; rings: the SimPy simulation. When every ring sits "
+             "on its line, both engines computed the same times.")
     analysis = _get(document, "analysis") or {}
-    if analysis.get("transient_firings") is not None:
-        caption += (f" The periodic regime starts after {fmt(analysis['transient_firings'])} "
-                    "firings")
-        if analysis.get("cyclicity"):
-            caption += f" and repeats every {fmt(analysis['cyclicity'])} firings"
-        caption += "."
+    if _is_random(document):
+        # No periodic regime here; the transient of the mean durations is not this model's.
+        caption = ("x(k) − kλ against the firing number k, on the random draws of one "
+                   "replication: the completion time of firing k less k times the estimated "
+                   f"cycle time. {lines} With random durations there is no periodic regime: "
+                   "the curves keep wandering as the draws vary.")
+        heading, title = "Firing times against the cycle time", "Firing times less k·λ"
+    else:
+        caption = ("x(k) − kλ against the firing number k: the completion time of firing k "
+                   f"less k cycle times. {lines}")
+        heading, title = "Transient and periodic regime", "Transient"
+        settle = analysis.get("transient_firings")
+        if settle is not None:
+            caption += f" The periodic regime starts after {_count(settle, 'firing')}"
+            if analysis.get("cyclicity"):
+                caption += f" and repeats every {_count(analysis['cyclicity'], 'firing')}"
+            caption += "."
     if len(recursion) > figures.MAX_SERIES:
         caption += (f" Showing {figures.MAX_SERIES} of the {fmt(len(recursion))} transitions "
                     "in the document.")
-    return section("transient", "Transient and periodic regime",
-                   figs.wrap("transient", "Transient", svg, caption))
+    return section("transient", heading, figs.wrap("transient", title, svg, caption))
+
+
+def _count(n: int, word: str) -> str:
+    return f"{fmt(n)} {word}{'' if n == 1 else 's'}"
 
 
 def variability(document: Mapping[str, Any], figs: Figures) -> str:
@@ -408,9 +469,18 @@ def variability(document: Mapping[str, Any], figs: Figures) -> str:
                      "simulation": simulation.get("cycle_time_ci")}
         svg = figures.replications_figure(replications, {k: v for k, v in intervals.items()
                                                          if v}, bounds, unit)
-        count = max(len(v or []) for v in replications.values())
-        caption = (f"The estimate of λ from each of the {fmt(count)} replications, for each "
-                   "engine, with the 95 % interval of the mean above them and the bounds as lines.")
+        counts = {name: len(replications.get(name) or [])
+                  for name in ("recursion", "simulation")}
+        counts = {name: n for name, n in counts.items() if n}
+        if len(set(counts.values())) == 1 and len(counts) == 2:
+            each = f"each of the {_count(counts['recursion'], 'replication')}, for each engine"
+        else:
+            engine = {"recursion": "of the max-plus recursion", "simulation": "of the SimPy "
+                      "simulation"}
+            each = ("each replication: " +
+                    " and ".join(f"{fmt(n)} {engine[name]}" for name, n in counts.items()))
+        caption = (f"The estimate of λ from {each}, with the 95 % interval of the mean above "
+                   "them and the bounds as lines.")
         out += figs.wrap("replications", "Estimates per replication", svg, caption)
     return section("variability", "Variability", out)
 

@@ -16,7 +16,8 @@ beside the cooling rack. Worked by hand with the semantics of DESIGN.md:
 ``random_document()``: a shuttle loop of four stops with two vehicles and random dwell and
 travel times. The lower bound is the cycle time of the mean durations: (3 + 1 + 2 + 2 + 4 +
 2.5 + 3 + 2) / 2 = 9.75 min. The estimates, intervals and replication values are invented
-(plausible, not computed): the renderer only shows them.
+(plausible, not computed): the renderer only shows them. As in a real `check`, the recursion
+ran 10 replications and SimPy 5 of its own, and the sample paths were compared on SimPy's 5.
 
 The transients are computed with a small recursion below (the semantics of DESIGN.md), so
 that the figure shows a realistic curve; the renderer tests do not depend on its values.
@@ -128,8 +129,9 @@ def fixed_document() -> dict[str, Any]:
             "critical_circuits": [["mix", "proof", "bake", "cool", "wrap"]],
             "cyclicity": 3,
             "bounds": None,
-            "firings_simulated": 12000,
+            "firings_simulated": 0,  # the eigenvalue needs no firings
             "exact": True,
+            "strongly_connected": True,
             "eigenvector": eigen,
             "slack": {
                 "transitions": {"mix": 0.0, "proof": 0.0, "bake": 0.0, "check": 4.0,
@@ -195,6 +197,8 @@ def random_document() -> dict[str, Any]:
     lam = 10.62
     curve = transient(names, mean, places, 9.75, 24)
     replications = [10.48, 10.71, 10.55, 10.93, 10.37, 10.66, 10.81, 10.52, 10.74, 10.44]
+    sim_replications = [10.39, 10.82, 10.47, 10.70, 10.52]
+    sim_lam = 10.58
     work = [2000 * i for i in range(1, 11)]
     estimate = [10.91, 10.74, 10.69, 10.65, 10.61, 10.64, 10.63, 10.61, 10.62, 10.62]
     half = [0.62, 0.44, 0.36, 0.31, 0.28, 0.26, 0.24, 0.22, 0.21, 0.21]
@@ -229,6 +233,7 @@ def random_document() -> dict[str, Any]:
             "bounds": {"lower": 9.75, "upper": 12.64},
             "firings_simulated": 80000,
             "exact": False,
+            "strongly_connected": True,
             "eigenvector": None,
             "slack": {"transitions": dict.fromkeys(names, 0.0),
                       "places": [0.0, 0.0, 0.0, 0.0, 16.5]},
@@ -237,24 +242,31 @@ def random_document() -> dict[str, Any]:
                             "text": "Bounds only: the lower bound is the cycle time of the "
                                     "mean durations."},
             "charpoly": {"skipped": "durations are random"},
-            "transient_firings": None,
+            # A random model has no periodic regime: no transient_firings, only the transient
+            # of the mean durations under its own name (not the model's).
+            "mean_value_transient_firings": 5,
             "criticality": {"transitions": {"dock": 0.91, "gate": 0.88, "yard": 0.86,
                                             "depot": 0.87},
-                            "places": [0.88, 0.86, 0.87, 0.84, 0.07]},
+                            "places": [0.88, 0.86, 0.87, 0.84, 0.07],
+                            "definition": "place: share of its target's firings whose start "
+                                          "it set; transition: the largest share among its "
+                                          "output places"},
             "utilization": {"dock": 0.2825, "gate": 0.0942, "yard": 0.1883, "depot": 0.1883},
         },
+        # SimPy runs 5 replications of its own (fewer than the recursion's 10).
         "simulation": {
-            "cycle_time": lam, "cycle_time_ci": [10.41, 10.83], "throughput": 1 / lam,
-            "firings_simulated": 80000,
-            "utilization": {"dock": 0.2825, "gate": 0.0942, "yard": 0.1883, "depot": 0.1883},
+            "cycle_time": sim_lam, "cycle_time_ci": [10.27, 10.95], "throughput": 1 / sim_lam,
+            "firings_simulated": 40000, "exact": False,
+            "utilization": {"dock": 0.2831, "gate": 0.0945, "yard": 0.1887, "depot": 0.1881},
             "criticality": None,
         },
         "comparison": {
             "verdict": "agrees",
-            "reasons": ["The estimates of both engines are equal on the same random draws.",
-                        "The estimate lies between the bounds 9.75 and 12.64."],
+            "reasons": ["The SimPy firing times equal the recursion's on the same random draws.",
+                        "The intervals of both engines overlap; the estimate lies between "
+                        "the bounds 9.75 and 12.64."],
             "sample_path": {"identical": True, "max_relative_difference": 0.0,
-                            "firings_compared": 80000, "replications_compared": 10},
+                            "firings_compared": 40000, "replications_compared": 5},
         },
         "figures": {
             "transient": {"k": list(range(1, 25)), "recursion": curve,
@@ -264,6 +276,34 @@ def random_document() -> dict[str, Any]:
                                  "low": [e - h for e, h in zip(estimate, half, strict=True)],
                                  "high": [e + h for e, h in zip(estimate, half, strict=True)]},
             "replication_estimates": {"recursion": replications,
-                                      "simulation": list(replications)},
+                                      "simulation": sim_replications},
         },
     }
+
+
+def wide_document() -> dict[str, Any]:
+    """The shuttle loop with every optional column of the transitions table at once.
+
+    Long labels and long duration texts, the utilization of both engines, slack,
+    criticality, periodic start times (a schedule, as a fixed model with equal cycle times
+    has) and the cycle time of each transition (the graph is flagged not strongly connected):
+    the widest tables the page draws. Only the layout is tested with it.
+    """
+    document = random_document()
+    labels = ["Loading dock with two berths and a ramp", "Security gate and weighbridge",
+              "Yard stop beside the container stacks", "Depot, maintenance and charging"]
+    for transition, label in zip(document["model"]["transitions"], labels, strict=True):
+        transition["label"] = label
+    document["model"]["transitions"][1]["duration"] = "triangular(low=0.5, mode=1, high=1.5)"
+    document["model"]["transitions"][3]["duration"] = "empirical(values=[1.5, 2, 2.5])"
+    names = [t["id"] for t in document["model"]["transitions"]]
+    analysis = document["analysis"]
+    analysis["strongly_connected"] = False
+    analysis["cycle_time_by_transition"] = {"dock": 10.62, "gate": 10.62, "yard": 10.6234,
+                                            "depot": 10.6234}
+    start = {"dock": 0.0, "gate": 7.0, "yard": 10.5, "depot": 15.5}
+    document["figures"]["schedule"] = {"cycle_time": 9.75, "start": start,
+                                       "duration": {t["id"]: t["mean_duration"]
+                                                    for t in document["model"]["transitions"]}}
+    assert set(start) == set(names)
+    return document

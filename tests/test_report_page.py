@@ -39,9 +39,12 @@ class _Page(HTMLParser):
         self.tags: list[str] = []
         self.attributes: list[tuple[str, str, str]] = []
         self._skip = 0
+        self._glue = False
 
     def handle_starttag(self, tag: str, attrs: list[tuple[str, str | None]]) -> None:
         self.tags.append(tag)
+        if tag == "wbr":  # a place to break a word, not a space: the word stays whole
+            self._glue = True
         for name, value in attrs:
             self.attributes.append((tag, name, value or ""))
             if name == "id":
@@ -54,8 +57,13 @@ class _Page(HTMLParser):
             self._skip -= 1
 
     def handle_data(self, data: str) -> None:
-        if not self._skip:
+        if self._skip:
+            return
+        if self._glue and self.text:
+            self.text[-1] += data
+        else:
             self.text.append(data)
+        self._glue = False
 
 
 def parse(page: str) -> _Page:
@@ -120,7 +128,7 @@ RANDOM_TEXTS = [
     "9.75 – 12.64 min",  # the bounds card
     "lower 9.75 min",
     "upper 12.64 min",
-    "80,000 firings in 10 replications,",
+    "40,000 firings in 5 replications,",  # SimPy's replications, on which paths were compared
     "same firing times on the same random draws",
     "Firings simulated",
     "gamma(mean=3, cv=0.5)",
@@ -128,7 +136,7 @@ RANDOM_TEXTS = [
     "91.0 %",  # criticality of the dock
     "16.5",  # slack of the berth
     "target 2.0 %",  # the precision setting
-    "10 replications",
+    "80,000",  # firings of the recursion, side by side
     "Lyapunov exponent",
     "No periodic schedule",
     "not computed (durations are random)",
@@ -175,6 +183,154 @@ def test_analysis_only_document_renders() -> None:
     text = visible_text(render_page(document))
     assert "Analysis only" in text and "13.5 min" in text
     assert "Sample-path identity" not in text
+
+
+def section_text(page: str, name: str) -> str:
+    """The visible text of one section of the page ("" when the page has no such section)."""
+    start = page.find(f'<section id="{name}"')
+    if start < 0:
+        return ""
+    return visible_text(page[start:page.index("</section>", start)])
+
+
+def table_rows(page: str, caption: str) -> list[list[str]]:
+    """The cells (visible text) of each row of the table whose caption starts so."""
+    start = page.index(f"<caption>{caption}")
+    body = page[start:page.index("</table>", start)]
+    return [[visible_text(cell) for cell in re.findall(r"<t[hd][^>]*>(.*?)</t[hd]>", row)]
+            for row in re.findall(r"<tr>(.*?)</tr>", body, re.S)]
+
+
+def _exact(cycle_time: float) -> dict[str, Any]:
+    """The fixed document with another exact cycle time on both sides."""
+    document = fixed_document()
+    for side in ("analysis", "simulation"):
+        document[side].update(cycle_time=cycle_time, cycle_time_ci=[cycle_time, cycle_time],
+                              throughput=1 / cycle_time)
+    return document
+
+
+def test_side_by_side_shows_exact_values_as_the_cards_do() -> None:
+    """An exact 17.375 is 17.375 in the table too, not 17.38 (6 significant digits, as on the
+    cards); estimates keep 4. The value is the cycle time of models/packaging_cell.toml,
+    worked by hand in its header: the carrier loop (1.5 + 9 + 2 + 10 + 1 + 14 + 20 + 12) / 4
+    (Baccelli et al., Synchronization and Linearity, 1992, §2.5: cycle time = the largest
+    circuit ratio)."""
+    assert fmt(17.375) == "17.38"  # what 4 digits would have shown
+    page = render_page(_exact(69.5 / 4))
+    rows = {row[0]: row[1:] for row in table_rows(page, "Both engines side by side")}
+    assert rows["Cycle time"] == ["17.375", "17.375"]
+    assert rows["95 % interval"] == ["17.375 – 17.375", "17.375 – 17.375"]
+    assert rows["Throughput"] == [fmt(4 / 69.5)] * 2  # as the throughput card
+    assert "Cycle time λ 17.375 min" in section_text(page, "numbers")  # the card
+    random_rows = {row[0]: row[1:] for row in table_rows(render_page(random_document()),
+                                                         "Both engines side by side")}
+    assert random_rows["Cycle time"] == ["10.62", "10.58"]
+    assert random_rows["95 % interval"] == ["10.41 – 10.83", "10.27 – 10.95"]
+
+
+def test_exact_side_says_it_needed_no_firings(fixed_page: str, random_page: str) -> None:
+    """The max-plus side of a fixed model computed no firings: the table says it is exact
+    instead of showing 0; the SimPy side and random models show their counts."""
+    rows = {row[0]: row[1:] for row in table_rows(fixed_page, "Both engines side by side")}
+    assert rows["Firings computed"] == ["exact (no simulation)", "12,000"]
+    rows = {row[0]: row[1:] for row in table_rows(random_page, "Both engines side by side")}
+    assert rows["Firings computed"] == ["80,000", "40,000"]
+    document = fixed_document()
+    for key in ("simulation", "comparison"):
+        del document[key]
+    document["command"] = "analyze"
+    numbers = section_text(render_page(document), "numbers")
+    assert "Firings computed exact (no simulation)" in numbers
+    assert " 0 " not in numbers
+
+
+def test_replication_caption_counts_each_engine(random_page: str) -> None:
+    """The caption gives the number of replications of each engine, from the data: the
+    recursion ran 10, SimPy 5 of its own."""
+    text = section_text(random_page, "variability")
+    assert ("The estimate of λ from each replication: 10 of the max-plus recursion and 5 of "
+            "the SimPy simulation,") in text
+    assert "each of the 10 replications" not in text
+    document = random_document()
+    estimates = document["figures"]["replication_estimates"]
+    estimates["simulation"] = estimates["simulation"][:3] + estimates["recursion"][:7]
+    text = section_text(render_page(document), "variability")
+    assert "from each of the 10 replications, for each engine," in text
+
+
+def test_no_periodic_schedule_says_why(random_page: str) -> None:
+    """Random durations: no periodic regime. Parts at different cycle times: no single
+    period. A fixed, strongly connected document without a schedule shows no section."""
+    text = section_text(random_page, "schedule")
+    assert "No periodic schedule: the durations are random, so the firings never settle into "\
+           "a periodic regime" in text
+    document = fixed_document()
+    document["figures"]["schedule"] = None
+    document["analysis"]["strongly_connected"] = False
+    document["analysis"]["cycle_time_by_transition"]["check"] = 12.5
+    page = render_page(document)
+    text = section_text(page, "schedule")
+    assert "No periodic schedule: the graph is not strongly connected, and its parts run at "\
+           "different cycle times" in text
+    assert "Periodic start" not in visible_text(page)
+    document["analysis"]["strongly_connected"] = True
+    assert 'id="schedule"' not in render_page(document)
+
+
+def test_random_transient_claims_no_periodic_regime(fixed_page: str, random_page: str) -> None:
+    """A random model's transient figure says there is no periodic regime and shows no
+    transient length, not even the mean durations' (5 firings in the document) or an old
+    document's transient_firings; the fixed model's caption gives its transient and period."""
+    text = section_text(random_page, "transient")
+    assert "there is no periodic regime" in text
+    assert "regime starts" not in text and "5 firings" not in text
+    assert "Transient and periodic regime" not in text
+    document = random_document()
+    document["analysis"]["transient_firings"] = 7
+    assert "7 firings" not in section_text(render_page(document), "transient")
+    text = section_text(fixed_page, "transient")
+    assert "The periodic regime starts after 3 firings and repeats every 3 firings." in text
+    document = fixed_document()
+    document["analysis"].update(transient_firings=1, cyclicity=1)
+    text = section_text(render_page(document), "transient")
+    assert "starts after 1 firing and repeats every 1 firing." in text
+
+
+DEFINITION = ("place: share of its target's firings whose start it set; transition: the "
+              "largest share among its output places")
+
+
+def test_criticality_definition_is_shown(random_page: str) -> None:
+    """The document's definition of criticality is the note of the criticality column (and
+    the legend of the graph); without one, no such note."""
+    assert random_document()["analysis"]["criticality"]["definition"] == DEFINITION
+    assert f"Criticality: {DEFINITION}." in section_text(random_page, "elements")
+    assert f"criticality of the place ({DEFINITION})" in section_text(random_page, "graph")
+    document = random_document()
+    del document["analysis"]["criticality"]["definition"]
+    page = render_page(document)
+    assert "Criticality:" not in section_text(page, "elements")
+    assert "Criticality" in table_rows(page, "Transitions")[0]  # the column itself stays
+
+
+def test_wide_tables_are_set_tighter() -> None:
+    """Tables of more than six columns get the tighter style, durations may break after their
+    parenthesis, and a label column with no label is left out."""
+    from tests.report_documents import wide_document
+
+    page = render_page(wide_document())
+    headers = table_rows(page, "Transitions")[0]
+    assert headers[0] == "Transition" and headers[-1] == "Cycle time" and len(headers) == 10
+    assert '<table class="wide"><caption>Transitions' in page
+    assert "exponential(<wbr>mean=2)" in page
+    document = random_document()
+    for item in document["model"]["transitions"] + document["model"]["places"]:
+        item["label"] = ""
+    page = render_page(document)
+    assert "Label" not in table_rows(page, "Transitions")[0]
+    assert "Label" not in table_rows(page, "Places")[0]
+    assert "Label" in table_rows(render_page(random_document()), "Places")[0]
 
 
 def test_figures_are_numbered_and_inline(fixed_page: str, random_page: str) -> None:
@@ -358,8 +514,62 @@ def test_failed_rendering_keeps_the_old_page(tmp_path: Path) -> None:
          "integer >= 0"),
         (lambda d: d["comparison"].update(verdict="maybe"), "comparison.verdict",
          "'agrees' or 'disagrees'"),
-        (lambda d: [d.pop("analysis"), d.pop("simulation")], "analysis",
+        (lambda d: [d.pop("analysis"), d.pop("simulation"), d.pop("command")], "analysis",
          "needs an analysis or a simulation"),
+        # A check page without one of its sides would show a verdict on nothing.
+        (lambda d: d.pop("analysis"), "analysis",
+         "is missing: a document of `check` has the sections analysis, simulation and "
+         "comparison"),
+        (lambda d: d.update(simulation=None), "simulation", "is missing"),
+        (lambda d: d.pop("comparison"), "comparison", "is missing"),
+        (lambda d: d.update(analysis={}), "analysis.cycle_time", "is required"),
+        (lambda d: d.update(command="analyze", analysis=None), "analysis",
+         "a document of `analyze` has the section analysis"),
+        (lambda d: d.update(schema_version=99), "schema_version",
+         "version 99 is not supported; this cyclecheck reads version 1"),
+        (lambda d: d.update(schema_version="1"), "schema_version",
+         'must be the number 1 (the version this cyclecheck reads), not the text "1"'),
+        (lambda d: d.update(schema_version=True), "schema_version", "not true"),
+        # A text, a list or a truth value where a number belongs.
+        (lambda d: d["analysis"].update(cycle_time="fast"), "analysis.cycle_time",
+         'must be a number, not the text "fast"'),
+        (lambda d: d["simulation"].update(cycle_time_ci=[13.5, "x"]),
+         "simulation.cycle_time_ci[1]", "must be a number"),
+        (lambda d: d["analysis"].update(cycle_time_ci=[13.5]), "analysis.cycle_time_ci",
+         "must be a list of 2 values, not 1"),
+        (lambda d: d["analysis"].update(throughput=[1]), "analysis.throughput",
+         "must be a number, not a list"),
+        (lambda d: d["analysis"].update(exact="yes"), "analysis.exact",
+         'must be true or false, not the text "yes"'),
+        (lambda d: d["analysis"]["utilization"].update(bake="89 %"),
+         "analysis.utilization.bake", "must be a number"),
+        (lambda d: d["analysis"]["slack"]["places"].__setitem__(3, {}),
+         "analysis.slack.places[3]", "must be a number, not an object"),
+        (lambda d: d["analysis"]["charpoly"]["corners"].__setitem__(0, [13.5]),
+         "analysis.charpoly.corners[0]", "must be a list of 2 values"),
+        (lambda d: d["analysis"].update(cyclicity=1.5), "analysis.cyclicity",
+         "must be a whole number, not the number 1.5"),
+        (lambda d: d["analysis"].update(critical_circuits=[["mix", "oven"]]),
+         "analysis.critical_circuits[0][1]", "must name a transition of model.transitions"),
+        (lambda d: d["analysis"].update(critical_places=[0, 13]), "analysis.critical_places[1]",
+         "must be the index of a place"),
+        (lambda d: d["settings"].update(seed="seven"), "settings.seed", "must be a whole number"),
+        (lambda d: d["comparison"]["sample_path"].update(firings_compared=-1),
+         "comparison.sample_path.firings_compared", "must be >= 0, not -1"),
+        (lambda d: d["figures"]["transient"]["recursion"]["mix"].pop(),
+         "figures.transient.recursion.mix",
+         "must have as many values as figures.transient.k (18), not 17"),
+        (lambda d: d["figures"]["schedule"]["start"].update(wrap=math.inf),
+         "figures.schedule.start.wrap", "must be a finite number"),
+        (lambda d: d["figures"]["schedule"].update(start={}), "figures.schedule.start",
+         "must not be empty"),
+        (lambda d: d["figures"]["schedule"].pop("duration"), "figures.schedule.duration",
+         "is required"),
+        (lambda d: d["model"]["transitions"][0].update(mean_duration="4"),
+         "model.transitions[0].mean_duration", "must be a number"),
+        (lambda d: d["model"]["transitions"][2].update(id="mix"), "model.transitions[2].id",
+         "the id 'mix' is used twice"),
+        (lambda d: d.update(versions=["0.1.0"]), "versions", "must be an object when present"),
     ],
 )
 def test_bad_documents_are_named(change: Any, item: str, rule: str) -> None:
@@ -371,6 +581,142 @@ def test_bad_documents_are_named(change: Any, item: str, rule: str) -> None:
     assert caught.value.item == item
     assert str(caught.value) == f"result document: {item}: {caught.value.rule}"
     assert rule in str(caught.value)
+
+
+@pytest.mark.parametrize(
+    ("change", "item", "rule"),
+    [
+        (lambda d: d["figures"]["running_estimate"]["low"].pop(),
+         "figures.running_estimate.low",
+         "must have as many values as figures.running_estimate.work (10), not 9"),
+        (lambda d: d["figures"]["replication_estimates"]["simulation"].__setitem__(2, "x"),
+         "figures.replication_estimates.simulation[2]", "must be a number"),
+        (lambda d: d["analysis"]["bounds"].update(lower="9.75"), "analysis.bounds.lower",
+         "must be a number"),
+        (lambda d: d["analysis"]["criticality"].update(definition=5),
+         "analysis.criticality.definition", "must be a text, not the number 5"),
+    ],
+)
+def test_bad_random_documents_are_named(change: Any, item: str, rule: str) -> None:
+    """The parts only a random document has are checked the same way."""
+    document = random_document()
+    change(document)
+    with pytest.raises(ReportError) as caught:
+        render_page(document)
+    assert (caught.value.item, rule in caught.value.rule) == (item, True)
+
+
+#: Numbers the page never reads: a wrong type there does not stop the page (the transient of
+#: the mean durations is deliberately not shown as a random model's).
+UNREAD = re.compile(r"model\.places\[\d+\]\.index$|analysis\.mean_value_transient_firings$")
+
+
+def _numeric_leaves(value: Any, path: str = "") -> list[str]:
+    """Key paths (in the notation of ReportError.item) of the numbers of a document; of a
+    long list only the first and the last element."""
+    if isinstance(value, dict):
+        return [leaf for key, v in value.items()
+                for leaf in _numeric_leaves(v, f"{path}.{key}" if path else key)]
+    if isinstance(value, list):
+        picked = sorted({0, len(value) - 1}) if len(value) > 3 else range(len(value))
+        return [leaf for i in picked for leaf in _numeric_leaves(value[i], f"{path}[{i}]")]
+    if isinstance(value, (int, float)) and not isinstance(value, bool):
+        return [path]
+    return []
+
+
+def _replace(document: Any, path: str, new: Any) -> None:
+    steps = re.findall(r"\[(\d+)\]|([^.\[\]]+)", path)
+    node = document
+    for index, key in steps[:-1]:
+        node = node[int(index)] if index else node[key]
+    index, key = steps[-1]
+    node[int(index) if index else key] = new
+
+
+@pytest.mark.parametrize("make", [fixed_document, random_document])
+def test_a_text_for_any_number_is_named(make: Any) -> None:
+    """Every number of both documents, replaced by a text, gives a ReportError naming
+    exactly that key: the page never draws from a value of the wrong type."""
+    paths = _numeric_leaves(make())
+    assert len(paths) > 80
+    for path in paths:
+        if UNREAD.match(path):
+            continue
+        document = make()
+        _replace(document, path, "fast")
+        with pytest.raises(ReportError) as caught:
+            render_page(document)
+        assert caught.value.item == path, (path, str(caught.value))
+
+
+_JSON = st.recursive(
+    st.none() | st.booleans() | st.integers(-10**6, 10**6)
+    | st.floats(allow_nan=True, allow_infinity=True) | st.text(max_size=5),
+    lambda inner: st.lists(inner, max_size=3) | st.dictionaries(st.text(max_size=4), inner,
+                                                                max_size=3),
+    max_leaves=6)
+
+
+def _all_paths(value: Any, path: str = "") -> list[str]:
+    here = [path] if path else []
+    if isinstance(value, dict):
+        return here + [p for key, v in value.items()
+                       for p in _all_paths(v, f"{path}.{key}" if path else key)]
+    if isinstance(value, list):
+        picked = sorted({0, len(value) - 1}) if len(value) > 3 else range(len(value))
+        return here + [p for i in picked for p in _all_paths(value[i], f"{path}[{i}]")]
+    return here
+
+
+_PATHS = {"fixed": _all_paths(fixed_document()), "random": _all_paths(random_document())}
+
+
+@settings(max_examples=40, deadline=None, suppress_health_check=[HealthCheck.too_slow])
+@given(st.sampled_from(["fixed", "random"]), st.data(), _JSON)
+def test_any_broken_value_gives_a_page_or_a_report_error(kind: str, data: Any, new: Any
+                                                          ) -> None:
+    """Whatever value replaces whatever part of a document, the page is drawn or a
+    ReportError is raised, never another exception (the command line turns ReportError
+    into exit 2)."""
+    path = data.draw(st.sampled_from(_PATHS[kind]))
+    document = fixed_document() if kind == "fixed" else random_document()
+    _replace(document, path, new)
+    try:
+        page = render_page(document)
+    except ReportError as error:
+        assert error.item and error.rule
+        assert str(error) == f"result document: {error.item}: {error.rule}"
+    else:
+        assert page.startswith("<!DOCTYPE html>")
+
+
+def test_report_command_exits_2_on_a_check_without_its_analysis(tmp_path: Path) -> None:
+    """`cyclecheck report` on a check result whose analysis is deleted writes no page and
+    exits 2 with one line naming the file, the key and the rule (no traceback)."""
+    saved = tmp_path / "result.json"
+    document = fixed_document()
+    del document["analysis"]
+    saved.write_text(json.dumps(document), encoding="utf-8")
+    page = tmp_path / "page.html"
+    script = Path(sys.executable).with_name("cyclecheck")
+    done = subprocess.run([str(script), "report", str(saved), "-o", str(page)],
+                          capture_output=True, text=True, timeout=300)
+    assert done.returncode == 2, done.stderr
+    assert "analysis: is missing" in done.stderr
+    assert "Traceback" not in done.stderr
+    assert not page.exists()
+
+
+def test_doctests_of_the_page_and_the_rules() -> None:
+    """The examples in the docstrings of reports/page.py and reports/schema.py hold."""
+    import doctest
+
+    from cyclecheck.reports import page, schema
+
+    for module in (page, schema):
+        result = doctest.testmod(module, optionflags=doctest.NORMALIZE_WHITESPACE)
+        assert result.attempted > 0 and result.failed == 0, module.__name__
 
 
 # --- number formatting ---------------------------------------------------------------------

@@ -1,0 +1,398 @@
+"""The rules a result document must keep before a page is drawn from it.
+
+:func:`check_document` is the one place that validates a document; everything the page does
+afterwards trusts what it let through. It raises :class:`ReportError`, carrying the key path
+of what is wrong (``"analysis.cycle_time"``, ``"model.places[3].to"``) and the rule in words,
+so that the command line can print one clear line and exit 2. The shape itself is described
+in the docstring of :mod:`cyclecheck.reports.page`.
+
+Keys the page does not read are not checked (more keys are welcome); keys it reads may be
+missing or ``null`` unless the shape marks them required, and otherwise must have the type the
+page needs: a number where a number belongs, a list of numbers of the right length for each
+figure, ids that name transitions of the model.
+"""
+
+from __future__ import annotations
+
+import math
+import os
+from collections.abc import Callable, Iterable, Mapping
+from typing import Any
+
+__all__ = ["SCHEMA_VERSION", "ReportError", "check_document"]
+
+SCHEMA_VERSION = 1
+
+#: The sections without which a document of each command cannot be reviewed: a check page
+#: without the max-plus side, the SimPy side or the comparison would show a verdict on nothing.
+REQUIRED_SECTIONS = {
+    "check": ("analysis", "simulation", "comparison"),
+    "analyze": ("analysis",),
+    "simulate": ("simulation",),
+}
+
+
+class ReportError(ValueError):
+    """A result document that cannot be rendered, or a page that may not be written.
+
+    Attributes
+    ----------
+    item
+        What is wrong: a key path in the document (``"analysis.cycle_time"``) or ``"output"``.
+    rule
+        The rule that was broken, in words.
+    path
+        The file concerned, when there is one.
+    """
+
+    def __init__(self, item: str, rule: str, path: str | os.PathLike[str] | None = None):
+        self.item = item
+        self.rule = rule
+        self.path = None if path is None else os.fspath(path)
+        super().__init__(str(self))
+
+    def __str__(self) -> str:
+        where = self.path if self.path is not None else "result document"
+        return f"{where}: {self.item}: {self.rule}"
+
+
+#: A check takes a value that is not ``None`` and the key path it was found at.
+Check = Callable[[Any, str], None]
+
+
+def _what(value: Any) -> str:
+    """A wrong value as a message names it (JSON words: a document is JSON)."""
+    if value is None:
+        return "null"
+    if isinstance(value, bool):
+        return "true" if value else "false"
+    if isinstance(value, str):
+        shown = value if len(value) <= 40 else value[:37] + "…"
+        return f'the text "{shown}"'
+    if isinstance(value, Mapping):
+        return "an object"
+    if isinstance(value, (list, tuple)):
+        return "a list"
+    if isinstance(value, (int, float)):
+        return f"the number {value!r}"
+    return f"a {type(value).__name__}"
+
+
+def _is_number(value: Any) -> bool:
+    return isinstance(value, (int, float)) and not isinstance(value, bool)
+
+
+def number(value: Any, item: str) -> None:
+    if not _is_number(value):
+        raise ReportError(item, f"must be a number, not {_what(value)}")
+
+
+def finite(value: Any, item: str) -> None:
+    """A number a figure can place on an axis."""
+    number(value, item)
+    if not math.isfinite(value):
+        raise ReportError(item, f"must be a finite number, not {value!r}")
+
+
+def integer(minimum: int | None = None) -> Check:
+    def check(value: Any, item: str) -> None:
+        if not isinstance(value, int) or isinstance(value, bool):
+            raise ReportError(item, f"must be a whole number, not {_what(value)}")
+        if minimum is not None and value < minimum:
+            raise ReportError(item, f"must be >= {minimum}, not {value}")
+    return check
+
+
+def boolean(value: Any, item: str) -> None:
+    if not isinstance(value, bool):
+        raise ReportError(item, f"must be true or false, not {_what(value)}")
+
+
+def text(value: Any, item: str) -> None:
+    if not isinstance(value, str):
+        raise ReportError(item, f"must be a text, not {_what(value)}")
+
+
+def scalar(value: Any, item: str) -> None:
+    """Shown as written: a text or a number (a duration written as ``3``)."""
+    if not isinstance(value, str) and not _is_number(value):
+        raise ReportError(item, f"must be a text or a number, not {_what(value)}")
+
+
+def nullable(check: Check) -> Check:
+    def inner(value: Any, item: str) -> None:
+        if value is not None:
+            check(value, item)
+    return inner
+
+
+def one_of(*choices: str) -> Check:
+    words = " or ".join(repr(c) for c in choices)
+
+    def check(value: Any, item: str) -> None:
+        if value not in choices or not isinstance(value, str):
+            raise ReportError(item, f"must be {words}")
+    return check
+
+
+def member(names: Iterable[str], rule: str) -> Check:
+    known = frozenset(names)
+
+    def check(value: Any, item: str) -> None:
+        if not isinstance(value, str) or value not in known:
+            raise ReportError(item, rule)
+    return check
+
+
+def index_below(bound: int, rule: str) -> Check:
+    def check(value: Any, item: str) -> None:
+        integer(0)(value, item)
+        if value >= bound:
+            raise ReportError(item, rule)
+    return check
+
+
+def list_of(check: Check, length: int | None = None, nonempty: bool = False) -> Check:
+    def inner(value: Any, item: str) -> None:
+        if not isinstance(value, list):
+            raise ReportError(item, f"must be a list, not {_what(value)}")
+        if length is not None and len(value) != length:
+            raise ReportError(item, f"must be a list of {length} values, not {len(value)}")
+        if nonempty and not value:
+            raise ReportError(item, "must not be empty")
+        for i, element in enumerate(value):
+            check(element, f"{item}[{i}]")
+    return inner
+
+
+def pair(first: Check, second: Check) -> Check:
+    def inner(value: Any, item: str) -> None:
+        list_of(lambda v, i: None, length=2)(value, item)
+        first(value[0], f"{item}[0]")
+        second(value[1], f"{item}[1]")
+    return inner
+
+
+def mapping_of(check: Check, nonempty: bool = False) -> Check:
+    """An object whose keys are ids (of transitions) and whose values all pass ``check``."""
+    def inner(value: Any, item: str) -> None:
+        if not isinstance(value, Mapping):
+            raise ReportError(item, f"must be an object, not {_what(value)}")
+        if nonempty and not value:
+            raise ReportError(item, "must not be empty")
+        for key, element in value.items():
+            check(element, f"{item}.{key}")
+    return inner
+
+
+def fields(spec: Mapping[str, Check], required: Iterable[str] = ()) -> Check:
+    """An object with known keys: ``null`` counts as missing, unknown keys are welcome."""
+    needed = tuple(required)
+
+    def inner(value: Any, item: str) -> None:
+        if not isinstance(value, Mapping):
+            raise ReportError(item, f"must be an object, not {_what(value)}")
+        for key in needed:
+            if value.get(key) is None:
+                raise ReportError(f"{item}.{key}", "is required")
+        for key, check in spec.items():
+            if value.get(key) is not None:
+                check(value[key], f"{item}.{key}")
+    return inner
+
+
+def series(names: tuple[str, ...], length_of: str) -> Check:
+    """Lists of finite numbers, all as long as the list under ``length_of``."""
+    def inner(value: Any, item: str) -> None:
+        fields({name: list_of(finite) for name in names}, required=names)(value, item)
+        length = len(value[length_of])
+        for name in names:
+            if len(value[name]) != length:
+                raise ReportError(f"{item}.{name}", f"must have as many values as "
+                                  f"{item}.{length_of} ({length}), not {len(value[name])}")
+    return inner
+
+
+def _transient(value: Any, item: str) -> None:
+    curves = mapping_of(list_of(finite))
+    fields({"k": list_of(finite), "recursion": curves, "simulation": curves})(value, item)
+    if not value.get("recursion"):
+        return  # the page leaves the figure out
+    if value.get("k") is None:
+        raise ReportError(f"{item}.k", "is required to draw the curves")
+    length = len(value["k"])
+    for side in ("recursion", "simulation"):
+        for name, curve in (value.get(side) or {}).items():
+            if len(curve) != length:
+                raise ReportError(f"{item}.{side}.{name}", f"must have as many values as "
+                                  f"{item}.k ({length}), not {len(curve)}")
+
+
+def _charpoly(value: Any, item: str) -> None:
+    if isinstance(value, Mapping) and value.get("skipped") is not None:
+        scalar(value["skipped"], f"{item}.skipped")
+        return
+    fields({"corners": list_of(pair(nullable(number), integer(0))),
+            "terms": list_of(pair(integer(0), number))})(value, item)
+
+
+CERTIFICATE_NUMBERS = ("circuit_ratio", "circuit_gap", "monotone_gap", "eigen_residual",
+                       "max_reduced_weight", "tolerance")
+
+
+def _sections(ids: set[str], n_places: int) -> dict[str, Check]:
+    """The checks of the document's sections, for a model with these transitions and places."""
+    by_id = mapping_of(nullable(number))
+    per_place = list_of(nullable(number))
+    interval = list_of(nullable(number), length=2)
+    transition = member(ids, "must name a transition of model.transitions")
+    criticality = fields({"transitions": by_id, "places": per_place, "definition": text})
+    analysis = fields({
+        "cycle_time": number,
+        "cycle_time_ci": interval,
+        "throughput": number,
+        "cycle_time_by_transition": by_id,
+        "critical_circuits": list_of(list_of(transition)),
+        "critical_places": list_of(index_below(n_places, "must be the index of a place of "
+                                                         "model.places")),
+        "cyclicity": integer(1),
+        "bounds": fields({"lower": number, "upper": number}),
+        "firings_simulated": integer(0),
+        "exact": boolean,
+        "strongly_connected": boolean,
+        "eigenvector": by_id,
+        "slack": fields({"transitions": by_id, "places": per_place}),
+        "certificate": fields({"checked": boolean, "text": scalar,
+                               **dict.fromkeys(CERTIFICATE_NUMBERS, number)}),
+        "charpoly": _charpoly,
+        "transient_firings": integer(0),
+        "criticality": criticality,
+        "utilization": by_id,
+    }, required=("cycle_time",))
+    simulation = fields({
+        "cycle_time": number,
+        "cycle_time_ci": interval,
+        "throughput": number,
+        "cycle_time_by_transition": by_id,
+        "firings_simulated": integer(0),
+        "exact": boolean,
+        "utilization": by_id,
+        "criticality": criticality,
+    }, required=("cycle_time",))
+    comparison = fields({
+        "verdict": one_of("agrees", "disagrees"),
+        "reasons": list_of(scalar),
+        "sample_path": fields({"identical": boolean, "max_relative_difference": number,
+                               "firings_compared": integer(0),
+                               "replications_compared": integer(0)}),
+    }, required=("verdict",))
+    figures = fields({
+        "transient": _transient,
+        "schedule": fields({"cycle_time": finite, "start": mapping_of(finite, nonempty=True),
+                            "duration": mapping_of(finite)},
+                           required=("cycle_time", "start", "duration")),
+        "running_estimate": series(("work", "estimate", "low", "high"), "work"),
+        "replication_estimates": fields({"recursion": list_of(finite),
+                                         "simulation": list_of(finite)}),
+    })
+    settings = fields({"seed": integer(), "precision": number, "replications": integer(0),
+                       "firings_per_replication": integer(0), "warmup": integer(0)})
+    return {"analysis": analysis, "simulation": simulation, "comparison": comparison,
+            "figures": figures, "settings": settings, "versions": mapping_of(scalar),
+            "command": text, "command_line": text, "created": text}
+
+
+MODEL = fields({
+    "name": text, "time_unit": text, "description": text, "path": text, "sha256": text,
+    "n_transitions": integer(0), "n_places": integer(0), "is_random": boolean,
+    "transitions": list_of(fields({"label": text, "duration": scalar,
+                                   "mean_duration": number})),
+    "places": list_of(fields({"hold": scalar, "mean_hold": number, "label": text})),
+})
+
+
+def _structure(document: Any) -> None:
+    """The rules without which nothing can be looked up: kind, version, model, ids."""
+    if not isinstance(document, Mapping):
+        raise ReportError("document", "a result document is a JSON object (a dict)")
+    if document.get("document") != "cyclecheck-result":
+        raise ReportError("document", "key 'document' must be 'cyclecheck-result'")
+    version = document.get("schema_version")
+    if not isinstance(version, int) or isinstance(version, bool):
+        raise ReportError("schema_version", f"must be the number {SCHEMA_VERSION} (the version "
+                          f"this cyclecheck reads), not {_what(version)}")
+    if version != SCHEMA_VERSION:
+        raise ReportError("schema_version", f"version {version} is not supported; this "
+                          f"cyclecheck reads version {SCHEMA_VERSION}")
+    model = document.get("model")
+    if not isinstance(model, Mapping):
+        raise ReportError("model", "the model section is required")
+    if not isinstance(model.get("name"), str):
+        raise ReportError("model.name", "the model name is required (a string)")
+    for key in ("transitions", "places"):
+        if not isinstance(model.get(key), list):
+            raise ReportError(f"model.{key}", "a list is required")
+    seen: set[str] = set()
+    for i, t in enumerate(model["transitions"]):
+        if not isinstance(t, Mapping) or not isinstance(t.get("id"), str):
+            raise ReportError(f"model.transitions[{i}].id", "every transition needs a string id")
+        if t["id"] in seen:
+            raise ReportError(f"model.transitions[{i}].id",
+                              f"the id {t['id']!r} is used twice; ids must be unique")
+        seen.add(t["id"])
+    for i, p in enumerate(model["places"]):
+        if not isinstance(p, Mapping):
+            raise ReportError(f"model.places[{i}]", "every place is an object")
+        for end in ("from", "to"):
+            if not isinstance(p.get(end), str) or p[end] not in seen:
+                raise ReportError(f"model.places[{i}].{end}",
+                                  "must name a transition of model.transitions")
+        tokens = p.get("tokens")
+        if not isinstance(tokens, int) or isinstance(tokens, bool) or tokens < 0:
+            raise ReportError(f"model.places[{i}].tokens", "must be an integer >= 0")
+
+
+def check_document(document: Any) -> None:
+    """Check a result document against the rules of schema version 1.
+
+    Parameters
+    ----------
+    document
+        The parsed JSON document.
+
+    Raises
+    ------
+    ReportError
+        At the first broken rule, naming the key path and the rule.
+
+    Examples
+    --------
+    >>> try:
+    ...     check_document({"document": "cyclecheck-result", "schema_version": 1,
+    ...                     "command": "check", "simulation": {"cycle_time": 2.0},
+    ...                     "model": {"name": "m", "transitions": [], "places": []}})
+    ... except ReportError as error:
+    ...     print(error.item)
+    ...     print(error.rule)
+    analysis
+    is missing: a document of `check` has the sections analysis, simulation and comparison
+    """
+    _structure(document)
+    model = document["model"]
+    MODEL(model, "model")
+    for key in ("analysis", "simulation", "comparison", "figures", "settings", "versions"):
+        if document.get(key) is not None and not isinstance(document[key], Mapping):
+            raise ReportError(key, f"must be an object when present, not {_what(document[key])}")
+    command = document.get("command")
+    needed = REQUIRED_SECTIONS.get(command, ()) if isinstance(command, str) else ()
+    for key in needed:
+        if document.get(key) is None:
+            names = ", ".join(needed[:-1]) + (" and " if len(needed) > 1 else "") + needed[-1]
+            raise ReportError(key, f"is missing: a document of `{command}` has the "
+                                   f"section{'s' if len(needed) > 1 else ''} {names}")
+    if not document.get("analysis") and not document.get("simulation"):
+        raise ReportError("analysis", "a document needs an analysis or a simulation section")
+    ids = {str(t["id"]) for t in model["transitions"]}
+    for key, check in _sections(ids, len(model["places"])).items():
+        if document.get(key) is not None:
+            check(document[key], key)
