@@ -274,6 +274,12 @@ def _evaluate(places: _SortedPlaces, policy: np.ndarray) -> _Evaluation:
 RTOL = 1e-10
 
 
+#: Consecutive eta improvements after which the largest ratio is spread at once (see
+#: ``_SortedPlaces.spread_largest``). Spreading rewires every transition downstream, which
+#: costs value improvements afterwards, so it is kept for when the plain step is creeping.
+SPREAD_AFTER = 8
+
+
 def _exceeds(new: np.ndarray, old: np.ndarray, scale: np.ndarray | float = 0.0) -> np.ndarray:
     """``new > old`` by more than rounding: ``RTOL`` times the size of the terms compared."""
     with np.errstate(invalid="ignore"):
@@ -324,6 +330,7 @@ def howard(graph: EventGraph, *, max_iterations: int | None = None) -> HowardRes
     # Start from the heaviest input place of each transition, per token.
     _, policy = places.segment_argmax(places.weight / np.maximum(places.tokens, 1.0))
     iterations = 0
+    eta_steps = 0  # consecutive improvements of eta
     while True:
         ev = _evaluate(places, policy)
         eta_src = ev.eta[places.source]
@@ -333,8 +340,12 @@ def howard(graph: EventGraph, *, max_iterations: int | None = None) -> HowardRes
         improve = _exceeds(best_eta, eta_src[policy]) & (arg_eta != policy)
         if improve.any():
             policy = np.where(improve, arg_eta, policy)
-            policy = places.spread_largest(ev.eta, policy)
+            eta_steps += 1
+            if eta_steps % SPREAD_AFTER == 0:
+                # The largest ratio is creeping along a long chain one place per iteration.
+                policy = places.spread_largest(ev.eta, policy)
         else:
+            eta_steps = 0
             eta_tgt = ev.eta[places.target]
             value = places.weight - eta_tgt * places.tokens + ev.bias[places.source]
             value[_exceeds(eta_tgt, eta_src)] = -np.inf

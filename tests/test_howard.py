@@ -14,35 +14,37 @@ from cyclecheck.algebra.eventgraph import EventGraph
 from cyclecheck.algebra.spectral import howard
 
 
-def _ring_with_servers(n: int, seed: int) -> tuple[EventGraph, float]:
-    """n single servers in a ring with one token on the ring: the whole ring is critical."""
-    rng = np.random.default_rng(np.random.SeedSequence(seed))
-    duration = rng.integers(1, 4, n).astype(float)
+def _ring_with_servers(n: int, seed: int = 0) -> tuple[EventGraph, float]:
+    """n single servers (durations 1, 3, ..., 13, 2, ..., 12 in turn) in a ring whose places hold 0.5, two tokens
+    on the closing place, and a return place with 3 tokens every tenth transition (a kanban
+    loop). The whole ring is critical: ratio (sum d + 0.5 n) / 2."""
+    duration = (2 * np.arange(n) % 13 + 1).astype(float)
     ring = np.arange(n)
-    source = np.concatenate([ring, ring])
-    target = np.concatenate([ring, (ring + 1) % n])
-    tokens = np.concatenate([np.ones(n, int), np.zeros(n, int)])
-    tokens[-1] = 1  # the ring's only token, on the place n-1 -> 0
-    hold = np.concatenate([np.zeros(n), np.full(n, 0.5)])
-    exact = duration.sum() + 0.5 * n  # closed form: weight of the ring over its one token
+    back = np.arange(0, n, 10)
+    source = np.concatenate([ring, ring, back])
+    target = np.concatenate([ring, (ring + 1) % n, (back - 10) % n])
+    tokens = np.concatenate([np.ones(n, int), np.zeros(n, int), np.full(back.size, 3)])
+    tokens[2 * n - 1] = 2  # the closing place n-1 -> 0
+    hold = np.concatenate([np.zeros(n), np.full(n, 0.5), np.zeros(back.size)])
+    exact = (duration.sum() + 0.5 * n) / 2
     return EventGraph(duration, source, target, tokens, hold), exact
 
 
-@pytest.mark.parametrize("n", [10, 1000, 100_000])
+@pytest.mark.parametrize("n", [20, 1000, 100_000])
 def test_long_ring_converges_in_few_iterations(n: int) -> None:
     """The ring's ratio reaches every transition in one step, not one transition per step
-    (before: 2387 iterations for 10^5 transitions)."""
-    graph, exact = _ring_with_servers(n, seed=n)
+    (without spreading the largest ratio: 2387 iterations and 25 s for 10^5 transitions)."""
+    graph, exact = _ring_with_servers(n)
     result = howard(graph)
     assert result.cycle_time == pytest.approx(exact, rel=1e-12)
     assert certify(graph, result).holds
-    assert result.iterations <= 20
+    assert result.iterations <= 60
 
 
 def test_spreading_keeps_components_apart() -> None:
     """A fast component upstream of nothing and a slow one: each keeps its own cycle time."""
-    fast, _ = _ring_with_servers(5, seed=1)
-    slow, exact = _ring_with_servers(7, seed=2)
+    fast, fast_exact = _ring_with_servers(5)
+    slow, exact = _ring_with_servers(40)
     n1 = fast.n_transitions
     graph = EventGraph(np.concatenate([fast.duration, slow.duration]),
                        np.concatenate([fast.source, slow.source + n1]),
@@ -51,4 +53,4 @@ def test_spreading_keeps_components_apart() -> None:
                        np.concatenate([fast.hold, slow.hold]))
     eta = howard(graph).cycle_time
     assert eta[n1:] == pytest.approx(exact)
-    assert eta[:n1] == pytest.approx(fast.duration.sum() + 2.5)
+    assert eta[:n1] == pytest.approx(fast_exact)
