@@ -14,10 +14,10 @@ from cyclecheck.algebra.eventgraph import EventGraph
 from cyclecheck.algebra.spectral import howard
 
 
-def _ring_with_servers(n: int, seed: int = 0) -> tuple[EventGraph, float]:
-    """n single servers (durations 1, 3, ..., 13, 2, ..., 12 in turn) in a ring whose places hold 0.5, two tokens
-    on the closing place, and a return place with 3 tokens every tenth transition (a kanban
-    loop). The whole ring is critical: ratio (sum d + 0.5 n) / 2."""
+def _ring_with_servers(n: int) -> tuple[EventGraph, float]:
+    """n single servers (durations 1, 3, ..., 13, 2, ..., 12 in turn) in a ring whose places
+    hold 0.5, two tokens on the closing place, and a return place with 3 tokens every tenth
+    transition (a kanban loop). The whole ring is critical: ratio (sum d + 0.5 n) / 2."""
     duration = (2 * np.arange(n) % 13 + 1).astype(float)
     ring = np.arange(n)
     back = np.arange(0, n, 10)

@@ -188,6 +188,25 @@ MEASURE = """JSON.stringify({
 PAPER = {"letter": (8.5, 11.0), "a4": (210 / 25.4, 297 / 25.4)}
 
 
+def open_page(browser: _Browser, url: str) -> str:
+    """Load ``url`` in a new tab of 1280 x 4000 with network events on; the tab's session."""
+    target = browser.call("Target.createTarget", url="about:blank")["targetId"]
+    session = browser.call("Target.attachToTarget", targetId=target, flatten=True)["sessionId"]
+    browser.call("Network.enable", session)
+    browser.call("Page.enable", session)
+    browser.call("Emulation.setDeviceMetricsOverride", session, width=1280, height=4000,
+                 deviceScaleFactor=1, mobile=False)
+    browser.call("Page.navigate", session, url=url)
+    browser.wait("Page.loadEventFired")
+    return session
+
+
+def requests_of(browser: _Browser, session: str) -> list[str]:
+    """Every URL the page of ``session`` asked the network for."""
+    return [e["params"]["request"]["url"] for e in browser.events
+            if e.get("method") == "Network.requestWillBeSent" and e.get("sessionId") == session]
+
+
 @pytest.fixture(scope="module", params=sorted(DOCUMENTS))
 def browsed(request: pytest.FixtureRequest, server: _Server,
             tmp_path_factory: pytest.TempPathFactory) -> dict[str, Any]:
@@ -200,15 +219,7 @@ def browsed(request: pytest.FixtureRequest, server: _Server,
     start = len(server.log)
     browser = _Browser(folder / "profile")
     try:
-        target = browser.call("Target.createTarget", url="about:blank")["targetId"]
-        session = browser.call("Target.attachToTarget", targetId=target,
-                               flatten=True)["sessionId"]
-        browser.call("Network.enable", session)
-        browser.call("Page.enable", session)
-        browser.call("Emulation.setDeviceMetricsOverride", session, width=1280, height=4000,
-                     deviceScaleFactor=1, mobile=False)
-        browser.call("Page.navigate", session, url=server.url(path))
-        browser.wait("Page.loadEventFired")
+        session = open_page(browser, server.url(path))
         # Measured from outside the page: the page itself carries no script.
         measured = browser.call("Runtime.evaluate", session, expression=MEASURE,
                                 returnByValue=True)["result"]["value"]
@@ -222,9 +233,7 @@ def browsed(request: pytest.FixtureRequest, server: _Server,
                                 printBackground=True, preferCSSPageSize=False)["data"]
             pdfs[paper] = folder / f"{paper}.pdf"
             pdfs[paper].write_bytes(base64.b64decode(data))
-        requests = [e["params"]["request"]["url"] for e in browser.events
-                    if e.get("method") == "Network.requestWillBeSent"
-                    and e.get("sessionId") == session]
+        requests = requests_of(browser, session)
     finally:
         browser.close()
     return {"name": name, "page": page, "url": server.url(path), "requests": requests,

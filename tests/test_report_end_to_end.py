@@ -20,7 +20,15 @@ from cyclecheck.reports.page import fmt, render_page
 from cyclecheck.simulate.api import check_model, load_result, save_result
 from cyclecheck.simulate.modelfile import load_model
 
-from tests.test_report_browser import CHROMIUM, MEASURE, _Browser, _require, _Server
+from tests.test_report_browser import (
+    CHROMIUM,
+    MEASURE,
+    _Browser,
+    _require,
+    _Server,
+    open_page,
+    requests_of,
+)
 
 MODELS = Path(__file__).resolve().parents[1] / "models"
 NASTY = '<b>x</b> & "y"'
@@ -81,20 +89,10 @@ def test_real_page_in_browser(documents: dict[str, Any], name: str, tmp_path: Pa
         server.pages["/page.html"] = page.encode("utf-8")
         browser = _Browser(tmp_path / "profile")
         try:
-            target = browser.call("Target.createTarget", url="about:blank")["targetId"]
-            session = browser.call("Target.attachToTarget", targetId=target,
-                                   flatten=True)["sessionId"]
-            browser.call("Network.enable", session)
-            browser.call("Page.enable", session)
-            browser.call("Emulation.setDeviceMetricsOverride", session, width=1280,
-                         height=4000, deviceScaleFactor=1, mobile=False)
-            browser.call("Page.navigate", session, url=server.url("/page.html"))
-            browser.wait("Page.loadEventFired")
+            session = open_page(browser, server.url("/page.html"))
             measured = json.loads(browser.call("Runtime.evaluate", session, expression=MEASURE,
                                                returnByValue=True)["result"]["value"])
-            requests = [e["params"]["request"]["url"] for e in browser.events
-                        if e.get("method") == "Network.requestWillBeSent"
-                        and e.get("sessionId") == session]
+            requests = requests_of(browser, session)
         finally:
             browser.close()
     finally:
