@@ -92,7 +92,8 @@ def analyze_model(model: Model, *, seed: int = 1, precision: float | None = None
     with _progress_line(progress, precision) as line:
         est = estimate_with_executor(model, "recursion", seed=seed, precision=precision,
                                      replications=replications, firings=firings,
-                                     workers=workers, scheduler=scheduler, progress=line)
+                                     workers=workers, scheduler=scheduler,
+                                     cyclicity_of_mean=exact.cyclicity, progress=line)
     doc.update(random_analysis_section(model, exact, est))
     doc["settings"] = settings_section(seed, precision, est.replications, est.firings)
     return doc
@@ -110,15 +111,18 @@ def simulate_model(model: Model, *, seed: int = 1, precision: float | None = Non
         precision = DEFAULT_PRECISION
     graph = model.graph()
     mean_value = howard(graph)
+    period = cyclicity(graph, mean_value)
     with _progress_line(progress, precision) as line:
         est = estimate_with_executor(model, "simpy", seed=seed, precision=precision,
                                      replications=replications, firings=firings,
-                                     workers=workers, scheduler=scheduler, progress=line)
+                                     workers=workers, scheduler=scheduler,
+                                     cyclicity_of_mean=period,
+                                     progress=line)
     doc.update(estimate_section(model, est, mean_value.max_cycle_time))
     if not model.is_random:
         # Fixed durations: the simulation is exact up to the transient; the structure is known.
         doc["bounds"] = None
-        doc["cyclicity"] = cyclicity(graph, mean_value)
+        doc["cyclicity"] = period
         doc["critical_circuits"] = [[model.transition_ids[t] for t in c.transitions]
                                     for c in mean_value.circuits]
     doc["settings"] = settings_section(seed, precision, est.replications, est.firings)

@@ -175,7 +175,8 @@ def _random(model: Model, exact: GraphAnalysis, *, seed: int, precision: float |
     precision = DEFAULT_PRECISION if precision is None else precision
     rec_est = estimate_with_executor(model, "recursion", seed=seed, precision=precision,
                                      replications=replications, firings=firings,
-                                     workers=workers, scheduler=scheduler, progress=progress)
+                                     workers=workers, scheduler=scheduler,
+                                     cyclicity_of_mean=exact.cyclicity, progress=progress)
     sim_firings = min(rec_est.firings, firings or default_firings(model, "simpy"))
     # SimPy runs replications of its own, after the recursion's: its estimate is independent,
     # so that the two intervals overlapping means something. The sample paths are compared
@@ -184,7 +185,7 @@ def _random(model: Model, exact: GraphAnalysis, *, seed: int, precision: float |
                                      replications=replications or SIMPY_REPLICATIONS,
                                      firings=sim_firings, workers=workers, scheduler=scheduler,
                                      record=True, first_replication=rec_est.replications,
-                                     progress=progress)
+                                     cyclicity_of_mean=exact.cyclicity, progress=progress)
     sim_times = sim_est.batch.times
     rec_batch = run_replications(model, "recursion", seed, sim_est.batch.replications.tolist(),
                                  sim_est.firings, record=True)

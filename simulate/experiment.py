@@ -379,17 +379,18 @@ def _warmup(batch: Batch, components: _Components) -> tuple[int, bool]:
     return int(batch.checkpoints[min(deleted_blocks, batch.checkpoints.size - 2)]), cut.at_limit
 
 
-def _aligned(model: Model, firings: int) -> tuple[int, int]:
+def _aligned(model: Model, firings: int, period: int | None = None) -> tuple[int, int]:
     """Firings per replication and checkpoint spacing, both multiples of the cyclicity.
 
     When the bottleneck has fixed durations, firing times settle into a regime of period ``c``
     (the cyclicity of the mean-duration graph): a growth rate measured over a span that is not a
     multiple of ``c`` is off by up to ``amplitude / span``, the same in every replication, and
-    its interval has zero width. Measuring over multiples of ``c`` makes it exact.
+    its interval has zero width. Measuring over multiples of ``c`` makes it exact. ``period``
+    is ``c`` when the caller has it already.
     """
-    graph = model.graph()
-    result = howard(graph)
-    period = cyclicity(graph, result)
+    if period is None:
+        graph = model.graph()
+        period = cyclicity(graph, howard(graph))
     if period > MAX_ALIGNED_PERIOD:
         period = 1  # a period this long cannot be run through; the bias is O(1/firings)
     firings = max(firings, 10 * period)
@@ -409,6 +410,7 @@ def estimate_cycle_time(model: Model, engine: str = "recursion", *, seed: int = 
                         precision: float | None = None, max_replications: int = MAX_REPLICATIONS,
                         executor: Executor | None = None, chunks: int = 1,
                         record: bool = False, first_replication: int = 0,
+                        cyclicity_of_mean: int | None = None,
                         progress: Callable[[str, int, np.ndarray], None] | None = None
                         ) -> Estimate:
     """Estimate the cycle time of a model by independent replications.
@@ -416,9 +418,10 @@ def estimate_cycle_time(model: Model, engine: str = "recursion", *, seed: int = 
     With ``precision`` the sequential procedure adds replications until the 95 % interval's
     relative half-width is at most ``precision`` (or ``max_replications`` are used).
     Replications are numbered from ``first_replication`` (another range gives independent
-    draws).
+    draws). ``cyclicity_of_mean``, the cyclicity of the mean-duration graph, is computed when
+    not given.
     """
-    firings, block = _aligned(model, firings)
+    firings, block = _aligned(model, firings, cyclicity_of_mean)
     components = _Components(model)
     batches: list[Batch] = []
     so_far: list[np.ndarray] = []
@@ -481,7 +484,7 @@ def default_firings(model: Model, engine: str) -> int:
 def estimate_with_executor(model: Model, engine: str, *, seed: int, precision: float | None,
                            replications: int | None, firings: int | None, workers: int = 1,
                            scheduler: str | None = None, record: bool = False,
-                           first_replication: int = 0,
+                           first_replication: int = 0, cyclicity_of_mean: int | None = None,
                            progress: Callable[[str, int, np.ndarray], None] | None = None
                            ) -> Estimate:
     """:func:`estimate_cycle_time` with defaults filled in, on the executor the options ask for."""
@@ -494,7 +497,8 @@ def estimate_with_executor(model: Model, engine: str, *, seed: int, precision: f
             precision=precision, executor=executor,
             # A cluster gets one task per replication; a local pool one per worker.
             chunks=(MAX_REPLICATIONS if scheduler else max(workers, 1)) if executor else 1,
-            record=record, first_replication=first_replication, progress=progress,
+            record=record, first_replication=first_replication,
+            cyclicity_of_mean=cyclicity_of_mean, progress=progress,
         )
     finally:
         close()
