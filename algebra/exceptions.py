@@ -1,13 +1,18 @@
-"""Exceptions raised by the max-plus algebra.
+"""Exceptions raised by the max-plus algebra, and the root of every cyclecheck error.
 
-One root, :class:`MaxPlusError`, with subclasses named for the mathematical situation, so that
-callers can tell a dead model from a malformed array. The application layer (``simulate``)
-catches these and re-raises them with the model file and the element names attached.
+:class:`CycleCheckError` is the one root of everything a user can cause, in any room of the
+package: the algebra's :class:`MaxPlusError` (with subclasses named for the mathematical
+situation, so that callers can tell a dead model from a malformed array), the application's
+model and usage errors (``cyclecheck.simulate.errors``) and the report errors
+(``cyclecheck.reports``). It lives here, in the lowest room, because every other room may import
+the algebra and the algebra imports nothing of theirs. The application layer catches the
+algebra's errors and re-raises them with the model file and the element names attached.
 """
 
 from __future__ import annotations
 
 __all__ = [
+    "CycleCheckError",
     "GraphStructureError",
     "InvalidArray",
     "MaxPlusError",
@@ -17,8 +22,16 @@ __all__ = [
 ]
 
 
-class MaxPlusError(ValueError):
-    """Root of the errors raised by :mod:`cyclecheck.algebra`."""
+class CycleCheckError(Exception):
+    """Root of every error cyclecheck raises for something its user can cause.
+
+    Catch this one class to handle bad models, logs, options, documents and outputs alike; the
+    command line turns it into exit status 2 and one paragraph on stderr.
+    """
+
+
+class MaxPlusError(CycleCheckError, ValueError):
+    """Root of the errors raised by :mod:`cyclecheck.algebra` (also a :class:`ValueError`)."""
 
 
 class GraphStructureError(MaxPlusError):

@@ -57,7 +57,9 @@ from typing import TYPE_CHECKING, Any, Protocol
 
 import numpy as np
 import simpy
-from cyclecheck.algebra.eventgraph import EventGraph, check_live
+
+from ..algebra.eventgraph import EventGraph, check_live
+from .errors import ArgumentError
 
 if TYPE_CHECKING:  # pandas is imported inside event_log(): the CLI starts without it
     import pandas as pd
@@ -120,12 +122,12 @@ class _Draws:
     def _load(self, b: int) -> list[float]:
         raw = np.asarray(self._fetch(self._element, b * BLOCK + 1, BLOCK), dtype=np.float64)
         if raw.shape != (BLOCK,):
-            raise ValueError(
+            raise ArgumentError(
                 f"sampler {self._kind}({self._element}, {b * BLOCK + 1}, {BLOCK}) returned shape "
                 f"{raw.shape}: it must return {BLOCK} values"
             )
         if not np.all(np.isfinite(raw)) or raw.min() < 0:
-            raise ValueError(
+            raise ArgumentError(
                 f"sampler {self._kind}({self._element}, ...) returned a negative or non-finite "
                 "value: durations and holds must be finite and >= 0"
             )
@@ -310,7 +312,7 @@ class EventGraphModel:
 
     Raises
     ------
-    ValueError
+    ArgumentError
         If the clock of ``env`` is not at 0 or ``n_firings`` is not an integer >= 1.
     NotLive, Unfed
         If the graph is not live (:func:`~cyclecheck.algebra.eventgraph.check_live`).
@@ -327,12 +329,12 @@ class EventGraphModel:
         n_firings: int | None = None,
     ) -> None:
         if env.now != 0:
-            raise ValueError(f"the environment's clock must be at 0, it is at {env.now}")
+            raise ArgumentError(f"the environment's clock must be at 0, it is at {env.now}")
         if n_firings is not None:
             if isinstance(n_firings, bool) or not isinstance(n_firings, int | np.integer):
-                raise ValueError(f"n_firings must be an integer >= 1, got {n_firings!r}")
+                raise ArgumentError(f"n_firings must be an integer >= 1, got {n_firings!r}")
             if n_firings < 1:
-                raise ValueError(f"n_firings must be an integer >= 1, got {n_firings!r}")
+                raise ArgumentError(f"n_firings must be an integer >= 1, got {n_firings!r}")
             n_firings = int(n_firings)
         check_live(graph)
         self.env = env
@@ -504,18 +506,18 @@ def simulate_event_graph(
 
     Raises
     ------
-    ValueError
+    ArgumentError
         If neither stop is given, ``n_firings`` is not an integer >= 1 or ``until`` not a
         finite number > 0.
     NotLive, Unfed
         If the graph is not live.
     """
     if n_firings is None and until is None:
-        raise ValueError("give n_firings, until or both: the run must stop")
+        raise ArgumentError("give n_firings, until or both: the run must stop")
     if until is not None and not (
         isinstance(until, int | float | np.number) and 0 < until < math.inf
     ):
-        raise ValueError(f"until must be a finite number > 0, got {until!r}")
+        raise ArgumentError(f"until must be a finite number > 0, got {until!r}")
     env = simpy.Environment()
     model = EventGraphModel(env, graph, sampler, n_firings)
     env.run(until=until)

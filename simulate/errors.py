@@ -1,9 +1,13 @@
-"""The one exception type for bad model input.
+"""The errors of the application: bad input, and bad arguments to the library.
 
-Every check of a model file, a CSV table or a distribution raises :class:`ModelError`, which
-carries the *file*, the *item* (the element or line at fault) and the *rule* that is broken, so
-that the command line can print one clear paragraph and exit with status 2, and library callers
-can read the three parts separately.
+Every check of a model file, a CSV table, a distribution, an event log, an option or an output
+path raises :class:`ModelError`, which carries the *file*, the *item* (the element, line or
+option at fault) and the *rule* that is broken, so that the command line can print one clear
+paragraph and exit with status 2, and library callers can read the three parts separately.
+A function of the library called with an argument outside its domain raises
+:class:`ArgumentError`. Both descend from
+:class:`~cyclecheck.algebra.exceptions.CycleCheckError`, the one root of every error a user can
+cause (re-exported here).
 """
 
 from __future__ import annotations
@@ -14,10 +18,20 @@ import os
 from collections.abc import Iterable
 from pathlib import Path
 
-__all__ = ["ModelError", "did_you_mean", "shown"]
+from ..algebra.exceptions import CycleCheckError
+
+__all__ = ["ArgumentError", "CycleCheckError", "ModelError", "did_you_mean", "shown"]
 
 
-class ModelError(Exception):
+class ArgumentError(CycleCheckError, ValueError):
+    """A library function was called with an argument outside its domain.
+
+    The message names the argument and the rule, e.g. ``"level must be in (0, 1), got 2"``.
+    Also a :class:`ValueError`, as Python callers expect of a bad argument.
+    """
+
+
+class ModelError(CycleCheckError):
     """A model file, table or distribution breaks a rule.
 
     Parameters

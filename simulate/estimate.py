@@ -12,8 +12,9 @@ nothing of event graphs, so that any engine can use it. A typical cycle-time stu
    batches of one long run (:func:`batch_means`), or let :func:`sequential_precision` add
    replications (or lengthen the runs) until a relative precision is reached.
 
-Confidence intervals are :class:`Interval` objects. Bad arguments raise :class:`ValueError`
-whose message names the argument and the rule it breaks.
+Confidence intervals are :class:`Interval` objects. Bad arguments raise
+:class:`~cyclecheck.simulate.errors.ArgumentError` (a ValueError) whose message names the
+argument and the rule it breaks.
 
 References
 ----------
@@ -35,6 +36,7 @@ from typing import Any, Literal, NamedTuple
 import numpy as np
 from numpy.typing import ArrayLike, NDArray
 
+from .errors import ArgumentError
 from .warmup import Truncation, _count, _series, mser, mser5, welch_average
 
 __all__ = [
@@ -69,7 +71,7 @@ _LAG1_Z = 1.6448536269514722
 
 def _open_unit(value: float, name: str, hint: str = "") -> float:
     if not isinstance(value, int | float | np.floating | np.integer) or not 0.0 < value < 1.0:
-        raise ValueError(f"{name} must be in (0, 1){hint}, got {value!r}")
+        raise ArgumentError(f"{name} must be in (0, 1){hint}, got {value!r}")
     return float(value)
 
 
@@ -327,13 +329,13 @@ def mean_increment(series: ArrayLike, deleted: int = 0) -> float | NDArray[np.fl
     """
     x = np.asarray(series, dtype=np.float64)
     if x.ndim < 1 or x.shape[-1] < 1:
-        raise ValueError("series must hold at least one value along its last axis")
+        raise ArgumentError("series must hold at least one value along its last axis")
     if not np.all(np.isfinite(x)):
-        raise ValueError("series must be finite numbers (no NaN or infinity)")
+        raise ArgumentError("series must be finite numbers (no NaN or infinity)")
     k = x.shape[-1]
     k0 = _count(deleted, "deleted", 0)
     if k0 >= k:
-        raise ValueError(f"deleted must be smaller than the series length {k}, got {k0}")
+        raise ArgumentError(f"deleted must be smaller than the series length {k}, got {k0}")
     start = x[..., k0 - 1] if k0 > 0 else 0.0
     result = (x[..., -1] - start) / (k - k0)
     return float(result) if np.ndim(result) == 0 else result
@@ -433,7 +435,7 @@ def sequential_precision(
     Returns
     -------
     SequentialResult
-        A ValueError is raised for bad arguments and for a ``step`` returning the wrong number
+        An ArgumentError is raised for bad arguments and for a ``step`` returning the wrong number
         of estimates or non-finite ones. Stopping when a random half-width happens to be small
         lowers the coverage a little below the level, more so with a small ``initial`` (Law &
         Kelton §9.4.1).
@@ -449,12 +451,12 @@ def sequential_precision(
     gamma = _open_unit(precision, "precision", " (a relative error such as 0.05)")
     level = _open_unit(level, "level")
     if mode not in ("append", "replace"):
-        raise ValueError(f'mode must be "append" or "replace", got {mode!r}')
+        raise ArgumentError(f'mode must be "append" or "replace", got {mode!r}')
     first = _count(initial, "initial", 2 if mode == "append" else 1)
     budget = _count(max_work, "max_work", first)
     least = _count(min_step, "min_step", 1)
     if not isinstance(growth, int | float) or not (growth > 1.0 and math.isfinite(growth)):
-        raise ValueError(f"growth must be a finite number > 1, got {growth!r}")
+        raise ArgumentError(f"growth must be a finite number > 1, got {growth!r}")
     target = gamma / (1.0 + gamma)
 
     values = np.empty(0)
@@ -463,15 +465,15 @@ def sequential_precision(
     while True:
         new = np.asarray(step(more), dtype=np.float64)
         if new.ndim != 1 or not np.all(np.isfinite(new)):
-            raise ValueError("step must return a 1-D array of finite estimates")
+            raise ArgumentError("step must return a 1-D array of finite estimates")
         if mode == "append":
             if new.size != more:
-                raise ValueError(f"step({more}) must return {more} estimates, got {new.size}")
+                raise ArgumentError(f"step({more}) must return {more} estimates, got {new.size}")
             values = np.concatenate((values, new))
         else:
             if new.size < 2 or (work > 0 and new.size != values.size):
                 expected = values.size if work > 0 else "at least 2"
-                raise ValueError(
+                raise ArgumentError(
                     f"step must return one estimate per replication ({expected}), got {new.size}"
                 )
             values = new

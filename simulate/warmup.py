@@ -3,8 +3,8 @@ r"""Warm-up deletion: the MSER truncation rule for one run, Welch's moving avera
 Like :mod:`cyclecheck.simulate.estimate`, which re-exports these names, everything here works on
 plain numbers and knows nothing of event graphs. Choose the warm-up ``K0`` from the increments of
 one run, ``mser5(numpy.diff(x))``, or read it off a Welch plot (:func:`welch_average`) of several
-runs. Bad arguments raise :class:`ValueError` whose message names the argument and the rule it
-breaks.
+runs. Bad arguments raise :class:`~cyclecheck.simulate.errors.ArgumentError` (a ValueError)
+whose message names the argument and the rule it breaks.
 
 References
 ----------
@@ -23,6 +23,8 @@ from dataclasses import dataclass
 import numpy as np
 from numpy.typing import ArrayLike, NDArray
 
+from .errors import ArgumentError
+
 __all__ = ["Truncation", "mser", "mser5", "welch_average"]
 
 
@@ -34,17 +36,17 @@ __all__ = ["Truncation", "mser", "mser5", "welch_average"]
 def _series(values: ArrayLike, name: str, min_len: int) -> NDArray[np.float64]:
     arr = np.asarray(values, dtype=np.float64)
     if arr.ndim != 1:
-        raise ValueError(f"{name} must be one-dimensional, got shape {arr.shape}")
+        raise ArgumentError(f"{name} must be one-dimensional, got shape {arr.shape}")
     if arr.size < min_len:
-        raise ValueError(f"{name} must hold at least {min_len} values, got {arr.size}")
+        raise ArgumentError(f"{name} must hold at least {min_len} values, got {arr.size}")
     if not np.all(np.isfinite(arr)):
-        raise ValueError(f"{name} must be finite numbers (no NaN or infinity)")
+        raise ArgumentError(f"{name} must be finite numbers (no NaN or infinity)")
     return arr
 
 
 def _count(value: int, name: str, least: int) -> int:
     if isinstance(value, bool) or not isinstance(value, int | np.integer) or value < least:
-        raise ValueError(f"{name} must be an integer >= {least}, got {value!r}")
+        raise ArgumentError(f"{name} must be an integer >= {least}, got {value!r}")
     return int(value)
 
 
@@ -164,13 +166,14 @@ def welch_average(replications: ArrayLike, window: int) -> NDArray[np.float64]:
     if arr.ndim == 1:
         arr = arr[np.newaxis, :]
     if arr.ndim != 2 or arr.shape[0] < 1:
-        raise ValueError(f"replications must be a 2-D array (replication, index), got {arr.shape}")
+        raise ArgumentError(
+            f"replications must be a 2-D array (replication, index), got {arr.shape}")
     if not np.all(np.isfinite(arr)):
-        raise ValueError("replications must be finite numbers (no NaN or infinity)")
+        raise ArgumentError("replications must be finite numbers (no NaN or infinity)")
     m = arr.shape[1]
     w = _count(window, "window", 1)
     if w > (m - 1) // 2:
-        raise ValueError(f"window must be at most (m - 1) // 2 = {(m - 1) // 2}, got {w}")
+        raise ArgumentError(f"window must be at most (m - 1) // 2 = {(m - 1) // 2}, got {w}")
     ybar = arr.mean(axis=0)
     cs = np.concatenate(([0.0], np.cumsum(ybar)))
     out = np.empty(m - w)
