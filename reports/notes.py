@@ -7,16 +7,13 @@ is the fixed wording of the tool's semantics and of its limits.
 
 from __future__ import annotations
 
-import html
 from collections.abc import Mapping
 from typing import Any
 
-from .page import fmt, pct
-from .sections import section, table
+from .markup import e, fmt, pct, section, table
 
 __all__ = ["algebra", "cautions", "footer", "reproducibility", "semantics"]
 
-e = html.escape
 #: Largest number of terms of the characteristic maxpolynomial written out.
 MAX_TERMS = 16
 

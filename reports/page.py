@@ -96,62 +96,17 @@ thousands separators, fractions as percentages, and negative numbers with a true
 from __future__ import annotations
 
 import html
-import math
-import os
-import tempfile
 from collections.abc import Mapping
 from importlib import resources
-from pathlib import Path
 from typing import Any
 
-from .schema import SCHEMA_VERSION, ReportError, check_document
+from .markup import fmt, pct
+from .schema import SCHEMA_VERSION, ReportError, as_sections, check_document
 
-__all__ = ["MARKER", "ReportError", "fmt", "is_report", "render_page", "write_page"]
+__all__ = ["MARKER", "ReportError", "fmt", "pct", "render_page"]
 
 #: The first line after the doctype of every page written here: how a report is recognised.
 MARKER = "<!-- cyclecheck-report"
-
-
-def fmt(value: Any, digits: int = 4) -> str:
-    """Format a number for the page (``None`` becomes an en dash).
-
-    Examples
-    --------
-    >>> fmt(13.5), fmt(1 / 13.5), fmt(12000), fmt(-0.25), fmt(123456.7), fmt(None)
-    ('13.5', '0.07407', '12,000', '−0.25', '123,457', '–')
-    """
-    if value is None:
-        return "–"
-    if isinstance(value, bool):
-        return "yes" if value else "no"
-    if isinstance(value, int):
-        return f"{value:,}".replace("-", "−")
-    x = float(value)
-    if math.isnan(x):
-        return "not a number"
-    if math.isinf(x):
-        return "∞" if x > 0 else "−∞"
-    if x == 0:
-        return "0"
-    if abs(x) >= 10**digits:
-        text = f"{round(x):,}"
-    elif abs(x) < 1e-3:
-        mantissa, exponent = f"{x:.{digits - 1}e}".split("e")
-        mantissa = mantissa.rstrip("0").rstrip(".")
-        sup = str(int(exponent)).translate(str.maketrans("-0123456789", "⁻⁰¹²³⁴⁵⁶⁷⁸⁹"))
-        text = f"{mantissa}×10{sup}"
-    else:
-        text = f"{x:.{digits}g}"
-        if abs(x) >= 1000 and "." not in text and "e" not in text:
-            text = f"{int(text):,}"
-    return text.replace("-", "−")
-
-
-def pct(value: Any) -> str:
-    """A fraction as a percentage with one decimal (``0.8889`` → ``88.9 %``)."""
-    if value is None:
-        return "–"
-    return f"{100 * float(value):.1f}\u202f%".replace("-", "−")
 
 
 def _stylesheet() -> str:
@@ -180,6 +135,7 @@ def render_page(document: Mapping[str, Any]) -> str:
     from . import sections  # imports matplotlib; kept out of the CLI's start-up
 
     check_document(document)
+    document = as_sections(document)
     model = document["model"]
     try:
         body = sections.body(document)
@@ -205,87 +161,3 @@ def render_page(document: Mapping[str, Any]) -> str:
         f"<title>{title}</title>\n<style>\n{_stylesheet()}</style>\n</head>\n"
         f"<body>\n{body}</body>\n</html>\n"
     )
-
-
-def is_report(path: str | os.PathLike[str]) -> bool:
-    """True if the file at ``path`` is a page written by :func:`write_page`."""
-    try:
-        with open(path, "rb") as handle:
-            head = handle.read(512).decode("utf-8", errors="replace")
-    except OSError:
-        return False
-    lines = head.lstrip("\ufeff").splitlines()
-    return len(lines) >= 2 and lines[0] == "<!DOCTYPE html>" and lines[1].startswith(MARKER)
-
-
-def write_page(
-    document: Mapping[str, Any], path: str | os.PathLike[str], force: bool = False
-) -> Path:
-    """Render ``document`` and write it to ``path`` atomically.
-
-    The page is rendered first, written to a temporary file in the same folder, flushed to
-    disk and renamed over ``path``: a reader never sees half a page, and a failure leaves any
-    old file as it was.
-
-    Parameters
-    ----------
-    document
-        The result document.
-    path
-        Where to write the page.
-    force
-        Overwrite a file that is not a cyclecheck report page. Without it, only a missing file
-        or an earlier report is replaced.
-
-    Returns
-    -------
-    pathlib.Path
-        The path written.
-
-    Raises
-    ------
-    ReportError
-        When ``path`` is a folder, or an existing file that is not a report and ``force`` is
-        false, or the document cannot be rendered.
-    """
-    target = Path(path)
-    if target.is_dir():
-        raise ReportError("output", "the path is a folder; give a file name for the page",
-                          target)
-    if target.exists() and not force and not is_report(target):
-        raise ReportError(
-            "output",
-            "the file exists and is not a cyclecheck report page; it is left untouched "
-            "(overwrite it with force=True, on the command line --force)",
-            target,
-        )
-    data = render_page(document).encode("utf-8")
-    folder = target.parent
-    if not folder.is_dir():
-        raise ReportError("output", "the folder of the page does not exist", target)
-    handle, temporary = tempfile.mkstemp(prefix=f".{target.name}.", suffix=".tmp",
-                                         dir=folder)
-    try:
-        with os.fdopen(handle, "wb") as stream:
-            stream.write(data)
-            stream.flush()
-            os.fsync(stream.fileno())
-        os.chmod(temporary, 0o644)
-        os.replace(temporary, target)
-    except BaseException:
-        try:
-            os.unlink(temporary)
-        except FileNotFoundError:
-            pass
-        raise
-    try:  # make the rename itself durable; not possible on every platform
-        folder_handle = os.open(folder, os.O_RDONLY)
-    except OSError:
-        return target
-    try:
-        os.fsync(folder_handle)
-    except OSError:
-        pass
-    finally:
-        os.close(folder_handle)
-    return target

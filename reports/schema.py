@@ -19,8 +19,14 @@ import os
 from collections.abc import Callable, Iterable, Mapping
 from typing import Any
 
-__all__ = ["SCHEMA_VERSION", "ReportError", "check_document"]
+from ..algebra.exceptions import CycleCheckError
 
+__all__ = ["DOCUMENT_KIND", "SCHEMA_VERSION", "ReportError", "as_sections", "check_document"]
+
+#: The value of the key ``document`` that marks a cyclecheck result document.
+DOCUMENT_KIND = "cyclecheck-result"
+#: The version of the documents' shape; the one definition, which the builder of the
+#: documents (``cyclecheck.simulate.result``) writes and this checker requires.
 SCHEMA_VERSION = 1
 
 #: The sections without which a document of each command cannot be reviewed: a check page
@@ -29,11 +35,12 @@ REQUIRED_SECTIONS = {
     "check": ("analysis", "simulation", "comparison"),
     "analyze": ("analysis",),
     "simulate": ("simulation",),
+    "trace": ("verdict",),
 }
 
 
-class ReportError(ValueError):
-    """A result document that cannot be rendered, or a page that may not be written.
+class ReportError(CycleCheckError, ValueError):
+    """A result document that cannot be rendered.
 
     Attributes
     ----------
@@ -311,12 +318,17 @@ MODEL = fields({
 })
 
 
+#: The judgement of an event log (``trace``): checked at the top level of its document.
+JUDGEMENT = {"verdict": one_of("agrees", "disagrees"), "reasons": list_of(scalar),
+             "notes": list_of(scalar)}
+
+
 def _structure(document: Any) -> None:
     """The rules without which nothing can be looked up: kind, version, model, ids."""
     if not isinstance(document, Mapping):
         raise ReportError("document", "a result document is a JSON object (a dict)")
-    if document.get("document") != "cyclecheck-result":
-        raise ReportError("document", "key 'document' must be 'cyclecheck-result'")
+    if document.get("document") != DOCUMENT_KIND:
+        raise ReportError("document", f"key 'document' must be '{DOCUMENT_KIND}'")
     version = document.get("schema_version")
     if not isinstance(version, int) or isinstance(version, bool):
         raise ReportError("schema_version", f"must be the number {SCHEMA_VERSION} (the version "
@@ -352,6 +364,29 @@ def _structure(document: Any) -> None:
             raise ReportError(f"model.places[{i}].tokens", "must be an integer >= 0")
 
 
+#: Keys of every document that belong to none of its sections.
+COMMON_KEYS = frozenset({"document", "schema_version", "command", "command_line", "created",
+                         "versions", "model", "settings", "figures"})
+#: The section that holds the results of the flat documents ``analyze`` and ``simulate`` print.
+FLAT_SECTION = {"analyze": "analysis", "simulate": "simulation"}
+
+
+def as_sections(document: Mapping[str, Any]) -> Mapping[str, Any]:
+    """The document with its results in sections, as a ``check`` document has them.
+
+    ``analyze --json`` and ``simulate --json`` print their results at the top level (the keys
+    of DESIGN.md); the page and the checks read them under ``analysis`` or ``simulation``.
+    Any other document is returned as it is.
+    """
+    command = document.get("command")
+    key = FLAT_SECTION.get(command) if isinstance(command, str) else None
+    if key is None or document.get(key) is not None or "cycle_time" not in document:
+        return document
+    view = {k: v for k, v in document.items() if k in COMMON_KEYS}
+    view[key] = {k: v for k, v in document.items() if k not in COMMON_KEYS}
+    return view
+
+
 def check_document(document: Any) -> None:
     """Check a result document against the rules of schema version 1.
 
@@ -378,6 +413,7 @@ def check_document(document: Any) -> None:
     is missing: a document of `check` has the sections analysis, simulation and comparison
     """
     _structure(document)
+    document = as_sections(document)
     model = document["model"]
     MODEL(model, "model")
     for key in ("analysis", "simulation", "comparison", "figures", "settings", "versions"):
@@ -390,7 +426,11 @@ def check_document(document: Any) -> None:
             names = ", ".join(needed[:-1]) + (" and " if len(needed) > 1 else "") + needed[-1]
             raise ReportError(key, f"is missing: a document of `{command}` has the "
                                    f"section{'s' if len(needed) > 1 else ''} {names}")
-    if not document.get("analysis") and not document.get("simulation"):
+    if command == "trace":
+        for key, check in JUDGEMENT.items():
+            if document.get(key) is not None:
+                check(document[key], key)
+    elif not document.get("analysis") and not document.get("simulation"):
         raise ReportError("analysis", "a document needs an analysis or a simulation section")
     ids = {str(t["id"]) for t in model["transitions"]}
     for key, check in _sections(ids, len(model["places"])).items():

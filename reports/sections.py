@@ -10,73 +10,20 @@ cautions.
 
 from __future__ import annotations
 
-import html
 import re
 from collections.abc import Mapping, Sequence
 from typing import Any
 
-from . import figures
+from . import figures, notes
 from .layout import PlaceSpec, choose_critical_places, layout_graph
-from .page import ReportError, fmt, pct
+from .markup import MAX_ROWS, Figures, e, fmt, get, pct, section, table, time_unit, with_unit
+from .schema import ReportError
 
-__all__ = ["MAX_ROWS", "Figures", "body", "section", "table"]
-
-#: Longest table on the page; longer lists are cut and the page says so.
-MAX_ROWS = 40
-#: Tables with more columns than this are set tighter (class ``wide`` in style.css).
-WIDE = 6
-
-e = html.escape
-
-
-def _get(mapping: Any, key: str) -> Any:
-    return mapping.get(key) if isinstance(mapping, Mapping) else None
-
-
-def _unit(document: Mapping[str, Any]) -> str:
-    return str(document["model"].get("time_unit") or "")
-
-
-def _with_unit(value: str, unit: str) -> str:
-    return f'{value}<span class="unit">\u00a0{e(unit)}</span>' if unit else value
-
-
-class Figures:
-    """Numbers the figures of one page in order."""
-
-    def __init__(self) -> None:
-        self.count = 0
-
-    def wrap(self, name: str, title: str, svg: str, caption: str) -> str:
-        self.count += 1
-        return (f'<figure id="figure-{name}">\n'
-                f'<p class="figure-title"><span class="figure-number">Figure {self.count}</span>'
-                f" {title}</p>\n{svg}<figcaption>{caption}</figcaption>\n</figure>\n")
-
-
-def section(name: str, heading: str, content: str) -> str:
-    return (f'<section id="{name}" aria-labelledby="{name}-heading">\n'
-            f'<h2 id="{name}-heading">{heading}</h2>\n{content}</section>\n')
-
-
-def table(headers: Sequence[str], rows: Sequence[Sequence[str]], numeric: set[int],
-           caption: str = "", compact: bool = False) -> str:
-    def cell(tag: str, i: int, text: str) -> str:
-        return f'<{tag} class="num">{text}</{tag}>' if i in numeric else f"<{tag}>{text}</{tag}>"
-
-    head = "".join(cell("th", i, h) for i, h in enumerate(headers))
-    lines = ["<tr>" + "".join(cell("td", i, c) for i, c in enumerate(row)) + "</tr>"
-             for row in rows]
-    cap = f"<caption>{caption}</caption>" if caption else ""
-    # Many columns: a smaller type and headers that wrap, so that the table fits the page.
-    css = ' class="compact"' if compact else ' class="wide"' if len(headers) > WIDE else ""
-    return (f'<div class="table-wrap"><table{css}>{cap}<thead><tr>{head}</tr></thead>\n'
-            "<tbody>\n" + "\n".join(lines) + "\n</tbody></table></div>\n")
-
+__all__ = ["body"]
 
 def _masthead(document: Mapping[str, Any]) -> str:
     model = document["model"]
-    command = _get(document, "command")
+    command = get(document, "command")
     kind = {"check": "simulation checked against max-plus theory",
             "analyze": "max-plus analysis", "simulate": "simulation"}.get(
         command, f"result of “{e(str(command))}”" if command else "result")
@@ -101,7 +48,7 @@ def _masthead(document: Mapping[str, Any]) -> str:
 
 
 def _verdict(document: Mapping[str, Any]) -> str:
-    comparison = _get(document, "comparison")
+    comparison = get(document, "comparison")
     if comparison:
         verdict = comparison.get("verdict")
         if verdict not in ("agrees", "disagrees"):
@@ -135,9 +82,9 @@ def _circuit_text(circuit: Sequence[str]) -> str:
 
 
 def _numbers(document: Mapping[str, Any]) -> str:
-    unit = _unit(document)
-    analysis = _get(document, "analysis") or {}
-    simulation = _get(document, "simulation") or {}
+    unit = time_unit(document)
+    analysis = get(document, "analysis") or {}
+    simulation = get(document, "simulation") or {}
     main = analysis or simulation
     exact = bool(analysis.get("exact"))
     lam = main.get("cycle_time")
@@ -145,9 +92,9 @@ def _numbers(document: Mapping[str, Any]) -> str:
     per = f"per\u00a0{e(unit)}" if unit else "per time unit"
     cards = []
     sub = ("exact: the max-plus eigenvalue" if exact else
-           f"95 % interval {fmt(ci[0])} – {_with_unit(fmt(ci[1]), unit)}")
+           f"95 % interval {fmt(ci[0])} – {with_unit(fmt(ci[1]), unit)}")
     cards.append(('Cycle time <span class="sym">λ</span>',
-                  _with_unit(fmt(lam, 6 if exact else 4), unit), sub))
+                  with_unit(fmt(lam, 6 if exact else 4), unit), sub))
     cards.append(("Throughput", f'{fmt(main.get("throughput"))}<span class="unit">\u00a0{per}'
                   "</span>",
                   "firings of each transition (1/λ)"))
@@ -155,7 +102,7 @@ def _numbers(document: Mapping[str, Any]) -> str:
     bounds = analysis.get("bounds")
     if bounds:
         cards.append(('Bounds on <span class="sym">λ</span>', f"{fmt(bounds.get('lower'))} – "
-                      f"{_with_unit(fmt(bounds.get('upper')), unit)}",
+                      f"{with_unit(fmt(bounds.get('upper')), unit)}",
                       "lower: cycle time of the mean durations"))
     if circuits:
         more = f"; {len(circuits)} critical circuits in all" if len(circuits) > 1 else ""
@@ -214,25 +161,25 @@ def _critical_places(analysis: Mapping[str, Any], circuits: list[Any], specs: li
     given = analysis.get("critical_places")
     if given is not None:
         return {int(i) for i in given}
-    return choose_critical_places(circuits, specs, _get(analysis.get("slack"), "places"))
+    return choose_critical_places(circuits, specs, get(analysis.get("slack"), "places"))
 
 
 def _graph(document: Mapping[str, Any], figs: Figures) -> str:
     model = document["model"]
-    analysis = _get(document, "analysis") or {}
+    analysis = get(document, "analysis") or {}
     ids = [str(t["id"]) for t in model["transitions"]]
     if not ids:
         return ""
     specs = _places_spec(model)
     circuits = [[str(t) for t in c] for c in analysis.get("critical_circuits") or []]
-    slack = _get(analysis.get("slack"), "places")
-    criticality = _get(analysis.get("criticality"), "places")
+    slack = get(analysis.get("slack"), "places")
+    criticality = get(analysis.get("criticality"), "places")
     drawing = layout_graph(ids, specs, circuits, _critical_places(analysis, circuits, specs))
     random = bool(model.get("is_random")) and criticality
-    unit = _unit(document)
+    unit = time_unit(document)
     if random:
         text = {i: pct(v) for i, v in enumerate(criticality) if v is not None}
-        definition = _get(analysis.get("criticality"), "definition")
+        definition = get(analysis.get("criticality"), "definition")
         legend = ("the criticality of the place (" + (e(definition) if definition else
                   "share of firings it was on the deciding path") + ")")
     elif slack:
@@ -273,8 +220,8 @@ def _cut(items: list[Any], key: Any, what: str, total: int) -> tuple[list[Any], 
 
 def _elements(document: Mapping[str, Any]) -> str:
     model = document["model"]
-    analysis = _get(document, "analysis") or {}
-    simulation = _get(document, "simulation") or {}
+    analysis = get(document, "analysis") or {}
+    simulation = get(document, "simulation") or {}
     circuits = analysis.get("critical_circuits") or []
     critical_t = {str(t) for c in circuits for t in c}
     specs = _places_spec(model)
@@ -282,7 +229,7 @@ def _elements(document: Mapping[str, Any]) -> str:
     critical_p = _critical_places(analysis, circuits, specs)
     crit = analysis.get("criticality") or simulation.get("criticality") or {}
     util_a, util_s = analysis.get("utilization") or {}, simulation.get("utilization") or {}
-    start = _get(_get(document.get("figures"), "schedule"), "start") or {}
+    start = get(get(document.get("figures"), "schedule"), "start") or {}
     by_t = analysis.get("cycle_time_by_transition") or {}
     t_slack = slack.get("transitions") or {}
     t_crit = crit.get("transitions") or {}
@@ -316,7 +263,7 @@ def _elements(document: Mapping[str, Any]) -> str:
     shown, note = _cut(items, t_key, "transitions",
                        int(model.get("n_transitions") or len(items)))
     rows = [[f(t) for _, _, f in columns] for _, t in shown]
-    unit = _unit(document)
+    unit = time_unit(document)
     in_unit = f"; times in {e(unit)}" if unit else ""
     out = table([c[0] for c in columns], rows, {i for i, c in enumerate(columns) if c[1]},
                  f"Transitions (◆ on a critical circuit{in_unit})") + note
@@ -357,13 +304,13 @@ def _elements(document: Mapping[str, Any]) -> str:
 
 def _is_random(document: Mapping[str, Any]) -> bool:
     """Random durations: the model says so, or the analysis is not exact."""
-    analysis = _get(document, "analysis") or {}
+    analysis = get(document, "analysis") or {}
     return bool(document["model"].get("is_random")) or analysis.get("exact") is False
 
 
 def _no_schedule(document: Mapping[str, Any]) -> str:
     """Why the document has no periodic schedule, in plain words ("" when it does not say)."""
-    analysis = _get(document, "analysis") or {}
+    analysis = get(document, "analysis") or {}
     if _is_random(document):
         why = ("the durations are random, so the firings never settle into a periodic regime: "
                "each cycle takes a different time, and no start times repeat from one cycle "
@@ -379,11 +326,11 @@ def _no_schedule(document: Mapping[str, Any]) -> str:
 
 
 def schedule(document: Mapping[str, Any], figs: Figures) -> str:
-    data = _get(document.get("figures"), "schedule")
-    unit = _unit(document)
+    data = get(document.get("figures"), "schedule")
+    unit = time_unit(document)
     if not data:
         return _no_schedule(document)
-    analysis = _get(document, "analysis") or {}
+    analysis = get(document, "analysis") or {}
     critical = {str(t) for c in analysis.get("critical_circuits") or [] for t in c}
     start = {str(k): float(v) for k, v in data["start"].items()}
     duration = {str(k): float(v) for k, v in data["duration"].items()}
@@ -394,7 +341,7 @@ def schedule(document: Mapping[str, Any], figs: Figures) -> str:
         cut = (f" Only the first {figures.MAX_GANTT_ROWS} of {fmt(len(start))} transitions "
                "(by start time) are drawn.")
     caption = ("Each transition starts at its periodic start time (from the eigenvector) plus a "
-               f"whole number of cycles of λ = {_with_unit(fmt(lam, 6), unit)}; bars show the "
+               f"whole number of cycles of λ = {with_unit(fmt(lam, 6), unit)}; bars show the "
                "firing duration, hatched bars the transitions on a critical circuit, dashed "
                f"lines the cycle boundaries.{cut}")
     return section("schedule", "Periodic schedule",
@@ -402,16 +349,16 @@ def schedule(document: Mapping[str, Any], figs: Figures) -> str:
 
 
 def transient(document: Mapping[str, Any], figs: Figures) -> str:
-    data = _get(document.get("figures"), "transient")
+    data = get(document.get("figures"), "transient")
     if not data or not data.get("recursion"):
         return ""
-    unit = _unit(document)
+    unit = time_unit(document)
     recursion = {str(k): v for k, v in data["recursion"].items()}
     simulation = {str(k): v for k, v in (data.get("simulation") or {}).items()}
     svg = figures.transient_figure(data["k"], recursion, simulation or None, unit)
     lines = ("Lines: the max-plus recursion; rings: the SimPy simulation. When every ring sits "
              "on its line, both engines computed the same times.")
-    analysis = _get(document, "analysis") or {}
+    analysis = get(document, "analysis") or {}
     if _is_random(document):
         # No periodic regime here; the transient of the mean durations is not this model's.
         caption = ("x(k) − kλ against the firing number k, on the random draws of one "
@@ -440,29 +387,34 @@ def _count(n: int, word: str) -> str:
 
 
 def variability(document: Mapping[str, Any], figs: Figures) -> str:
-    fig_data = _get(document, "figures") or {}
+    fig_data = get(document, "figures") or {}
     running = fig_data.get("running_estimate")
     replications = fig_data.get("replication_estimates")
-    analysis = _get(document, "analysis") or {}
-    simulation = _get(document, "simulation") or {}
+    analysis = get(document, "analysis") or {}
+    simulation = get(document, "simulation") or {}
     bounds = analysis.get("bounds")
     if not (running or replications or bounds):
         return ""
-    unit = _unit(document)
+    unit = time_unit(document)
     out = ""
     if bounds:
-        out += (f'<p>Bounds on the cycle time: lower {_with_unit(fmt(bounds.get("lower")), unit)}'
+        out += (f'<p>Bounds on the cycle time: lower {with_unit(fmt(bounds.get("lower")), unit)}'
                 " (the cycle time of the mean durations: variability can only slow the graph "
-                f'down), upper {_with_unit(fmt(bounds.get("upper")), unit)}.</p>\n')
-    settings = _get(document, "settings") or {}
+                f'down), upper {with_unit(fmt(bounds.get("upper")), unit)}.</p>\n')
+    settings = get(document, "settings") or {}
     if running:
         svg = figures.running_estimate_figure(running["work"], running["estimate"],
                                               running["low"], running["high"], bounds, unit)
         target = settings.get("precision")
+        reached = analysis.get("relative_half_width")
         caption = "The estimate of λ and its 95 % interval as firings are computed."
         if target:
-            caption += (f" The run stops when the interval's relative half-width reaches the "
-                        f"target {pct(target)}.")
+            caption += (" Replications are added in rounds until the interval's relative "
+                        f"half-width is at most the target {pct(target)}")
+            if isinstance(reached, int | float):
+                met = " (the first round can already do better)" if reached < target else ""
+                caption += f"; it reached {pct(reached)}{met}"
+            caption += "."
         out += figs.wrap("running", "Running estimate", svg, caption)
     if replications:
         intervals = {"recursion": analysis.get("cycle_time_ci"),
@@ -486,7 +438,7 @@ def variability(document: Mapping[str, Any], figs: Figures) -> str:
 
 
 def sample_path(document: Mapping[str, Any]) -> str:
-    data = _get(_get(document, "comparison"), "sample_path")
+    data = get(get(document, "comparison"), "sample_path")
     if not data:
         return ""
     firings = fmt(data.get("firings_compared"))
@@ -516,8 +468,6 @@ def sample_path(document: Mapping[str, Any]) -> str:
 
 def body(document: Mapping[str, Any]) -> str:
     """The ``<body>`` content of the page."""
-    from . import notes
-
     figs = Figures()
     parts = [
         _masthead(document),

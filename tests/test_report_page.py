@@ -21,7 +21,7 @@ from typing import Any
 
 import pytest
 from cyclecheck.reports import layout
-from cyclecheck.reports.page import ReportError, fmt, is_report, render_page, write_page
+from cyclecheck.reports.page import ReportError, fmt, render_page
 from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
 
@@ -420,86 +420,6 @@ def test_no_external_references(fixed_page: str, random_page: str) -> None:
             assert url.startswith("#")
 
 
-def test_marker_recognises_our_pages(tmp_path: Path, fixed_page: str) -> None:
-    """A written page is recognised as ours; other HTML is not."""
-    ours = tmp_path / "ours.html"
-    ours.write_text(fixed_page, encoding="utf-8")
-    other = tmp_path / "other.html"
-    other.write_text("<!DOCTYPE html>\n<html><body>cyclecheck-report</body></html>\n")
-    assert is_report(ours)
-    assert not is_report(other)
-    assert not is_report(tmp_path / "missing.html")
-
-
-# --- writing -------------------------------------------------------------------------------
-
-def _leftovers(folder: Path, keep: set[str]) -> list[str]:
-    return sorted(p.name for p in folder.iterdir() if p.name not in keep)
-
-
-def test_write_new_and_replace_report(tmp_path: Path) -> None:
-    """A new page is written; a previous report is replaced without `force`."""
-    target = tmp_path / "review.html"
-    assert write_page(fixed_document(), target) == target
-    first = target.read_text(encoding="utf-8")
-    assert first == render_page(fixed_document())
-    write_page(random_document(), target)
-    assert target.read_text(encoding="utf-8") == render_page(random_document())
-    assert _leftovers(tmp_path, {"review.html"}) == []
-
-
-def test_refuses_to_overwrite_a_foreign_file(tmp_path: Path) -> None:
-    """An existing file that is not a report is kept; the error names the path and the rule."""
-    target = tmp_path / "notes.html"
-    target.write_text("my own notes\n")
-    with pytest.raises(ReportError) as caught:
-        write_page(fixed_document(), target)
-    message = str(caught.value)
-    assert str(target) in message
-    assert "not a cyclecheck report page" in message and "force" in message
-    assert caught.value.item == "output" and caught.value.path == str(target)
-    assert target.read_text() == "my own notes\n"
-    write_page(fixed_document(), target, force=True)
-    assert is_report(target)
-    assert _leftovers(tmp_path, {"notes.html"}) == []
-
-
-def test_refuses_a_folder(tmp_path: Path) -> None:
-    """A folder as the output path is an error naming it."""
-    with pytest.raises(ReportError, match="is a folder"):
-        write_page(fixed_document(), tmp_path)
-
-
-def test_failed_write_keeps_the_old_page(tmp_path: Path, monkeypatch: pytest.MonkeyPatch
-                                         ) -> None:
-    """An exception while writing leaves the old file as it was and no temporary file."""
-    target = tmp_path / "review.html"
-    write_page(fixed_document(), target)
-    old = target.read_bytes()
-
-    def broken_fsync(fd: int) -> None:
-        raise OSError(28, "No space left on device")
-
-    monkeypatch.setattr(os, "fsync", broken_fsync)
-    with pytest.raises(OSError, match="No space left"):
-        write_page(random_document(), target)
-    assert target.read_bytes() == old
-    assert _leftovers(tmp_path, {"review.html"}) == []
-
-
-def test_failed_rendering_keeps_the_old_page(tmp_path: Path) -> None:
-    """A document that cannot be rendered raises before anything is written."""
-    target = tmp_path / "review.html"
-    write_page(fixed_document(), target)
-    old = target.read_bytes()
-    broken = fixed_document()
-    broken["figures"]["schedule"]["start"] = "not a mapping"
-    with pytest.raises(ReportError):
-        write_page(broken, target)
-    assert target.read_bytes() == old
-    assert _leftovers(tmp_path, {"review.html"}) == []
-
-
 # --- bad documents -------------------------------------------------------------------------
 
 @pytest.mark.parametrize(
@@ -709,12 +629,12 @@ def test_report_command_exits_2_on_a_check_without_its_analysis(tmp_path: Path) 
 
 
 def test_doctests_of_the_page_and_the_rules() -> None:
-    """The examples in the docstrings of reports/page.py and reports/schema.py hold."""
+    """The examples in the docstrings of reports/markup.py and reports/schema.py hold."""
     import doctest
 
-    from cyclecheck.reports import page, schema
+    from cyclecheck.reports import markup, schema
 
-    for module in (page, schema):
+    for module in (markup, schema):
         result = doctest.testmod(module, optionflags=doctest.NORMALIZE_WHITESPACE)
         assert result.attempted > 0 and result.failed == 0, module.__name__
 

@@ -1,0 +1,117 @@
+"""Markup shared by the parts of the review page: number formats, sections, tables, figures.
+
+The leaf of the reports package: every other module of it may import this one, and this one
+imports none of them, so the page, its sections and its notes never import one another in a
+circle. Every string from a document goes through :func:`e` (:func:`html.escape`); numbers go
+through :func:`fmt` and :func:`pct`.
+"""
+
+from __future__ import annotations
+
+import html
+import math
+from collections.abc import Mapping, Sequence
+from typing import Any
+
+__all__ = ["MAX_ROWS", "WIDE", "Figures", "e", "fmt", "get", "pct", "section", "table",
+           "time_unit", "with_unit"]
+
+e = html.escape
+
+#: Longest table on the page; longer lists are cut and the page says so.
+MAX_ROWS = 40
+#: Tables with more columns than this are set tighter (class ``wide`` in style.css).
+WIDE = 6
+
+
+def get(mapping: Any, key: str) -> Any:
+    """``mapping[key]`` when it is a mapping holding it, else None."""
+    return mapping.get(key) if isinstance(mapping, Mapping) else None
+
+
+def time_unit(document: Mapping[str, Any]) -> str:
+    """The model's time unit ("" when none)."""
+    return str(document["model"].get("time_unit") or "")
+
+
+def with_unit(value: str, unit: str) -> str:
+    """A formatted value followed by its unit, set small."""
+    return f'{value}<span class="unit">\u00a0{e(unit)}</span>' if unit else value
+
+
+class Figures:
+    """Numbers the figures of one page in order."""
+
+    def __init__(self) -> None:
+        self.count = 0
+
+    def wrap(self, name: str, title: str, svg: str, caption: str) -> str:
+        self.count += 1
+        return (f'<figure id="figure-{name}">\n'
+                f'<p class="figure-title"><span class="figure-number">Figure {self.count}</span>'
+                f" {title}</p>\n{svg}<figcaption>{caption}</figcaption>\n</figure>\n")
+
+
+def section(name: str, heading: str, content: str) -> str:
+    """A ``<section>`` with an id and its heading."""
+    return (f'<section id="{name}" aria-labelledby="{name}-heading">\n'
+            f'<h2 id="{name}-heading">{heading}</h2>\n{content}</section>\n')
+
+
+def table(headers: Sequence[str], rows: Sequence[Sequence[str]], numeric: set[int],
+           caption: str = "", compact: bool = False) -> str:
+    """An HTML table; the columns whose positions are in ``numeric`` are right-aligned."""
+
+    def cell(tag: str, i: int, text: str) -> str:
+        return f'<{tag} class="num">{text}</{tag}>' if i in numeric else f"<{tag}>{text}</{tag}>"
+
+    head = "".join(cell("th", i, h) for i, h in enumerate(headers))
+    lines = ["<tr>" + "".join(cell("td", i, c) for i, c in enumerate(row)) + "</tr>"
+             for row in rows]
+    cap = f"<caption>{caption}</caption>" if caption else ""
+    # Many columns: a smaller type and headers that wrap, so that the table fits the page.
+    css = ' class="compact"' if compact else ' class="wide"' if len(headers) > WIDE else ""
+    return (f'<div class="table-wrap"><table{css}>{cap}<thead><tr>{head}</tr></thead>\n'
+            "<tbody>\n" + "\n".join(lines) + "\n</tbody></table></div>\n")
+
+
+def fmt(value: Any, digits: int = 4) -> str:
+    """Format a number for the page (``None`` becomes an en dash).
+
+    Examples
+    --------
+    >>> fmt(13.5), fmt(1 / 13.5), fmt(12000), fmt(-0.25), fmt(123456.7), fmt(None)
+    ('13.5', '0.07407', '12,000', '−0.25', '123,457', '–')
+    """
+    if value is None:
+        return "–"
+    if isinstance(value, bool):
+        return "yes" if value else "no"
+    if isinstance(value, int):
+        return f"{value:,}".replace("-", "−")
+    x = float(value)
+    if math.isnan(x):
+        return "not a number"
+    if math.isinf(x):
+        return "∞" if x > 0 else "−∞"
+    if x == 0:
+        return "0"
+    if abs(x) >= 10**digits:
+        text = f"{round(x):,}"
+    elif abs(x) < 1e-3:
+        mantissa, exponent = f"{x:.{digits - 1}e}".split("e")
+        mantissa = mantissa.rstrip("0").rstrip(".")
+        sup = str(int(exponent)).translate(str.maketrans("-0123456789", "⁻⁰¹²³⁴⁵⁶⁷⁸⁹"))
+        text = f"{mantissa}×10{sup}"
+    else:
+        text = f"{x:.{digits}g}"
+        if abs(x) >= 1000 and "." not in text and "e" not in text:
+            text = f"{int(text):,}"
+    return text.replace("-", "−")
+
+
+def pct(value: Any) -> str:
+    """A fraction as a percentage with one decimal (``0.8889`` → ``88.9 %``)."""
+    if value is None:
+        return "–"
+    return f"{100 * float(value):.1f}\u202f%".replace("-", "−")
