@@ -28,13 +28,17 @@ from .recursion import transient as measure_transient
 from .semiring import augmented_matrix
 from .spectral import HowardResult, howard
 
-__all__ = ["TRANSIENT_MAX_PLACES", "TRANSIENT_WORK_LIMIT", "GraphAnalysis", "analyze_graph"]
+__all__ = ["TRANSIENT_MAX_HORIZON", "TRANSIENT_MAX_PLACES", "TRANSIENT_WORK_LIMIT", "GraphAnalysis",
+           "analyze_graph"]
 
 #: Largest ``firings * places`` spent on measuring the transient of the recursion.
 TRANSIENT_WORK_LIMIT = 20_000_000
 #: Above this many places the transient is not measured: setting up the recursion alone costs
 #: seconds there, more than the rest of the analysis.
 TRANSIENT_MAX_PLACES = 50_000
+#: Longest horizon (firings) the transient is looked for in: a regime of period c needs 2c + 2
+#: firings to be seen, and a period of 10^12 firings (a circuit of 10^12 tokens) cannot be run.
+TRANSIENT_MAX_HORIZON = 1_000_000
 
 
 @dataclass(frozen=True)
@@ -129,7 +133,8 @@ def analyze_graph(
     if transient_firings is None:
         transient_firings = int(np.clip(TRANSIENT_WORK_LIMIT // max(graph.n_places, 1), 20, 2000))
     horizon = max(transient_firings, 2 * period + 2)
-    if graph.n_places > TRANSIENT_MAX_PLACES and not explicit:
+    if (graph.n_places > TRANSIENT_MAX_PLACES and not explicit) or (
+            horizon > TRANSIENT_MAX_HORIZON):
         k0, horizon = None, 0
     else:
         k0 = measure_transient(graph, result.cycle_time, period, horizon)

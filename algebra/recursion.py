@@ -54,6 +54,7 @@ __all__ = [
     "RecursionRun",
     "firing_times",
     "transient",
+    "within",
 ]
 
 #: ``source(first, count)`` gives the draws for firings ``first .. first+count−1``, shape
@@ -296,10 +297,25 @@ def firing_times(graph: EventGraph, n_firings: int) -> np.ndarray:
            [12., 15.]])
     """
     K = _count(n_firings, "n_firings")
-    eng = _Engine(graph, 1)
+    eng = _Engine(within(graph, K), 1)
     rec = np.empty((K, eng.n, 1))
     eng.advance(K, eng.d_const, eng.h_const, rec, None)
     return rec[:, eng.inv, 0]
+
+
+def within(graph: EventGraph, n_firings: int) -> EventGraph:
+    """The graph with every marking above ``n_firings`` lowered to ``n_firings``.
+
+    A place with ``m_p >= K`` tokens delivers no token to the first ``K`` firings of its
+    target (their term is 0), so both graphs have the same firing times ``x(1) .. x(K)``; the
+    recursion then keeps ``min(max m_p, K)`` firings of history instead of ``max m_p`` (a place
+    may hold 10^12 tokens).
+    """
+    cap = max(int(n_firings), 1)
+    if graph.n_places == 0 or int(graph.tokens.max()) <= cap:
+        return graph
+    return EventGraph(graph.duration, graph.source, graph.target,
+                      np.minimum(graph.tokens, cap), graph.hold, graph.names)
 
 
 def transient(

@@ -34,7 +34,8 @@ from typing import Any
 
 import numpy as np
 
-from .errors import ModelError, did_you_mean, shown
+from ..algebra.eventgraph import MAX_VALUE
+from .errors import ArgumentError, ModelError, did_you_mean, shown
 from .laws import (
     DISTRIBUTIONS,
     Distribution,
@@ -54,6 +55,7 @@ __all__ = [  # the law classes are re-exported from .laws, where they live
     "BLOCK",
     "CACHE_BYTES",
     "DISTRIBUTIONS",
+    "MAX_CV",
     "Distribution",
     "Empirical",
     "Erlang",
@@ -75,6 +77,9 @@ BLOCK = 8192
 35 µs) costs as much as 2000 exponential draws: at 8192 it adds about 4 ns per draw, where 1024
 added 35 ns and capped the vectorized recursion at about 13 million firings per second. A cached
 block costs 64 KiB per element."""
+
+MAX_CV = 100.0
+"""Largest coefficient of variation of a law given by its mean and cv (gamma, log-normal)."""
 
 CACHE_BYTES = 128 * 2**20
 """Default memory budget of a :class:`Sampler`'s block cache."""
@@ -103,10 +108,17 @@ class _Reader:
             raise self.error(f"{what}must be > 0, got {shown(x)}{hint}")
         if x < 0:
             raise self.error(f"{what}must be >= 0, got {shown(x)}")
+        if x > MAX_VALUE:
+            raise self.error(f"{what}must be at most 1e100 (so that sums of firing times and "
+                             f"their squares stay finite), got {shown(x)}")
         return x + 0.0  # no negative zero
 
     def spread(self, key: str) -> float:
-        return self.number(key, positive=True, hint=" (write a plain number for a fixed value)")
+        x = self.number(key, positive=True, hint=" (write a plain number for a fixed value)")
+        if key == "cv" and x > MAX_CV:
+            raise self.error(f"{self.name} cv must be at most {MAX_CV:g} (above it almost "
+                             f"every draw is 0 and a few are huge), got {shown(x)}")
+        return x
 
 
 def _plain(x: float, error: Any) -> Fixed:
@@ -162,8 +174,9 @@ def _build(name: str, r: _Reader) -> Distribution:
                       f"got {shown(values)}")
     out = []
     for i, v in enumerate(values):
-        if isinstance(v, bool) or not isinstance(v, (int, float)) or not math.isfinite(v) or v < 0:
-            raise r.error(f"empirical values must be numbers >= 0, got {shown(v)} "
+        if (isinstance(v, bool) or not isinstance(v, (int, float)) or not math.isfinite(v)
+                or not 0 <= v <= MAX_VALUE):
+            raise r.error(f"empirical values must be numbers from 0 to 1e100, got {shown(v)} "
                           f"at position {i + 1}")
         out.append(float(v) + 0.0)
     return Empirical(tuple(out))
@@ -234,7 +247,13 @@ def parse_spec(
     missing = [k for k in cls.required if k not in table]
     if missing:
         raise error(f"{name} needs {', '.join(cls.required)}: missing {', '.join(missing)}")
-    return _build(name, _Reader(name, table, error))
+    law = _build(name, _Reader(name, table, error))
+    # Each parameter is within its limits; the mean they make together must be too (a
+    # truncated normal's mean exceeds its mu, a Weibull's its scale).
+    if not law.mean <= MAX_VALUE:
+        raise error(f"the mean of {law.describe()} is {law.mean:.3g}: it must be at most 1e100 "
+                    "(so that sums of firing times and their squares stay finite)")
+    return law
 
 
 def _parse_text(text: str, error: Any) -> Distribution:
@@ -283,7 +302,7 @@ class SpecTable:
 
     Raises
     ------
-    ValueError
+    ArgumentError
         If the arrays disagree or a fixed value is negative, NaN or infinite.
     """
 
@@ -297,16 +316,16 @@ class SpecTable:
     ) -> None:
         vals = np.array(values, dtype=np.float64)
         if vals.ndim != 1:
-            raise ValueError(f"values must be one-dimensional, got shape {vals.shape}")
+            raise ArgumentError(f"values must be one-dimensional, got shape {vals.shape}")
         n = vals.shape[0]
         cods = np.full(n, -1, dtype=np.int32) if codes is None else np.array(codes, np.int32)
         if cods.shape != (n,):
-            raise ValueError(f"codes must have shape ({n},), got {cods.shape}")
+            raise ArgumentError(f"codes must have shape ({n},), got {cods.shape}")
         self.laws = tuple(laws)
         if n and (cods.min() < -1 or cods.max() >= len(self.laws)):
-            raise ValueError(f"codes must lie in -1..{len(self.laws) - 1}")
+            raise ArgumentError(f"codes must lie in -1..{len(self.laws) - 1}")
         if any(not isinstance(law, Distribution) for law in self.laws):
-            raise ValueError("laws must be Distribution instances")
+            raise ArgumentError("laws must be Distribution instances")
         if self.laws:
             has_law = cods >= 0
             vals[has_law] = np.array([law.mean for law in self.laws])[cods[has_law]]
@@ -319,7 +338,7 @@ class SpecTable:
                 cods = np.append(remap, np.int32(-1))[cods]  # code -1 picks the final -1
                 self.laws = tuple(law for law, k in zip(self.laws, keep, strict=True) if k)
         if not np.all(np.isfinite(vals)) or (n and vals.min() < 0):
-            raise ValueError("fixed values must be finite and >= 0")
+            raise ArgumentError("fixed values must be finite and >= 0")
         random_law = np.array([law.is_random for law in self.laws] + [False])
         self._random = np.flatnonzero(random_law[cods])  # code -1 picks the final False
         for a in (vals, cods, self._random):
@@ -412,7 +431,7 @@ TRANSITION, PLACE = 0, 1  # the "kind" of the spawn key
 
 def _count(x: object, name: str, low: int) -> int:
     if isinstance(x, bool) or not isinstance(x, (int, np.integer)) or x < low:
-        raise ValueError(f"{name} must be an integer >= {low}, got {x!r}")
+        raise ArgumentError(f"{name} must be an integer >= {low}, got {x!r}")
     return int(x)
 
 
