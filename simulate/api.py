@@ -1,62 +1,75 @@
-"""The Python API behind each command: everything the CLI can do, a script can do.
+"""The front door: everything the command line can do, a Python script can do.
 
->>> from cyclecheck.simulate.api import analyze_model          # doctest: +SKIP
->>> from cyclecheck.simulate.modelfile import load_model        # doctest: +SKIP
->>> doc = analyze_model(load_model("models/packaging_cell.toml"))   # doctest: +SKIP
->>> doc["cycle_time"]                                            # doctest: +SKIP
-17.375
+Each command of the command line is one function here, with the command's options as keyword
+arguments of the same names, the same checks and messages, and the same result: the document
+that ``--json`` prints. A model is a path (``str`` or path-like) or a model loaded with
+:func:`load_model`. Outputs (``report``, ``save``, ``trace``) get the command line's safety:
+checked before any work, written atomically, never replacing a file of another kind without
+``force``.
+
+>>> from cyclecheck.simulate import analyze
+>>> doc = analyze("models/packaging_cell.toml")
+>>> doc["cycle_time"], doc["critical_circuits"][0]
+(17.375, ['fill', 'cap', 'label', 'pack'])
+
+Errors a user can cause raise :class:`~cyclecheck.simulate.errors.ModelError` (or another
+:class:`~cyclecheck.algebra.exceptions.CycleCheckError`): ``str(error)`` names the file, the
+item and the rule.
 """
 
 from __future__ import annotations
 
 import contextlib
-import json
 import os
-import signal
-import tempfile
-import threading
-from collections.abc import Iterator
+from collections.abc import Iterator, Mapping
 from pathlib import Path
 from typing import Any
 
-from ..algebra.analysis import analyze_graph
-from ..algebra.critical import cyclicity
-from ..algebra.spectral import howard
-from .errors import ModelError
-from .experiment import DEFAULT_PRECISION, estimate_with_executor
-from .modelfile import Model
+from .errors import ArgumentError, ModelError
+from .files import Output, check_outputs, load_document, write_outputs
+from .modelfile import Model, load_model
 from .progress import ProgressLine
-from .result import (
-    DOCUMENT_KIND,
-    analysis_section,
-    estimate_section,
-    model_section,
-    provenance,
-    random_analysis_section,
-    settings_section,
-)
+from .settings import DEFAULT_SEED, RunSettings
 
 __all__ = [
-    "analyze_model",
-    "check_model",
-    "is_our_output",
-    "judge_trace",
-    "load_result",
-    "save_result",
-    "simulate_model",
-    "write_outputs",
+    "analyze",
+    "check",
+    "load_document",
+    "load_model",
+    "report",
+    "save_document",
+    "save_page",
+    "simulate",
+    "trace",
 ]
 
+PathLike = str | os.PathLike[str]
+ModelLike = Model | PathLike
 
 
-#: First line of the event logs ``simulate --trace`` writes.
-TRACE_HEADER = "transition,firing,start,time\n"
+def _model(model: ModelLike) -> Model:
+    """A loaded model from a model or a path."""
+    if isinstance(model, Model):
+        return model
+    if isinstance(model, str | os.PathLike):
+        return load_model(model)
+    raise ArgumentError(f"model must be a path to a model file or a Model from load_model, "
+                        f"got {type(model).__name__}")
+
+
+def _optional_path(value: PathLike | None, option: str) -> Path | None:
+    if value is None:
+        return None
+    if not isinstance(value, str | os.PathLike) or not os.fspath(value):
+        raise ModelError(f"must be a file name, got {value!r}", item=option)
+    return Path(value)
 
 
 @contextlib.contextmanager
-def _progress_line(enabled: bool, target: float | None) -> Iterator[ProgressLine | None]:
+def _progress_line(settings: RunSettings, target: float | None
+                   ) -> Iterator[ProgressLine | None]:
     """A progress line for the duration of a run (None when not wanted), cleared at the end."""
-    line = ProgressLine.when_useful(enabled, target)
+    line = ProgressLine.when_useful(settings.progress, target)
     try:
         yield line
     finally:
@@ -64,223 +77,276 @@ def _progress_line(enabled: bool, target: float | None) -> Iterator[ProgressLine
             line.close()
 
 
-def _base(model: Model, command: str) -> dict[str, Any]:
-    doc = provenance()
-    doc["command"] = command
-    doc["model"] = model_section(model)
-    return doc
+def _outputs(report: PathLike | None = None, save: PathLike | None = None,
+             trace_log: PathLike | None = None, *, force: bool) -> list[Output]:
+    """The outputs a command was asked for, checked before any work."""
+    wanted = [(report, "page", "--report"), (save, "result", "--save"),
+              (trace_log, "log", "--trace")]
+    outputs = [Output(path, kind, option=option) for value, kind, option in wanted
+               if (path := _optional_path(value, option)) is not None]
+    check_outputs(outputs, force=force)
+    return outputs
 
 
-def analyze_model(model: Model, *, seed: int = 1, precision: float | None = None,
-                  replications: int | None = None, firings: int | None = None,
-                  workers: int = 1, scheduler: str | None = None,
-                  progress: bool = False) -> dict[str, Any]:
-    """The max-plus analysis: exact for fixed durations, a Lyapunov estimate for random ones.
-
-    For random durations the recursion is run on replications until the relative half-width of
-    the 95 % interval reaches ``precision`` (default 1 %); the bounds and the criticality of
-    every element come with it, and the exact analysis of the mean durations is kept under
-    ``mean_value_analysis``.
-    """
-    doc = _base(model, "analyze")
-    exact = analyze_graph(model.graph())
-    if not model.is_random:
-        doc.update(analysis_section(model, exact))
-        doc["settings"] = settings_section(seed, None, None, None)
+def _finish(doc: dict[str, Any], outputs: list[Output], *, force: bool,
+            log_text: str | None = None) -> dict[str, Any]:
+    """Render and write the outputs of a command together (nothing is written on failure)."""
+    if not outputs:
         return doc
-    precision = precision if precision is not None else DEFAULT_PRECISION
-    with _progress_line(progress, precision) as line:
-        est = estimate_with_executor(model, "recursion", seed=seed, precision=precision,
-                                     replications=replications, firings=firings,
-                                     workers=workers, scheduler=scheduler,
-                                     cyclicity_of_mean=exact.cyclicity, progress=line)
-    doc.update(random_analysis_section(model, exact, est))
-    doc["settings"] = settings_section(seed, precision, est.replications, est.firings)
+    from .result import dumps
+
+    for out in outputs:
+        if out.kind == "page":
+            from ..reports import render_page
+
+            out.content = render_page(doc)
+        elif out.kind == "result":
+            out.content = dumps(doc) + "\n"
+        elif out.kind == "log":
+            out.content = log_text or ""
+    write_outputs(outputs, force=force)
     return doc
 
 
-def simulate_model(model: Model, *, seed: int = 1, precision: float | None = None,
-                   replications: int | None = None, firings: int | None = None,
-                   workers: int = 1, scheduler: str | None = None, progress: bool = False,
-                   trace_path: Path | None = None) -> dict[str, Any]:
-    """Estimate the cycle time from the SimPy engine; optionally write replication 0's log."""
-    from .engine import simulate_event_graph
+def analyze(model: ModelLike, *, seed: int | None = DEFAULT_SEED,
+            precision: float | None = None, replications: int | None = None,
+            firings: int | None = None, workers: int | None = None,
+            scheduler: str | None = None, quiet: bool = False,
+            report: PathLike | None = None, save: PathLike | None = None,
+            force: bool = False) -> dict[str, Any]:
+    """Max-plus analysis: exact for fixed durations, a Lyapunov estimate for random ones.
 
-    doc = _base(model, "simulate")
-    if precision is None and model.is_random:
-        precision = DEFAULT_PRECISION
-    graph = model.graph()
+    Parameters
+    ----------
+    model : str, path-like or Model
+        The model file, or a model from :func:`load_model`.
+    seed, precision, replications, firings, workers, scheduler, quiet
+        As the command line's options (``cyclecheck analyze --help``); ``seed=None`` draws a
+        fresh seed and records it, ``workers=None`` uses every core. For random durations the
+        recursion runs replications until the relative half-width of the 95 % interval is at
+        most ``precision`` (default 0.01).
+    report, save : str or path-like, optional
+        Also write the review page (HTML) / the result document (JSON) there.
+    force : bool
+        Replace files that are not earlier outputs of the same kind.
+
+    Returns
+    -------
+    dict
+        The document ``cyclecheck analyze --json`` prints (keys in the README).
+
+    Examples
+    --------
+    >>> doc = analyze("models/packaging_cell.toml")
+    >>> doc["cycle_time"], doc["cyclicity"]
+    (17.375, 4)
+    """
+    from .experiment import DEFAULT_PRECISION, estimate_with_executor
+    from .result import analysis_document
+
+    settings = RunSettings.resolve(seed=seed, precision=precision, replications=replications,
+                                   firings=firings, workers=workers, scheduler=scheduler,
+                                   progress=not quiet)
+    outputs = _outputs(report, save, force=force)
+    loaded = _model(model)
+    from ..algebra.analysis import analyze_graph
+
+    exact = analyze_graph(loaded.graph())
+    est = None
+    if loaded.is_random:
+        settings = settings.replace(precision=settings.precision or DEFAULT_PRECISION)
+        with _progress_line(settings, settings.precision) as line:
+            est = estimate_with_executor(loaded, "recursion", settings,
+                                         cyclicity_of_mean=exact.cyclicity, progress=line)
+    doc = analysis_document(loaded, exact, est, settings)
+    return _finish(doc, outputs, force=force)
+
+
+def simulate(model: ModelLike, *, seed: int | None = DEFAULT_SEED,
+             precision: float | None = None, replications: int | None = None,
+             firings: int | None = None, workers: int | None = None,
+             scheduler: str | None = None, quiet: bool = False, trace: PathLike | None = None,
+             report: PathLike | None = None, save: PathLike | None = None,
+             force: bool = False) -> dict[str, Any]:
+    """Estimate the cycle time from the SimPy engine.
+
+    Parameters are those of :func:`analyze`, and ``trace``: write the event log of
+    replication 0 there (CSV ``transition,firing,start,time``).
+
+    Returns
+    -------
+    dict
+        The document ``cyclecheck simulate --json`` prints.
+
+    Examples
+    --------
+    >>> doc = simulate("models/packaging_cell.toml", firings=200)
+    >>> doc["cycle_time"]
+    17.375
+    """
+    from ..algebra.critical import cyclicity
+    from ..algebra.spectral import howard
+    from .engine import simulate_event_graph
+    from .experiment import DEFAULT_PRECISION, estimate_with_executor
+    from .result import simulation_document
+
+    settings = RunSettings.resolve(seed=seed, precision=precision, replications=replications,
+                                   firings=firings, workers=workers, scheduler=scheduler,
+                                   progress=not quiet)
+    outputs = _outputs(report, save, trace, force=force)
+    loaded = _model(model)
+    if settings.precision is None and loaded.is_random:
+        settings = settings.replace(precision=DEFAULT_PRECISION)
+    graph = loaded.graph()
     mean_value = howard(graph)
     period = cyclicity(graph, mean_value)
-    with _progress_line(progress, precision) as line:
-        est = estimate_with_executor(model, "simpy", seed=seed, precision=precision,
-                                     replications=replications, firings=firings,
-                                     workers=workers, scheduler=scheduler,
-                                     cyclicity_of_mean=period,
+    with _progress_line(settings, settings.precision) as line:
+        est = estimate_with_executor(loaded, "simpy", settings, cyclicity_of_mean=period,
                                      progress=line)
-    doc.update(estimate_section(model, est, mean_value.max_cycle_time))
-    if not model.is_random:
-        # Fixed durations: the simulation is exact up to the transient; the structure is known.
-        doc["bounds"] = None
-        doc["cyclicity"] = period
-        doc["critical_circuits"] = [[model.transition_ids[t] for t in c.transitions]
-                                    for c in mean_value.circuits]
-    doc["settings"] = settings_section(seed, precision, est.replications, est.firings)
-    if trace_path is not None:
-        run = simulate_event_graph(model.graph(), model.sampler(seed, 0), n_firings=est.firings)
-        _atomic_write(trace_path, run.event_log().to_csv(index=False))
-        doc["trace"] = str(trace_path)
-    return doc
+    doc = simulation_document(loaded, est, mean_value, period, settings)
+    log_text = None
+    if trace is not None:
+        run = simulate_event_graph(graph, loaded.sampler(settings.seed, 0),
+                                   n_firings=est.firings)
+        log_text = run.event_log().to_csv(index=False)
+        doc["trace"] = os.fspath(trace)
+    return _finish(doc, outputs, force=force, log_text=log_text)
 
 
-def check_model(model: Model, *, seed: int = 1, precision: float | None = None,
-                replications: int | None = None, firings: int | None = None,
-                workers: int = 1, scheduler: str | None = None,
-                progress: bool = False) -> dict[str, Any]:
-    """Both engines side by side, the sample-path comparison and the verdict."""
+def check(model: ModelLike, *, seed: int | None = DEFAULT_SEED,
+          precision: float | None = None, replications: int | None = None,
+          firings: int | None = None, workers: int | None = None,
+          scheduler: str | None = None, quiet: bool = False, report: PathLike | None = None,
+          save: PathLike | None = None, force: bool = False) -> dict[str, Any]:
+    """Both engines side by side, the sample-path comparison and the verdict.
+
+    Parameters are those of :func:`analyze`. For a random model the recursion runs to
+    ``precision`` and the SimPy engine runs replications of its own (``replications``, 5 by
+    default), on the same draws as the recursion recomputes them.
+
+    Returns
+    -------
+    dict
+        The document ``cyclecheck check --json`` prints: ``analysis``, ``simulation``,
+        ``comparison`` (``verdict``: ``"agrees"`` or ``"disagrees"``, ``reasons``), ``figures``,
+        ``settings``.
+
+    Examples
+    --------
+    >>> doc = check("models/packaging_cell.toml")
+    >>> doc["comparison"]["verdict"]
+    'agrees'
+    """
     from .compare import compare
+    from .result import comparison_document
 
-    doc = _base(model, "check")
-    with _progress_line(progress, precision) as line:
-        doc.update(compare(model, seed=seed, precision=precision, replications=replications,
-                           firings=firings, workers=workers, scheduler=scheduler,
-                           progress=line))
-    return doc
+    settings = RunSettings.resolve(seed=seed, precision=precision, replications=replications,
+                                   firings=firings, workers=workers, scheduler=scheduler,
+                                   progress=not quiet)
+    outputs = _outputs(report, save, force=force)
+    loaded = _model(model)
+    with _progress_line(settings, settings.precision) as line:
+        doc = comparison_document(loaded, compare(loaded, settings, progress=line))
+    return _finish(doc, outputs, force=force)
 
 
-def judge_trace(model: Model, log: Path, *, tolerance: float = 1e-6) -> dict[str, Any]:
-    """Judge an event log of any simulator against the model's equations."""
+def trace(model: ModelLike, log: PathLike, *, tolerance: float = 1e-6,
+          report: PathLike | None = None, save: PathLike | None = None,
+          force: bool = False) -> dict[str, Any]:
+    """Judge an event log of any simulator against the model.
+
+    Parameters
+    ----------
+    model : str, path-like or Model
+    log : str or path-like
+        The event log (CSV ``transition,firing,time[,start]``).
+    tolerance : float
+        Relative tolerance on firing times.
+    report, save, force
+        As for :func:`analyze`.
+
+    Returns
+    -------
+    dict
+        The judgement document ``cyclecheck trace --json`` prints (``verdict``, ``reasons``).
+
+    Examples
+    --------
+    >>> import os, tempfile
+    >>> log = os.path.join(tempfile.mkdtemp(), "cell.csv")
+    >>> _ = simulate("models/packaging_cell.toml", firings=50, trace=log)
+    >>> trace("models/packaging_cell.toml", log)["verdict"]
+    'agrees'
+    """
+    from .result import trace_document
     from .tracecheck import judge_log
 
-    doc = _base(model, "trace")
-    doc.update(judge_log(model, log, tolerance=tolerance))
-    return doc
+    outputs = _outputs(report, save, force=force)
+    loaded = _model(model)
+    doc = trace_document(loaded, judge_log(loaded, log, tolerance=tolerance))
+    return _finish(doc, outputs, force=force)
 
 
-def check_output_path(path: Path) -> None:
-    """Fail before any work when an output cannot be written there (missing folder, a folder)."""
-    path = Path(path)
-    if path.is_dir():
-        raise ModelError("is a folder; give a file name for the output", file=path)
-    if not (path.parent if str(path.parent) else Path(".")).is_dir():
-        raise ModelError(f"cannot be written: the folder {path.parent} does not exist", file=path)
+def report(result: Mapping[str, Any] | PathLike, output: PathLike, *,
+           force: bool = False) -> Path:
+    """Render a result document (or a saved one, by its path) as a review page at ``output``.
 
+    Returns
+    -------
+    pathlib.Path
+        The page written.
 
-def _atomic_write(path: Path, text: str) -> None:
-    """Write through a temporary file in the same folder and rename: never a half-written file.
-
-    The file gets the permissions of a plain ``open`` (0666 less the umask), not the private
-    0600 of a temporary file; errors name the output, not the temporary file.
+    Examples
+    --------
+    >>> import os, tempfile
+    >>> folder = tempfile.mkdtemp()
+    >>> saved = os.path.join(folder, "cell.json")
+    >>> _ = analyze("models/packaging_cell.toml", save=saved)
+    >>> report(saved, os.path.join(folder, "cell.html")).name
+    'cell.html'
     """
-    path = Path(path)
-    check_output_path(path)
-    umask = os.umask(0)
-    os.umask(umask)
-    try:
-        fd, tmp = tempfile.mkstemp(prefix=f".{path.name}.", suffix=".tmp", dir=path.parent)
-    except OSError as err:
-        raise ModelError(f"cannot be written: {err.strerror}", file=path) from None
-    try:
-        with os.fdopen(fd, "w", encoding="utf-8") as fh:
-            fh.write(text)
-            fh.flush()
-            os.fsync(fh.fileno())
-        os.chmod(tmp, 0o666 & ~umask)
-        os.replace(tmp, path)
-    except BaseException as err:
-        Path(tmp).unlink(missing_ok=True)
-        if isinstance(err, OSError):
-            raise ModelError(f"cannot be written: {err.strerror or err}", file=path) from None
-        raise
+    doc = dict(result) if isinstance(result, Mapping) else load_document(result)
+    save_page(doc, output, force=force)
+    return Path(output)
 
 
-def save_result(doc: dict[str, Any], path: Path, *, force: bool = False) -> None:
-    """Keep a result document as JSON (atomically)."""
+def save_document(document: Mapping[str, Any], path: PathLike, *,
+                  force: bool = False) -> Path:
+    """Keep a result document as JSON, atomically; refuses to replace a file of another kind
+    without ``force``.
+
+    Examples
+    --------
+    >>> import os, tempfile
+    >>> path = os.path.join(tempfile.mkdtemp(), "cell.json")
+    >>> saved = save_document(analyze("models/packaging_cell.toml"), path)
+    >>> load_document(saved)["cycle_time"]
+    17.375
+    """
     from .result import dumps
 
-    if path.exists() and not force and not is_our_output(path):
-        raise ModelError("exists and is not an earlier cyclecheck result; use --force",
-                         file=path)
-    _atomic_write(path, dumps(doc) + "\n")
+    target = _optional_path(path, "--save")
+    assert target is not None
+    write_outputs([Output(target, "result", dumps(dict(document)) + "\n", "--save")],
+                  force=force)
+    return target
 
 
-@contextlib.contextmanager
-def _interrupt_deferred() -> Iterator[None]:
-    """Hold Ctrl-C back while files are renamed into place: the outputs of a run appear
-    together or not at all. A Ctrl-C that came meanwhile is dropped: by then the run is
-    complete and written."""
-    if threading.current_thread() is not threading.main_thread():
-        yield
-        return
-    caught: list[object] = []
-    previous = signal.signal(signal.SIGINT, lambda *args: caught.append(args))
-    try:
-        yield
-    finally:
-        signal.signal(signal.SIGINT, previous)
+def save_page(document: Mapping[str, Any], path: PathLike, *, force: bool = False) -> Path:
+    """Render a result document as a review page and write it, atomically; refuses to replace
+    a file of another kind without ``force``.
 
-
-def write_outputs(doc: dict[str, Any], *, report_path: Path | None = None,
-                  save_path: Path | None = None, force: bool = False) -> None:
-    """Write the result document and the review page, both or neither.
-
-    The page is rendered and the JSON text made first (the slow, interruptible part, which
-    writes nothing); then both files are written atomically with Ctrl-C held back.
+    Examples
+    --------
+    >>> import os, tempfile
+    >>> path = os.path.join(tempfile.mkdtemp(), "cell.html")
+    >>> save_page(analyze("models/packaging_cell.toml"), path).suffix
+    '.html'
     """
-    from ..reports.page import render_page
-    from .result import dumps
+    from ..reports import render_page
 
-    for path in (report_path, save_path):
-        if path is not None and path.exists() and not force and not is_our_output(path):
-            raise ModelError("exists and is not an earlier cyclecheck output; use --force",
-                             file=path)
-    page = render_page(doc) if report_path is not None else None
-    text = dumps(doc) + "\n" if save_path is not None else None
-    if report_path is not None and save_path is not None and (
-            Path(report_path).resolve() == Path(save_path).resolve()):
-        raise ModelError("is given for both --report and --save; give two files",
-                         file=report_path)
-    with _interrupt_deferred():
-        if save_path is not None and text is not None:
-            _atomic_write(save_path, text)
-        if report_path is not None and page is not None:
-            _atomic_write(report_path, page)
-
-
-def load_result(path: Path) -> dict[str, Any]:
-    """Read a saved result document, checking that it is one."""
-    try:
-        text = Path(path).read_text(encoding="utf-8")
-    except UnicodeDecodeError:
-        raise ModelError("is not a result document (not UTF-8 text)", file=path) from None
-    except OSError as err:
-        raise ModelError(f"cannot be read: {err.strerror or err}", file=path) from None
-    try:
-        doc = json.loads(text)
-    except json.JSONDecodeError as err:
-        raise ModelError(f"is not valid JSON: {err.msg}", file=path,
-                         item=f"line {err.lineno}, column {err.colno}") from None
-    if not isinstance(doc, dict) or doc.get("document") != DOCUMENT_KIND:
-        raise ModelError(f'is not a cyclecheck result document (no "document": '
-                         f'"{DOCUMENT_KIND}")', file=path)
-    if doc.get("command") != "check":
-        raise ModelError("holds the result of "
-                         f"`cyclecheck {doc.get('command')}`; pages are made from `check` "
-                         "results (cyclecheck check MODEL --save RESULT.json)", file=path)
-    return doc
-
-
-def is_our_output(path: Path) -> bool:
-    """True when ``path`` is a result document, a review page or an event log written by
-    cyclecheck (a log is known by the exact header ``simulate --trace`` writes)."""
-    from ..reports.page import is_report
-
-    try:
-        if is_report(path):
-            return True
-        with open(path, "rb") as fh:
-            head = fh.read(4096)
-    except OSError:
-        return False
-    return (f'"document": "{DOCUMENT_KIND}"'.encode() in head
-            or head.startswith(TRACE_HEADER.encode()))
+    target = _optional_path(path, "--report")
+    assert target is not None
+    check_outputs([Output(target, "page", option="--report")], force=force)
+    write_outputs([Output(target, "page", render_page(document), "--report")], force=force)
+    return target

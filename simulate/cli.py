@@ -1,4 +1,9 @@
-"""The ``cyclecheck`` command line: parse options, call the library, print.
+"""The ``cyclecheck`` command line: parse options, call the front door, print.
+
+Every command is one function of :mod:`cyclecheck.simulate.api` with the same options; this
+module only turns words into arguments and documents into text. Options are checked by the
+front door (:class:`~cyclecheck.simulate.settings.RunSettings`, the output checks of
+:mod:`~cyclecheck.simulate.files`), so a script and the command line get the same messages.
 
 Exit codes: 0 done (and, for ``check`` and ``trace``, the model agrees with the theory); 1 the
 simulation or the event log disagrees with the theory; 2 bad input or usage, with one paragraph
@@ -38,61 +43,67 @@ def _guarded(func: F) -> F:
 
     @functools.wraps(func)
     def wrapper(*args: Any, **kwargs: Any) -> Any:
-        from ..algebra.exceptions import MaxPlusError
-        from ..reports.page import ReportError
-        from .errors import ModelError
+        from ..algebra.exceptions import CycleCheckError, MaxPlusError
 
         try:
             return func(*args, **kwargs)
-        except (ModelError, ReportError) as err:
-            _fail(str(err))
         except MaxPlusError as err:
             _fail(f"the model breaks a rule of the algebra: {err}")
+        except CycleCheckError as err:
+            _fail(str(err))
         except KeyboardInterrupt:
             click.echo("cyclecheck: interrupted; no output file was written or changed", err=True)
             sys.exit(EXIT_INTERRUPTED)
         except MemoryError:
             _fail("the run needs more memory than this machine has: ask for fewer firings or "
-                  "replications")
+                  "replications (--firings, --replications)")
         except OSError as err:
             _fail(f"{err.filename or ''}: {err.strerror or err}".lstrip(": "))
 
     return wrapper  # type: ignore[return-value]
 
 
-def _precision(ctx: click.Context, param: click.Parameter, value: float | None) -> float | None:
-    if value is not None and not 0.0 < value < 1.0:
-        raise click.BadParameter(
-            f"must lie strictly between 0 and 1 (a relative half-width such as 0.01), got {value}"
-        )
-    return value
+def _options(*options: Callable[[F], F]) -> Callable[[F], F]:
+    def apply(func: F) -> F:
+        for option in reversed(options):
+            func = option(func)
+        return func
+
+    return apply
 
 
-def _common(func: F) -> F:
-    """Options shared by the commands that run the model."""
-    options = [
-        click.option("--json", "as_json", is_flag=True,
-                     help="Print the result document as JSON on stdout, nothing else."),
-        click.option("--seed", type=click.IntRange(min=0), default=1, show_default=True,
-                     help="Seed of the random draws (numpy SeedSequence)."),
-        click.option("--precision", type=float, default=None, callback=_precision,
-                     help="Target relative half-width of the 95 % confidence interval; the "
-                          "run adds work until it is reached. [default: 0.01 for random models]"),
-        click.option("--replications", type=click.IntRange(min=2), default=None,
-                     help="Independent replications per round (default 10)."),
-        click.option("--firings", type=click.IntRange(min=10), default=None,
-                     help="Firings of every transition per replication [default: chosen "
-                          "from the model size]."),
-        click.option("--workers", type=click.IntRange(min=1), default=1, show_default=True,
-                     help="Local worker processes for replications."),
-        click.option("--scheduler", default=None, metavar="ADDRESS",
-                     help="Address of a Dask scheduler to run replications on."),
-        click.option("--quiet", is_flag=True, help="No progress on stderr."),
-    ]
-    for option in reversed(options):
-        func = option(func)
-    return func
+JSON = click.option("--json", "as_json", is_flag=True,
+                    help="Print the result document as JSON on stdout, nothing else.")
+QUIET = click.option("--quiet", is_flag=True, help="No progress line and no notes on stderr.")
+FORCE = click.option("--force", is_flag=True,
+                     help="Replace output files that are not earlier outputs of the same kind.")
+REPORT = click.option("--report", "report_path", type=click.Path(path_type=Path), default=None,
+                      metavar="PAGE", help="Also write the review page (self-contained HTML).")
+SAVE = click.option("--save", "save_path", type=click.Path(path_type=Path), default=None,
+                    metavar="RESULT", help="Also keep the result document (JSON), for "
+                                           "`cyclecheck report`.")
 
+#: Options of every command that runs a model (checked by RunSettings.resolve).
+RUN = _options(
+    JSON,
+    click.option("--seed", type=int, default=1, show_default=True,
+                 help="Seed of the random draws (numpy SeedSequence), an integer >= 0."),
+    click.option("--precision", type=float, default=None,
+                 help="Target relative half-width of the 95 % confidence interval, in (0, 1); "
+                      "replications are added until it is reached.  [default: 0.01 for "
+                      "random models]"),
+    click.option("--replications", type=int, default=None,
+                 help="Replications per round of the estimate (>= 2).  [default: 10; the "
+                      "SimPy side of `check`: 5]"),
+    click.option("--firings", type=int, default=None,
+                 help="Firings of every transition per replication (>= 10).  [default: chosen "
+                      "from the model size]"),
+    click.option("--workers", type=int, default=None,
+                 help="Local worker processes for replications.  [default: all cores]"),
+    click.option("--scheduler", default=None, metavar="ADDRESS",
+                 help="Address of a Dask scheduler (tcp://host:port) to run replications on."),
+    QUIET,
+)
 
 EXIT_CODES = ("Exit codes: 0 done, or the model agrees with the theory; 1 the simulation or "
               "the log disagrees; 2 bad input or usage; 130 interrupted.")
@@ -106,105 +117,108 @@ def main() -> None:
 
     Cycle time (the max-plus eigenvalue), critical circuit, periodic schedule and slack for
     fixed durations; the Lyapunov exponent with confidence intervals for random ones; a SimPy
-    simulation run beside the max-plus recursion on the same random draws; review pages.
+    simulation run beside the max-plus recursion on the same random draws; the judgement of
+    event logs from any simulator; review pages.
     """
+
+
+def _run_options(seed: int, precision: float | None, replications: int | None,
+                 firings: int | None, workers: int | None, scheduler: str | None,
+                 quiet: bool, as_json: bool) -> dict[str, Any]:
+    return {"seed": seed, "precision": precision, "replications": replications,
+            "firings": firings, "workers": workers, "scheduler": scheduler,
+            "quiet": quiet or as_json}
+
+
+def _wrote(paths: list[Path | None], quiet: bool) -> None:
+    for path in paths:
+        if path is not None and not quiet:
+            click.echo(f"wrote {path}", err=True)
 
 
 @main.command(short_help="Exact cycle time, critical circuit, slack; Lyapunov estimate.",
               epilog=EXIT_CODES)
 @click.argument("model", type=click.Path(path_type=Path))
-@_common
+@RUN
+@REPORT
+@SAVE
+@FORCE
 @_guarded
 def analyze(model: Path, as_json: bool, seed: int, precision: float | None,
-            replications: int | None, firings: int | None, workers: int,
-            scheduler: str | None, quiet: bool) -> None:
+            replications: int | None, firings: int | None, workers: int | None,
+            scheduler: str | None, quiet: bool, report_path: Path | None,
+            save_path: Path | None, force: bool) -> None:
     """Max-plus analysis of MODEL: exact for fixed durations, Lyapunov estimate for random ones."""
-    from . import summary
-    from .api import analyze_model
-    from .modelfile import load_model
+    from . import api, summary
 
-    loaded = load_model(model)
-    doc = analyze_model(loaded, seed=seed, precision=precision, replications=replications,
-                        firings=firings, workers=workers, scheduler=scheduler,
-                        progress=not quiet and not as_json)
+    doc = api.analyze(model, **_run_options(seed, precision, replications, firings, workers,
+                                            scheduler, quiet, as_json),
+                      report=report_path, save=save_path, force=force)
     _emit(doc, as_json, summary.analysis_text)
+    _wrote([report_path, save_path], quiet)
 
 
 @main.command(name="simulate", short_help="Cycle time estimated from the SimPy engine.",
               epilog=EXIT_CODES)
 @click.argument("model", type=click.Path(path_type=Path))
-@_common
+@RUN
 @click.option("--trace", "trace_path", type=click.Path(path_type=Path), default=None,
-              help="Write the event log of the first replication to this CSV file.")
-@click.option("--force", is_flag=True, help="Overwrite an existing trace file.")
+              metavar="LOG", help="Write the event log of replication 0 to this CSV file.")
+@REPORT
+@SAVE
+@FORCE
 @_guarded
 def simulate_cmd(model: Path, as_json: bool, seed: int, precision: float | None,
-                 replications: int | None, firings: int | None, workers: int,
+                 replications: int | None, firings: int | None, workers: int | None,
                  scheduler: str | None, quiet: bool, trace_path: Path | None,
-                 force: bool) -> None:
+                 report_path: Path | None, save_path: Path | None, force: bool) -> None:
     """Run the SimPy model of MODEL and estimate its cycle time from the simulation."""
-    from . import summary
-    from .api import simulate_model
-    from .modelfile import load_model
+    from . import api, summary
 
-    loaded = load_model(model)
-    if trace_path is not None:
-        _refuse_overwrite(trace_path, force)
-    doc = simulate_model(loaded, seed=seed, precision=precision, replications=replications,
-                         firings=firings, workers=workers, scheduler=scheduler,
-                         progress=not quiet and not as_json, trace_path=trace_path)
+    doc = api.simulate(model, **_run_options(seed, precision, replications, firings, workers,
+                                             scheduler, quiet, as_json),
+                       trace=trace_path, report=report_path, save=save_path, force=force)
     _emit(doc, as_json, summary.simulation_text)
+    _wrote([trace_path, report_path, save_path], quiet)
 
 
 @main.command(short_help="SimPy beside the max-plus recursion, with a verdict.",
               epilog=EXIT_CODES)
 @click.argument("model", type=click.Path(path_type=Path))
-@_common
-@click.option("--report", "report_path", type=click.Path(path_type=Path), default=None,
-              help="Write the review page (self-contained HTML) to this file.")
-@click.option("--save", "save_path", type=click.Path(path_type=Path), default=None,
-              help="Keep the result document (JSON) in this file.")
-@click.option("--force", is_flag=True, help="Overwrite files that are not earlier results.")
+@RUN
+@REPORT
+@SAVE
+@FORCE
 @_guarded
 def check(model: Path, as_json: bool, seed: int, precision: float | None,
-          replications: int | None, firings: int | None, workers: int,
+          replications: int | None, firings: int | None, workers: int | None,
           scheduler: str | None, quiet: bool, report_path: Path | None,
           save_path: Path | None, force: bool) -> None:
     """Run the SimPy model and the max-plus recursion side by side and give a verdict.
 
     Exit 0 when the simulation agrees with the theory, 1 when it does not.
     """
-    from . import summary
-    from .api import check_model
-    from .modelfile import load_model
+    from . import api, summary
 
-    loaded = load_model(model)
-    for path in (report_path, save_path):
-        if path is not None:
-            _refuse_overwrite(path, force)
-    doc = check_model(loaded, seed=seed, precision=precision, replications=replications,
-                      firings=firings, workers=workers, scheduler=scheduler,
-                      progress=not quiet and not as_json)
-    _write_outputs(doc, report_path, save_path, force)
+    doc = api.check(model, **_run_options(seed, precision, replications, firings, workers,
+                                          scheduler, quiet, as_json),
+                    report=report_path, save=save_path, force=force)
     _emit(doc, as_json, summary.check_text)
-    for path in (report_path, save_path):
-        if path is not None and not quiet:
-            click.echo(f"wrote {path}", err=True)
+    _wrote([report_path, save_path], quiet)
     sys.exit(EXIT_AGREES if doc["comparison"]["verdict"] == "agrees" else EXIT_DISAGREES)
 
 
 @main.command(short_help="Re-render a saved result document as a page.", epilog=EXIT_CODES)
 @click.argument("result", type=click.Path(path_type=Path))
 @click.option("-o", "--output", "output", type=click.Path(path_type=Path), required=True,
-              help="The page to write (HTML).")
-@click.option("--force", is_flag=True, help="Overwrite a file that is not an earlier report.")
+              metavar="PAGE", help="The page to write (HTML).")
+@FORCE
 @_guarded
 def report(result: Path, output: Path, force: bool) -> None:
-    """Render a saved result document (JSON from `check --save`) as a review page."""
-    from .api import load_result
+    """Render a saved result document (JSON from --save) as a review page."""
+    from . import api
 
-    doc = load_result(result)
-    _write_outputs(doc, output, None, force)
+    api.report(result, output, force=force)
     click.echo(f"wrote {output}", err=True)
 
 
@@ -212,21 +226,26 @@ def report(result: Path, output: Path, force: bool) -> None:
               epilog=EXIT_CODES)
 @click.argument("model", type=click.Path(path_type=Path))
 @click.argument("log", type=click.Path(path_type=Path))
-@click.option("--json", "as_json", is_flag=True, help="Print the judgement as JSON on stdout.")
+@JSON
 @click.option("--tolerance", type=float, default=1e-6, show_default=True,
               help="Relative tolerance on firing times.")
+@REPORT
+@SAVE
+@FORCE
+@QUIET
 @_guarded
-def trace(model: Path, log: Path, as_json: bool, tolerance: float) -> None:
+def trace(model: Path, log: Path, as_json: bool, tolerance: float, report_path: Path | None,
+          save_path: Path | None, force: bool, quiet: bool) -> None:
     """Judge an event log of any simulator (CSV: transition,firing,time[,start]) against MODEL.
 
-    Exit 0 when every firing obeys the model's max-plus equations, 1 when some do not.
+    Exit 0 when the log is consistent with the model, 1 when it is not.
     """
-    from . import summary
-    from .api import judge_trace
-    from .modelfile import load_model
+    from . import api, summary
 
-    doc = judge_trace(load_model(model), log, tolerance=tolerance)
+    doc = api.trace(model, log, tolerance=tolerance, report=report_path, save=save_path,
+                    force=force)
     _emit(doc, as_json, summary.trace_text)
+    _wrote([report_path, save_path], quiet)
     sys.exit(EXIT_AGREES if doc["verdict"] == "agrees" else EXIT_DISAGREES)
 
 
@@ -234,24 +253,6 @@ def _emit(doc: dict[str, Any], as_json: bool, text: Callable[[dict[str, Any]], s
     from .result import dumps
 
     click.echo(dumps(doc) if as_json else text(doc))
-
-
-def _refuse_overwrite(path: Path, force: bool) -> None:
-    """Stop before any work when an output cannot be written, or would overwrite a file the
-    user did not make with cyclecheck."""
-    from .api import check_output_path, is_our_output
-
-    check_output_path(path)
-    if force or not path.exists() or is_our_output(path):
-        return
-    _fail(f"{path}: exists and is not an earlier cyclecheck output; use --force to overwrite it")
-
-
-def _write_outputs(doc: dict[str, Any], report_path: Path | None, save_path: Path | None,
-                   force: bool) -> None:
-    from .api import write_outputs
-
-    write_outputs(doc, report_path=report_path, save_path=save_path, force=force)
 
 
 if __name__ == "__main__":  # pragma: no cover

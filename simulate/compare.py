@@ -19,7 +19,7 @@ from typing import Any
 
 import numpy as np
 
-from ..algebra.analysis import GraphAnalysis, analyze_graph
+from ..algebra.analysis import TRANSIENT_MAX_HORIZON, GraphAnalysis, analyze_graph
 from ..algebra.recursion import firing_times, transient
 from .engine import simulate_event_graph
 from .experiment import (
@@ -31,6 +31,7 @@ from .experiment import (
 )
 from .modelfile import Model
 from .result import analysis_section, estimate_section, random_analysis_section, settings_section
+from .settings import RunSettings
 
 __all__ = ["PATH_RTOL", "compare"]
 
@@ -85,25 +86,27 @@ def _firings(k: int) -> str:
     return f"{k} firing" if k == 1 else f"{k} firings"
 
 
-def _fixed(model: Model, exact: GraphAnalysis, firings: int | None,
-           seed: int) -> dict[str, Any]:
+def _fixed(model: Model, exact: GraphAnalysis, settings: RunSettings) -> dict[str, Any]:
+    firings = settings.firings
     graph = model.graph()
     eta = exact.howard.cycle_time
     c = exact.cyclicity
     settle = exact.transient
     horizon = max(firings or 0, 2000, 4 * c + 4)
-    if settle is None:
+    reachable = horizon <= TRANSIENT_MAX_HORIZON  # a period of 10^12 firings cannot be run
+    if settle is None and reachable:
         # Not measured or not reached by the analysis; the check runs both engines anyway, so
         # it can afford a longer look.
         settle = transient(graph, eta, c, horizon)
     # Long enough to see the regime for c firings, and never shorter than c + 1 firings.
     needed = (settle if settle is not None else horizon) + c + 1
-    K = max(firings or max(200, needed + c + 10), c + 1)
+    K = max(firings or max(200, needed + c + 10), c + 1) if reachable else (firings or 2000)
     run = simulate_event_graph(graph, None, n_firings=K)
     rec = firing_times(graph, K)
     diff = _path_difference(run.time, rec)
     identical = diff <= PATH_RTOL
-    sim_rate = (run.time[-1] - run.time[-1 - c]) / c
+    span = min(c, K - 1)
+    sim_rate = (run.time[-1] - run.time[-1 - span]) / span
     rate_gap = np.abs(sim_rate - eta) / np.maximum(1.0, np.abs(eta))
     settled = settle is not None and K >= settle + c
     agrees_rate = settled and bool(np.all(rate_gap <= PATH_RTOL))
@@ -129,8 +132,8 @@ def _fixed(model: Model, exact: GraphAnalysis, firings: int | None,
     elif not settled:
         # Not a disagreement: the paths are compared firing by firing all the same.
         reasons.append(f"the periodic regime was not reached within {K} firings, so cycle "
-                       "times were not compared; the sample-path identity stands (give more "
-                       "--firings to compare them too)")
+                       "times were not compared; the sample-path identity stands"
+                       + _why_unsettled(model, K, c))
     else:
         t = int(np.argmax(rate_gap))
         reasons.append(f"simulated cycle time of {ids[t]!r} is {sim_rate[t]:.9g}, the theory "
@@ -160,40 +163,51 @@ def _fixed(model: Model, exact: GraphAnalysis, firings: int | None,
                     # A joint periodic schedule exists only when one cycle time rules them all.
                     "schedule": _schedule_figure(model, exact) if uniform else None,
                     "running_estimate": None, "replication_estimates": None},
-        "settings": settings_section(seed, None, 1, K),
+        "settings": settings_section(settings, None, 1, K),
     }
+
+
+def _why_unsettled(model: Model, firings: int, period: int) -> str:
+    """Why a run of ``firings`` may not show the periodic regime, as the end of a reason."""
+    marking = int(model.tokens.max(initial=0))
+    if marking > firings:
+        return (f" (a place holds {marking:,} tokens, more than the {firings:,} firings of a "
+                "run: until they are used the run shows a transient, not the cycle time)")
+    if 4 * period + 4 > TRANSIENT_MAX_HORIZON:
+        return f" (the regime's period, {period:,} firings, is too long to be run)"
+    return " (give more --firings to compare them too)"
 
 
 def _overlap(a: Estimate, b: Estimate) -> bool:
     return a.interval.low <= b.interval.high and b.interval.low <= a.interval.high
 
 
-def _random(model: Model, exact: GraphAnalysis, *, seed: int, precision: float | None,
-            replications: int | None, firings: int | None, workers: int,
-            scheduler: str | None, progress: Callable[[str, int, np.ndarray], None] | None
-            ) -> dict[str, Any]:
-    precision = DEFAULT_PRECISION if precision is None else precision
-    rec_est = estimate_with_executor(model, "recursion", seed=seed, precision=precision,
-                                     replications=replications, firings=firings,
-                                     workers=workers, scheduler=scheduler,
+def _random(model: Model, exact: GraphAnalysis, settings: RunSettings,
+            progress: Callable[[str, int, np.ndarray], None] | None) -> dict[str, Any]:
+    precision = DEFAULT_PRECISION if settings.precision is None else settings.precision
+    seed, replications = settings.seed, settings.replications
+    rec_est = estimate_with_executor(model, "recursion", settings, precision=precision,
                                      cyclicity_of_mean=exact.cyclicity, progress=progress)
-    sim_firings = min(rec_est.firings, firings or default_firings(model, "simpy"))
+    sim_firings = min(rec_est.firings, settings.firings or default_firings(model, "simpy"))
     # SimPy runs replications of its own, after the recursion's: its estimate is independent,
     # so that the two intervals overlapping means something. The sample paths are compared
     # on those same replications, recomputed by the recursion.
-    sim_est = estimate_with_executor(model, "simpy", seed=seed, precision=None,
+    sim_est = estimate_with_executor(model, "simpy", settings, precision=None,
                                      replications=replications or SIMPY_REPLICATIONS,
-                                     firings=sim_firings, workers=workers, scheduler=scheduler,
-                                     record=True, first_replication=rec_est.replications,
+                                     firings=sim_firings, record=True,
+                                     first_replication=rec_est.replications,
                                      cyclicity_of_mean=exact.cyclicity, progress=progress)
     sim_times = sim_est.batch.times
     rec_batch = run_replications(model, "recursion", seed, sim_est.batch.replications.tolist(),
                                  sim_est.firings, record=True)
     diff = _path_difference(sim_times, rec_batch.times)
     identical = diff <= PATH_RTOL
-    overlap = _overlap(rec_est, sim_est)
     lower = exact.cycle_time
-    above_lower = rec_est.interval.high >= lower * (1 - PATH_RTOL)
+    # A place holding more tokens than a run fires never delivers within it: the runs see a
+    # transient, not the cycle time, and only the sample paths can be compared.
+    reachable = int(model.tokens.max(initial=0)) <= rec_est.firings
+    overlap = _overlap(rec_est, sim_est) or not reachable
+    above_lower = rec_est.interval.high >= lower * (1 - PATH_RTOL) or not reachable
     R, K = sim_times.shape[1], sim_times.shape[0]
     n = model.n_transitions
     reasons = []
@@ -206,6 +220,10 @@ def _random(model: Model, exact: GraphAnalysis, *, seed: int, precision: float |
                        f"difference {diff:.3g}): the simulation model does not implement the "
                        "event graph")
     iv_r, iv_s = rec_est.interval, sim_est.interval
+    if not reachable:
+        reasons.append("cycle times were not compared: " + _why_unsettled(model, rec_est.firings,
+                                                                          1).lstrip(" (;")
+                       .rstrip(")"))
     reasons.append(
         f"Lyapunov estimate {iv_r.estimate:.6g} [{iv_r.low:.6g}, {iv_r.high:.6g}] and SimPy "
         f"estimate {iv_s.estimate:.6g} [{iv_s.low:.6g}, {iv_s.high:.6g}] "
@@ -237,18 +255,16 @@ def _random(model: Model, exact: GraphAnalysis, *, seed: int, precision: float |
             "replication_estimates": {"recursion": analysis["per_replication"],
                                       "simulation": simulation["per_replication"]},
         },
-        "settings": settings_section(seed, precision, rec_est.replications, rec_est.firings),
+        "settings": settings_section(settings, precision, rec_est.replications,
+                                     rec_est.firings),
     }
 
 
-def compare(model: Model, *, seed: int = 1, precision: float | None = None,
-            replications: int | None = None, firings: int | None = None, workers: int = 1,
-            scheduler: str | None = None,
+def compare(model: Model, settings: RunSettings,
             progress: Callable[[str, int, np.ndarray], None] | None = None) -> dict[str, Any]:
     """Run both engines and judge: the ``analysis``, ``simulation``, ``comparison``,
     ``figures`` and ``settings`` sections of a check document."""
     exact = analyze_graph(model.graph())
     if not model.is_random:
-        return _fixed(model, exact, firings, seed)
-    return _random(model, exact, seed=seed, precision=precision, replications=replications,
-                   firings=firings, workers=workers, scheduler=scheduler, progress=progress)
+        return _fixed(model, exact, settings)
+    return _random(model, exact, settings, progress)

@@ -26,16 +26,16 @@ import os
 from collections.abc import Callable, Sequence
 from concurrent.futures import Executor, ProcessPoolExecutor
 from dataclasses import dataclass
-from typing import Any
+from typing import Any, Literal
 
 import numpy as np
 
 from ..algebra.critical import cyclicity
 from ..algebra.eventgraph import strongly_connected_components
-from ..algebra.recursion import RandomRecursion
+from ..algebra.recursion import RandomRecursion, within
 from ..algebra.spectral import howard
 from .durations import BLOCK
-from .errors import ModelError
+from .errors import ArgumentError, ModelError
 from .estimate import (
     Interval,
     batch_means,
@@ -45,6 +45,7 @@ from .estimate import (
     sequential_precision,
 )
 from .modelfile import Model
+from .settings import RunSettings
 
 __all__ = [
     "Batch",
@@ -82,8 +83,10 @@ class Batch:
         Sum of the durations of each transition's firings.
     critical : ndarray, shape (R, m), or None
         Firings of each place's target that the place set (recursion only).
-    clearing : ndarray, shape (R,)
-        ``Z(K)``: when every token of the marking after ``K`` firings is available.
+    clearing : ndarray, shape (R,), or None
+        ``Z(K)``: when every token of the marking after ``K`` firings is available; None when
+        the holds it needs (those of the next ``largest marking`` firings) exceed
+        :data:`CLEARING_DRAWS`.
     times : ndarray, shape (K, R, n), or None
         All firing times, when recorded.
     """
@@ -93,7 +96,7 @@ class Batch:
     x: np.ndarray
     busy: np.ndarray
     critical: np.ndarray | None
-    clearing: np.ndarray
+    clearing: np.ndarray | None
     times: np.ndarray | None
 
     @property
@@ -111,12 +114,23 @@ class Batch:
             np.concatenate([b.replications for b in batches]), first.checkpoints,
             np.concatenate([b.x for b in batches], axis=1),
             np.concatenate([b.busy for b in batches]), crit,
-            np.concatenate([b.clearing for b in batches]), times,
+            None if first.clearing is None else np.concatenate([b.clearing for b in batches]),
+            times,
         )
 
 
 def _checkpoints(firings: int, block: int) -> np.ndarray:
     return np.unique(np.r_[np.arange(0, firings, block), firings])
+
+
+#: Most hold draws fetched for the upper bound Z(K) of one batch (the holds of the next
+#: ``largest marking`` firings of every place and replication).
+CLEARING_DRAWS = 1 << 24
+
+
+def _clearing_fits(graph: Any, marking: int, replications: int) -> bool:
+    """Whether the holds that Z(K) needs fit the budget (a place may hold 10^12 tokens)."""
+    return marking * max(graph.n_places, 1) * replications <= CLEARING_DRAWS
 
 
 def _clearing_time(graph: Any, last: np.ndarray, future_holds: np.ndarray) -> np.ndarray:
@@ -173,7 +187,10 @@ def _recursion_batch(model: Model, seed: int, replications: Sequence[int], firin
                      block: int, record: bool) -> Batch:
     reps = np.asarray(replications, dtype=np.int64)
     samplers = [model.sampler(seed, int(r)) for r in reps]
+    # Markings above the run's firings deliver nothing within it: the same firing times with
+    # a history of at most `firings` firings (a place may hold 10^12 tokens).
     graph = model.graph()
+    marking = max(1, int(model.tokens.max(initial=0)))
 
     def durations(first: int, count: int) -> np.ndarray:
         return np.stack([s.duration_block(first, count) for s in samplers], axis=1)
@@ -181,8 +198,8 @@ def _recursion_batch(model: Model, seed: int, replications: Sequence[int], firin
     def holds(first: int, count: int) -> np.ndarray:
         return np.stack([s.hold_block(first, count) for s in samplers], axis=1)
 
-    rec = RandomRecursion(graph, _AlignedDraws(durations), _AlignedDraws(holds), len(reps),
-                          criticality=True)
+    rec = RandomRecursion(within(graph, firings), _AlignedDraws(durations),
+                          _AlignedDraws(holds), len(reps), criticality=True)
     depth = min(firings, max(1, int(graph.tokens.max(initial=0))))
     points = _checkpoints(firings, block)
     x = np.zeros((points.size, len(reps), graph.n_transitions))
@@ -199,8 +216,8 @@ def _recursion_batch(model: Model, seed: int, replications: Sequence[int], firin
             recorded.append(out.times)
         x[i] = rec.state()
     kept = np.concatenate(recorded)
-    marking = max(1, int(graph.tokens.max(initial=0)))
-    clearing = _clearing_time(graph, kept[-depth:], holds(firings + 1, marking))
+    clearing = (_clearing_time(graph, kept[-depth:], holds(firings + 1, marking))
+                if _clearing_fits(graph, marking, len(reps)) else None)
     return Batch(reps, points, x, busy, critical, clearing, kept if record else None)
 
 
@@ -214,17 +231,18 @@ def _simpy_batch(model: Model, seed: int, replications: Sequence[int], firings: 
     n = graph.n_transitions
     x = np.zeros((points.size, len(reps), n))
     busy = np.zeros((len(reps), n))
-    clearing = np.zeros(len(reps))
+    marking = max(1, int(graph.tokens.max(initial=0)))
+    clearing = np.zeros(len(reps)) if _clearing_fits(graph, marking, 1) else None
     times = np.zeros((firings, len(reps), n)) if record else None
-    depth = min(firings, max(1, int(graph.tokens.max(initial=0))))
+    depth = min(firings, marking)
     for i, r in enumerate(reps.tolist()):
         sampler = model.sampler(seed, r)
         run = simulate_event_graph(graph, sampler, n_firings=firings)
         x[1:, i] = run.time[points[1:] - 1]
         busy[i] = np.nansum(run.time - run.start, axis=0)
-        future = sampler.hold_block(firings + 1, max(1, int(graph.tokens.max(initial=0))))
-        future = future[:, None, :]
-        clearing[i] = _clearing_time(graph, run.time[-depth:, None, :], future)[0]
+        if clearing is not None:
+            future = sampler.hold_block(firings + 1, marking)[:, None, :]
+            clearing[i] = _clearing_time(graph, run.time[-depth:, None, :], future)[0]
         if times is not None:
             times[:, i] = run.time
     return Batch(reps, points, x, busy, None, clearing, times)
@@ -266,7 +284,7 @@ def run_replications(model: Model, engine: str, seed: int, replications: Sequenc
                      executor: Executor | None = None, chunks: int = 1) -> Batch:
     """Run replications on one engine, split into ``chunks`` tasks on ``executor``."""
     if engine not in ENGINES:
-        raise ValueError(f"engine must be one of {ENGINES}, got {engine!r}")
+        raise ArgumentError(f"engine must be one of {ENGINES}, got {engine!r}")
     _check_memory(model, len(replications), firings, record)
     block = block or max(1, firings // 200)
     reps = list(replications)
@@ -280,8 +298,9 @@ def run_replications(model: Model, engine: str, seed: int, replications: Sequenc
 
 def _check_memory(model: Model, replications: int, firings: int, record: bool) -> None:
     per_value = 8 * model.n_transitions * replications
-    # The recursion keeps the last (largest marking + 1) firings of every transition.
-    depth = int(model.tokens.max(initial=0)) + 1
+    # The recursion keeps the last (largest marking + 1) firings of every transition, markings
+    # above the run's firings counting as that many (see algebra.recursion.within).
+    depth = min(int(model.tokens.max(initial=0)), firings) + 1
     need = (per_value * ((firings if record else 400) + depth) + 160 * depth
             + 16 * model.n_places * replications)
     try:
@@ -307,7 +326,7 @@ class Estimate:
     warmup_firings: int
     firings: int
     replications: int
-    upper: Interval
+    upper: Interval | None
     utilization: np.ndarray
     criticality_places: np.ndarray | None
     history: list[tuple[int, float, float, float]]
@@ -467,7 +486,8 @@ def estimate_cycle_time(model: Model, engine: str = "recursion", *, seed: int = 
         crit = None
         if batch.critical is not None:
             crit = batch.critical.sum(axis=0) / (batch.firings * len(batch.replications))
-    upper = replication_interval(batch.clearing / batch.firings)
+    upper = (None if batch.clearing is None
+             else replication_interval(batch.clearing / batch.firings))
     return Estimate(engine, interval, components.spread(growth).mean(axis=0),
                     components.headline(growth), state["warmup"], batch.firings,
                     len(batch.replications), upper, utilization, crit, history, target_met,
@@ -481,22 +501,31 @@ def default_firings(model: Model, engine: str) -> int:
     return int(np.clip(budget // max(model.n_transitions, 1), least, 20_000))
 
 
-def estimate_with_executor(model: Model, engine: str, *, seed: int, precision: float | None,
-                           replications: int | None, firings: int | None, workers: int = 1,
-                           scheduler: str | None = None, record: bool = False,
-                           first_replication: int = 0, cyclicity_of_mean: int | None = None,
+def estimate_with_executor(model: Model, engine: str, settings: RunSettings, *,
+                           precision: float | Literal["settings"] | None = "settings",
+                           replications: int | None = None, firings: int | None = None,
+                           record: bool = False, first_replication: int = 0,
+                           cyclicity_of_mean: int | None = None,
                            progress: Callable[[str, int, np.ndarray], None] | None = None
                            ) -> Estimate:
-    """:func:`estimate_cycle_time` with defaults filled in, on the executor the options ask for."""
-    executor, close = open_executor(workers, scheduler)
+    """:func:`estimate_cycle_time` with the run's settings, on the executor they ask for.
+
+    ``precision``, ``replications`` and ``firings`` override the settings' values for this
+    estimate (``check`` runs the SimPy side to a fixed number of replications); the defaults
+    that depend on the model are filled in here.
+    """
+    executor, close = open_executor(settings.workers, settings.scheduler)
+    firings = firings or settings.firings
     try:
         return estimate_cycle_time(
-            model, engine, seed=seed,
+            model, engine, seed=settings.seed,
             firings=firings or default_firings(model, engine),
-            replications=replications or DEFAULT_REPLICATIONS,
-            precision=precision, executor=executor,
+            replications=replications or settings.replications or DEFAULT_REPLICATIONS,
+            precision=settings.precision if precision == "settings" else precision,
+            executor=executor,
             # A cluster gets one task per replication; a local pool one per worker.
-            chunks=(MAX_REPLICATIONS if scheduler else max(workers, 1)) if executor else 1,
+            chunks=(MAX_REPLICATIONS if settings.scheduler else settings.workers)
+            if executor else 1,
             record=record, first_replication=first_replication,
             cyclicity_of_mean=cyclicity_of_mean, progress=progress,
         )

@@ -66,11 +66,11 @@ from typing import Any
 
 import numpy as np
 
-from ..algebra.eventgraph import EventGraph, check_live
+from ..algebra.eventgraph import MAX_TOKENS, EventGraph, check_live
 from ..algebra.exceptions import NotLive, Unfed
 from .durations import Sampler, SpecTable, parse_spec
-from .errors import ModelError, did_you_mean, shown
-from .tables import MAX_TOKENS, _csv_places, _csv_transitions, _read_file, _Rows, write_csv_model
+from .errors import ArgumentError, ModelError, did_you_mean, shown
+from .tables import _csv_places, _csv_transitions, _read_file, _Rows, write_csv_model
 
 __all__ = ["Model", "load_model", "write_csv_model"]  # write_csv_model lives in .tables
 
@@ -142,7 +142,7 @@ class Model:
         Transition names are the ids. ``values`` must be ``"mean"`` (the only choice so far).
         """
         if values != "mean":
-            raise ValueError(f'values must be "mean", got {values!r}')
+            raise ArgumentError(f'values must be "mean", got {values!r}')
         return self._mean_graph
 
     def sampler(self, seed: int | None, replication: int = 0) -> Sampler:

@@ -1,11 +1,15 @@
-"""The result documents: what a run found, as JSON-ready dictionaries.
+"""The result documents: what a run found, as JSON-ready dictionaries. The one builder.
 
-`analyze` and `simulate` print the keys of DESIGN.md (``cycle_time``, ``cycle_time_ci``,
-``throughput``, ``cycle_time_by_transition``, ``critical_circuits``, ``bounds``,
-``firings_simulated``, ``cyclicity``) and more; `check` wraps both sides, the comparison and the
-figures' data into one versioned document (``schema_version``) that ``cyclecheck report``
-renders again without recomputing. Numbers that JSON cannot hold (infinite slack, the
-throughput of a zero cycle time) become ``null``.
+Every command's document is shaped here, and nowhere else: ``analyze`` and ``simulate`` print
+the keys of DESIGN.md (``cycle_time``, ``cycle_time_ci``, ``throughput``,
+``cycle_time_by_transition``, ``critical_circuits``, ``bounds``, ``firings_simulated``,
+``cyclicity``) and more; ``check`` wraps both sides, the comparison and the figures' data;
+``trace`` holds the judgement of an event log. Each is a versioned document (``document``,
+``schema_version``, defined once in :mod:`cyclecheck.reports.schema`, whose
+:func:`~cyclecheck.reports.schema.check_document` accepts every one of them) with the model, the
+settings of the run and its provenance, so that ``cyclecheck report`` renders it again without
+recomputing. Numbers that JSON cannot hold (infinite slack, the throughput of a zero cycle time)
+become ``null``.
 """
 
 from __future__ import annotations
@@ -23,14 +27,19 @@ from typing import Any
 import numpy as np
 
 from ..algebra.analysis import GraphAnalysis
+from ..algebra.spectral import HowardResult
+from ..reports.schema import DOCUMENT_KIND, SCHEMA_VERSION
 from .estimate import replication_interval
 from .experiment import Estimate
 from .modelfile import Model
+from .settings import RunSettings
 
 __all__ = [
     "DOCUMENT_KIND",
     "SCHEMA_VERSION",
+    "analysis_document",
     "analysis_section",
+    "comparison_document",
     "dumps",
     "estimate_section",
     "finite_or_none",
@@ -38,10 +47,9 @@ __all__ = [
     "provenance",
     "random_analysis_section",
     "settings_section",
+    "simulation_document",
+    "trace_document",
 ]
-
-DOCUMENT_KIND = "cyclecheck-result"
-SCHEMA_VERSION = 1
 
 #: Longest lists written element by element in a document; larger models keep the first ones and
 #: say how many were left out (a review page cannot show 10^5 rows anyway).
@@ -179,10 +187,12 @@ def estimate_section(model: Model, est: Estimate, lower: float) -> dict[str, Any
         "critical_circuits": [],
         "bounds": {
             "lower": lower,
-            "upper": max(lower, est.upper.high),
+            "upper": None if est.upper is None else max(lower, est.upper.high),
             "lower_method": "cycle time of the mean durations (Baccelli et al. 1992, ch. 8)",
             "upper_method": (f"subadditive bound E Z(K)/K at K = {est.firings} firings, upper end "
-                             "of its 95 % interval (Kingman 1973)"),
+                             "of its 95 % interval (Kingman 1973)" if est.upper is not None else
+                             "not computed: a place holds so many tokens that the hold draws "
+                             "the subadditive bound needs would not fit in memory"),
         },
         "firings_simulated": est.firings_simulated,
         "cyclicity": None,
@@ -205,6 +215,11 @@ def estimate_section(model: Model, est: Estimate, lower: float) -> dict[str, Any
             for h in est.history
         ],
     }
+    marking = int(model.tokens.max(initial=0))
+    section["notes"] = ([f"a place holds {marking:,} tokens, more than the {est.firings:,} "
+                         "firings of a replication: until they are used a run shows a "
+                         "transient, so this estimate need not be the cycle time"]
+                        if marking > est.firings else [])
     if crit_p is not None:
         graph = model.graph()
         trans = np.zeros(graph.n_transitions)
@@ -259,11 +274,68 @@ def random_analysis_section(model: Model, exact: GraphAnalysis, est: Estimate) -
     return section
 
 
-def settings_section(seed: int, precision: float | None, replications: int | None,
-                     firings: int | None) -> dict[str, Any]:
-    """The settings of a run, for reproducibility."""
-    return {"seed": seed, "precision": precision, "replications": replications,
-            "firings_per_replication": firings}
+def settings_section(settings: RunSettings, precision: float | None = None,
+                     replications: int | None = None, firings: int | None = None
+                     ) -> dict[str, Any]:
+    """The settings of a run, for reproducibility: the seed and options as resolved, and the
+    precision aimed at, the replications and the firings per replication actually used."""
+    section = settings.to_dict()
+    section.update({"precision": precision, "replications": replications,
+                    "firings_per_replication": firings})
+    return section
+
+
+def _base(model: Model, command: str) -> dict[str, Any]:
+    doc = provenance()
+    doc["command"] = command
+    doc["model"] = model_section(model)
+    return doc
+
+
+def analysis_document(model: Model, exact: GraphAnalysis, est: Estimate | None,
+                      settings: RunSettings) -> dict[str, Any]:
+    """The document of ``analyze``: exact for fixed durations; for random ones the Lyapunov
+    estimate ``est`` over the exact analysis of the mean durations."""
+    doc = _base(model, "analyze")
+    if est is None:
+        doc.update(analysis_section(model, exact))
+        doc["settings"] = settings_section(settings)
+    else:
+        doc.update(random_analysis_section(model, exact, est))
+        doc["settings"] = settings_section(settings, settings.precision, est.replications,
+                                           est.firings)
+    return doc
+
+
+def simulation_document(model: Model, est: Estimate, mean_value: HowardResult, period: int,
+                        settings: RunSettings) -> dict[str, Any]:
+    """The document of ``simulate``: the SimPy engine's estimate; for fixed durations also the
+    structure the theory knows (cyclicity, critical circuits)."""
+    doc = _base(model, "simulate")
+    doc.update(estimate_section(model, est, mean_value.max_cycle_time))
+    if not model.is_random:
+        # Fixed durations: the simulation is exact up to the transient; the structure is known.
+        doc["bounds"] = None
+        doc["cyclicity"] = period
+        doc["critical_circuits"] = [[model.transition_ids[t] for t in c.transitions]
+                                    for c in mean_value.circuits]
+    doc["settings"] = settings_section(settings, settings.precision, est.replications,
+                                       est.firings)
+    return doc
+
+
+def comparison_document(model: Model, sections: Mapping[str, Any]) -> dict[str, Any]:
+    """The document of ``check``: both sides, the comparison, the figures and the settings."""
+    doc = _base(model, "check")
+    doc.update(sections)
+    return doc
+
+
+def trace_document(model: Model, judgement: Mapping[str, Any]) -> dict[str, Any]:
+    """The document of ``trace``: the judgement of an event log against the model."""
+    doc = _base(model, "trace")
+    doc.update(judgement)
+    return doc
 
 
 def _corner_matches(analysis: GraphAnalysis) -> bool | None:

@@ -40,10 +40,14 @@ def _estimate_lines(side: dict[str, Any], unit: str) -> list[str]:
     if bounds:
         lines.append(f"lower bound    {_num(bounds['lower'])}{unit}  (exact: the cycle time of the "
                      "mean durations)")
-        lines.append(f"upper bound    {_num(bounds['upper'])}{unit}  (estimated: E Z(K)/K, "
-                     "subadditive)")
+        if bounds.get("upper") is not None:
+            lines.append(f"upper bound    {_num(bounds['upper'])}{unit}  (estimated: E Z(K)/K, "
+                         "subadditive)")
+        else:
+            lines.append(f"upper bound    {bounds.get('upper_method', 'not computed')}")
     if side.get("firings_simulated"):
         lines.append(f"firings        {side['firings_simulated']:,} simulated")
+    lines += [f"note           {note}" for note in side.get("notes") or []]
     return lines
 
 

@@ -45,15 +45,16 @@ from typing import TYPE_CHECKING, Any
 
 import numpy as np
 
+from ..algebra.eventgraph import MAX_TOKENS, MAX_VALUE
 from .durations import Distribution, SpecTable, parse_spec
-from .errors import ModelError, did_you_mean, shown
+from .errors import ArgumentError, ModelError, did_you_mean, shown
+from .files import read_input
 
 if TYPE_CHECKING:
     import pandas as pd
 
 __all__ = ["write_csv_model"]
 
-MAX_TOKENS = 2**53  # integers up to here survive the float64 of a CSV column exactly
 
 
 # --------------------------------------------------------------------------- files
@@ -61,24 +62,7 @@ MAX_TOKENS = 2**53  # integers up to here survive the float64 of a CSV column ex
 
 def _read_file(path: Path, what: str) -> tuple[bytes, str]:
     """Bytes and text of a file, or a ModelError saying why it cannot be a model file."""
-    if not path.exists():
-        raise ModelError(f"no such file ({what})", file=path)
-    if path.is_dir():
-        raise ModelError(f"is a directory, expected a {what}", file=path)
-    try:
-        data = path.read_bytes()
-    except OSError as exc:
-        raise ModelError(f"cannot be read: {exc.strerror or exc}", file=path) from None
-    if b"\0" in data:
-        raise ModelError(f"is a binary file (it contains NUL bytes), expected a {what}",
-                         file=path)
-    try:
-        text = data.decode("utf-8")
-    except UnicodeDecodeError as exc:
-        line = data[: exc.start].count(b"\n") + 1
-        raise ModelError(f"is not UTF-8 text (byte 0x{data[exc.start]:02x} at line {line}), "
-                         f"expected a {what}; save it as UTF-8", file=path) from None
-    return data, text.removeprefix("\ufeff")
+    return read_input(path, what)
 
 
 # --------------------------------------------------------------------------- rows of one source
@@ -346,10 +330,11 @@ def _require(values: np.ndarray, name: str, fail: Any) -> None:
 
 
 def _finite_nonneg(values: np.ndarray, name: str, shown: Any, fail: Any) -> None:
-    bad = np.flatnonzero(~np.isfinite(values) | (values < 0))
+    bad = np.flatnonzero(~np.isfinite(values) | (values < 0) | (values > MAX_VALUE))
     if bad.size:
         r = int(bad[0])
-        rule = "finite" if not np.isfinite(values[r]) else ">= 0"
+        rule = ("finite" if not np.isfinite(values[r]) else ">= 0" if values[r] < 0 else
+                "at most 1e100 (so that sums of firing times and their squares stay finite)")
         fail(r, f"{name} must be {rule}, got {shown(r)}", bad.size)
 
 
@@ -485,7 +470,7 @@ def write_csv_model(
     n = len(duration)
     names = list(ids) if ids is not None else [f"t{i}" for i in range(n)]
     if len(names) != n:
-        raise ValueError(f"ids must have {n} entries, got {len(names)}")
+        raise ArgumentError(f"ids must have {n} entries, got {len(names)}")
     table = np.array(names, dtype=object)
     t_csv, p_csv = f"{stem}_transitions.csv", f"{stem}_places.csv"
     pd.DataFrame({"id": table, "duration": _cells(duration)}).to_csv(

@@ -66,11 +66,13 @@ def test_dask_cluster_gives_the_same_estimate(model) -> None:
         # The command line sends its replications to the cluster (one task each), not to
         # this process: the scheduler has seen the tasks.
         from cyclecheck.simulate.experiment import estimate_with_executor
+        from cyclecheck.simulate.settings import RunSettings
 
         with distributed.Client(cluster.scheduler_address) as client:
             before = client.run_on_scheduler(_chunks_done)
-            estimate_with_executor(model, "recursion", seed=2, precision=None, replications=4,
-                                   firings=300, scheduler=cluster.scheduler_address)
+            settings = RunSettings.resolve(seed=2, replications=4, firings=300,
+                                           scheduler=cluster.scheduler_address)
+            estimate_with_executor(model, "recursion", settings, precision=None)
             assert client.run_on_scheduler(_chunks_done) >= before + 4
         args = ["analyze", str(MODELS / "closed_line_exponential.toml"), "--json",
                 "--replications", "4", "--firings", "2000", "--seed", "3"]

@@ -15,7 +15,7 @@ from pathlib import Path
 
 import numpy as np
 import pytest
-from cyclecheck.simulate.api import check_model
+from cyclecheck.simulate import check
 from cyclecheck.simulate.experiment import estimate_cycle_time, run_replications
 from cyclecheck.simulate.modelfile import load_model
 
@@ -163,18 +163,30 @@ def test_check_of_a_slowly_settling_model_is_not_a_disagreement(tmp_path: Path) 
     """Identical sample paths agree even when the periodic regime needs thousands of firings;
     with enough firings the cycle times are compared too (each transition its own)."""
     model = _model(tmp_path, SLOW_TRANSIENT)
-    short = check_model(model, firings=300)
+    short = check(model, firings=300)
     assert short["comparison"]["verdict"] == "agrees"
     assert short["comparison"]["cycle_times_compared"] is False
-    long = check_model(model, firings=8000)
+    long = check(model, firings=8000)
     assert long["comparison"]["verdict"] == "agrees"
     assert long["comparison"]["cycle_times_compared"] is True
 
 
 def test_check_with_fewer_firings_than_the_cyclicity(tmp_path: Path) -> None:
-    """`--firings` below the cyclicity is raised to what the comparison needs, no crash."""
-    model = load_model(Path(__file__).resolve().parents[1] / "models" / "packaging_cell.toml")
-    doc = check_model(model, firings=2)  # cyclicity 4
+    """`--firings` below the cyclicity is raised to what the comparison needs, no crash.
+
+    A ring of two unit durations whose return place holds 12 tokens and a hold of 100: its
+    cycle time is (1 + 1 + 100) / 12 = 8.5 and its cyclicity 12, the gcd of the tokens of the
+    only critical circuit (Baccelli et al. 1992, §3.7), above the 10 firings asked for."""
+    path = tmp_path / "ring.toml"
+    path.write_text('[model]\nname = "ring"\n'
+                    '[[transitions]]\nid = "a"\nduration = 1.0\n'
+                    '[[transitions]]\nid = "b"\nduration = 1.0\n'
+                    '[[places]]\nfrom = "a"\nto = "b"\n'
+                    '[[places]]\nfrom = "b"\nto = "a"\ntokens = 12\nhold = 100.0\n'
+                    '[[places]]\nfrom = "a"\nto = "a"\ntokens = 1\n'
+                    '[[places]]\nfrom = "b"\nto = "b"\ntokens = 1\n')
+    doc = check(load_model(path), firings=10)
+    assert doc["analysis"]["cyclicity"] == 12 and doc["analysis"]["cycle_time"] == 8.5
     assert doc["comparison"]["verdict"] == "agrees"
 
 

@@ -40,10 +40,9 @@ import networkx as nx
 import numpy as np
 import pytest
 from cyclecheck.algebra.analysis import analyze_graph
+from cyclecheck.simulate import analyze, check, experiment, simulate
 from cyclecheck.simulate import compare as compare_module
 from cyclecheck.simulate import engine as engine_module
-from cyclecheck.simulate import experiment
-from cyclecheck.simulate.api import analyze_model, check_model, simulate_model
 from cyclecheck.simulate.engine import SimulationRun, simulate_event_graph
 from cyclecheck.simulate.estimate import Interval, replication_interval
 from cyclecheck.simulate.experiment import estimate_cycle_time, run_replications
@@ -208,7 +207,7 @@ def test_analyze_model_on_a_closed_line_reports_buzen(tmp_path: Path) -> None:
     means, customers = CLOSED_LINES["unequal-3x2"]
     model = closed_line(tmp_path, means, customers)
     exact = exact_cycle_time(means, customers)
-    doc = analyze_model(model, seed=5, firings=20_000, replications=10)
+    doc = analyze(model, seed=5, firings=20_000, replications=10)
     iv = doc_interval(doc)
     assert covers(iv, exact), (iv, exact)
     assert doc["throughput"] == pytest.approx(1.0 / iv.estimate, rel=1e-12)
@@ -357,7 +356,7 @@ def test_estimate_respects_the_bounds_on_random_graphs(case: Any) -> None:
                                graph.tokens, holds)
         model = load_model(path)
         assert model.is_random
-        doc = analyze_model(model, seed=31, precision=0.05, replications=10, firings=1000)
+        doc = analyze(model, seed=31, precision=0.05, replications=10, firings=1000)
     lower, upper = doc["bounds"]["lower"], doc["bounds"]["upper"]
     assert lower == pytest.approx(brute_force_cycle_time(model.graph()), rel=1e-9)
     wide_low, wide_high = widened(doc_interval(doc))
@@ -460,7 +459,7 @@ def test_check_agrees_when_only_a_noncritical_element_is_random(tmp_path: Path) 
     path.write_text(text, encoding="utf-8")
     model = load_model(path)
     assert model.is_random
-    doc = check_model(model, seed=1, firings=1000, replications=5)
+    doc = check(model, seed=1, firings=1000, replications=5)
     assert doc["comparison"]["sample_path"]["identical"] is True
     assert doc["comparison"]["verdict"] == "agrees", doc["comparison"]["reasons"]
 
@@ -550,7 +549,7 @@ def test_simulate_document_counts_all_firings(tmp_path: Path,
     model = closed_line(tmp_path, [1.0, 0.5], [1, 1])
     counter = _CountingRuns()
     monkeypatch.setattr(experiment, "run_replications", counter)
-    doc = simulate_model(model, seed=43, precision=0.02, replications=4, firings=1000)
+    doc = simulate(model, seed=43, precision=0.02, replications=4, firings=1000)
     assert doc["firings_simulated"] == counter.firings
     assert doc["replications"] == counter.replications
     assert doc["relative_half_width"] <= 0.02 or doc["precision_met"] is False
@@ -581,7 +580,7 @@ def test_check_agrees_on_the_closed_line_example() -> None:
     intervals that contain 1/X (Buzen 1973), verdict "agrees"; the lower bound is the largest
     circuit ratio of the mean durations (brute force; Baccelli et al. 1992, ch. 2 and 8)."""
     model = load_model(MODELS / "closed_line_exponential.toml")
-    doc = check_model(model, seed=1)
+    doc = check(model, seed=1)
     comparison = doc["comparison"]
     assert comparison["verdict"] == "agrees", comparison["reasons"]
     assert comparison["sample_path"]["identical"] is True
@@ -604,7 +603,7 @@ def test_check_detects_a_broken_simpy_side(monkeypatch: pytest.MonkeyPatch) -> N
     real = engine_module.simulate_event_graph
     monkeypatch.setattr(engine_module, "simulate_event_graph", _perturbed(real))
     monkeypatch.setattr(compare_module, "simulate_event_graph", _perturbed(real))
-    doc = check_model(model, **CHECK_SETTINGS)
+    doc = check(model, **CHECK_SETTINGS)
     comparison = doc["comparison"]
     assert comparison["sample_path"]["identical"] is False
     assert comparison["sample_path"]["max_relative_difference"] > 1e-9
@@ -625,7 +624,7 @@ def test_check_on_a_fixed_model_and_its_broken_twin(monkeypatch: pytest.MonkeyPa
         real = engine_module.simulate_event_graph
         monkeypatch.setattr(engine_module, "simulate_event_graph", _perturbed(real))
         monkeypatch.setattr(compare_module, "simulate_event_graph", _perturbed(real))
-    doc = check_model(model, seed=1)
+    doc = check(model, seed=1)
     comparison = doc["comparison"]
     assert comparison["sample_path"]["identical"] is (not broken)
     assert comparison["verdict"] == ("disagrees" if broken else "agrees")

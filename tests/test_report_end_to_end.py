@@ -17,7 +17,7 @@ from typing import Any
 
 import pytest
 from cyclecheck.reports.page import fmt, render_page
-from cyclecheck.simulate.api import check_model, load_result, save_result
+from cyclecheck.simulate import check, load_document, save_document
 from cyclecheck.simulate.modelfile import load_model
 
 from tests.test_report_browser import (
@@ -49,8 +49,8 @@ def _random_model_with_markup_name(folder: Path) -> Path:
 @pytest.fixture(scope="module")
 def documents(tmp_path_factory: pytest.TempPathFactory) -> dict[str, dict[str, Any]]:
     folder = tmp_path_factory.mktemp("e2e")
-    fixed = check_model(load_model(MODELS / "packaging_cell.toml"))
-    random = check_model(load_model(_random_model_with_markup_name(folder)), precision=0.02,
+    fixed = check(load_model(MODELS / "packaging_cell.toml"))
+    random = check(load_model(_random_model_with_markup_name(folder)), precision=0.02,
                          firings=2000)
     return {"fixed": fixed, "random": random}
 
@@ -73,8 +73,8 @@ def test_page_rerenders_identically_from_saved_json(documents: dict[str, Any], n
                                                     tmp_path: Path) -> None:
     """Save the document, read it back, render: the same bytes."""
     saved = tmp_path / "result.json"
-    save_result(documents[name], saved)
-    assert render_page(load_result(saved)) == render_page(documents[name])
+    save_document(documents[name], saved)
+    assert render_page(load_document(saved)) == render_page(documents[name])
 
 
 @pytest.mark.browser
