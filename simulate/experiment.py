@@ -31,9 +31,11 @@ from typing import Any
 import numpy as np
 
 from ..algebra.critical import cyclicity
-from ..algebra.eventgraph import strongly_connected_components
+from ..algebra.eventgraph import self_loop_servers, strongly_connected_components
+from ..algebra.lineage import PathSums
 from ..algebra.recursion import RandomRecursion
 from ..algebra.spectral import howard
+from ..algebra.stability import components as graph_components
 from .durations import BLOCK
 from .errors import ModelError
 from .estimate import (
@@ -45,6 +47,7 @@ from .estimate import (
     sequential_precision,
 )
 from .modelfile import Model
+from .sensitivity import SensitivityEstimate, from_paths, frontiers, segment_bounds
 
 __all__ = [
     "Batch",
@@ -86,6 +89,11 @@ class Batch:
         ``Z(K)``: when every token of the marking after ``K`` firings is available.
     times : ndarray, shape (K, R, n), or None
         All firing times, when recorded.
+    horizon : ndarray, shape (R, n)
+        Latest completion among each transition's last ``servers`` firings (its last one when
+        it has no self-loop): the span its servers' busy time lies in.
+    paths : PathSums or None
+        Sums along the critical paths, for the derivatives (recursion only).
     """
 
     replications: np.ndarray
@@ -95,6 +103,8 @@ class Batch:
     critical: np.ndarray | None
     clearing: np.ndarray
     times: np.ndarray | None
+    horizon: np.ndarray
+    paths: PathSums | None = None
 
     @property
     def firings(self) -> int:
@@ -107,11 +117,14 @@ class Batch:
         first = batches[0]
         crit = None if first.critical is None else np.concatenate([b.critical for b in batches])
         times = None if first.times is None else np.concatenate([b.times for b in batches], axis=1)
+        paths = (None if any(b.paths is None for b in batches)
+                 else PathSums.concatenate([b.paths for b in batches]))
         return Batch(
             np.concatenate([b.replications for b in batches]), first.checkpoints,
             np.concatenate([b.x for b in batches], axis=1),
             np.concatenate([b.busy for b in batches]), crit,
             np.concatenate([b.clearing for b in batches]), times,
+            np.concatenate([b.horizon for b in batches]), paths,
         )
 
 
@@ -169,8 +182,20 @@ class _AlignedDraws:
         return parts[0] if len(parts) == 1 else np.concatenate(parts)
 
 
+def _horizon(graph: Any, last: np.ndarray) -> np.ndarray:
+    """Per replication and transition, the latest of its last ``servers`` completions, from
+    ``last`` (the last firings, shape (., R, n)): with ``n`` servers taking jobs in turn the
+    last firing need not be the last to end."""
+    servers = np.clip(self_loop_servers(graph), 1, last.shape[0])
+    out = last[-1].copy()
+    for j in range(2, int(servers.max(initial=1)) + 1):
+        cols = np.flatnonzero(servers >= j)
+        out[:, cols] = np.maximum(out[:, cols], last[-j][:, cols])
+    return out
+
+
 def _recursion_batch(model: Model, seed: int, replications: Sequence[int], firings: int,
-                     block: int, record: bool) -> Batch:
+                     block: int, record: bool, lineage: bool = True) -> Batch:
     reps = np.asarray(replications, dtype=np.int64)
     samplers = [model.sampler(seed, int(r)) for r in reps]
     graph = model.graph()
@@ -185,6 +210,8 @@ def _recursion_batch(model: Model, seed: int, replications: Sequence[int], firin
                           criticality=True)
     depth = min(firings, max(1, int(graph.tokens.max(initial=0))))
     points = _checkpoints(firings, block)
+    sweep = (rec.track_lineage(frontiers(graph, graph_components(graph)), segment_bounds(points))
+             if lineage and firings > 0 else None)
     x = np.zeros((points.size, len(reps), graph.n_transitions))
     busy = np.zeros((len(reps), graph.n_transitions))
     critical = np.zeros((len(reps), graph.n_places), dtype=np.int64)
@@ -201,7 +228,9 @@ def _recursion_batch(model: Model, seed: int, replications: Sequence[int], firin
     kept = np.concatenate(recorded)
     marking = max(1, int(graph.tokens.max(initial=0)))
     clearing = _clearing_time(graph, kept[-depth:], holds(firings + 1, marking))
-    return Batch(reps, points, x, busy, critical, clearing, kept if record else None)
+    paths = sweep.finish() if sweep is not None else None
+    return Batch(reps, points, x, busy, critical, clearing, kept if record else None,
+                 _horizon(graph, kept[-depth:]), paths)
 
 
 def _simpy_batch(model: Model, seed: int, replications: Sequence[int], firings: int,
@@ -214,6 +243,7 @@ def _simpy_batch(model: Model, seed: int, replications: Sequence[int], firings: 
     n = graph.n_transitions
     x = np.zeros((points.size, len(reps), n))
     busy = np.zeros((len(reps), n))
+    horizon = np.zeros((len(reps), n))
     clearing = np.zeros(len(reps))
     times = np.zeros((firings, len(reps), n)) if record else None
     depth = min(firings, max(1, int(graph.tokens.max(initial=0))))
@@ -225,15 +255,17 @@ def _simpy_batch(model: Model, seed: int, replications: Sequence[int], firings: 
         future = sampler.hold_block(firings + 1, max(1, int(graph.tokens.max(initial=0))))
         future = future[:, None, :]
         clearing[i] = _clearing_time(graph, run.time[-depth:, None, :], future)[0]
+        horizon[i] = _horizon(graph, run.time[-depth:, None, :])[0]
         if times is not None:
             times[:, i] = run.time
-    return Batch(reps, points, x, busy, None, clearing, times)
+    return Batch(reps, points, x, busy, None, clearing, times, horizon)
 
 
 def _run_chunk(engine: str, model: Model, seed: int, replications: Sequence[int], firings: int,
-               block: int, record: bool) -> Batch:
-    run = _recursion_batch if engine == "recursion" else _simpy_batch
-    return run(model, seed, replications, firings, block, record)
+               block: int, record: bool, lineage: bool = True) -> Batch:
+    if engine == "recursion":
+        return _recursion_batch(model, seed, replications, firings, block, record, lineage)
+    return _simpy_batch(model, seed, replications, firings, block, record)
 
 
 def open_executor(workers: int = 1,
@@ -263,17 +295,20 @@ def open_executor(workers: int = 1,
 
 def run_replications(model: Model, engine: str, seed: int, replications: Sequence[int],
                      firings: int, *, block: int | None = None, record: bool = False,
-                     executor: Executor | None = None, chunks: int = 1) -> Batch:
-    """Run replications on one engine, split into ``chunks`` tasks on ``executor``."""
+                     executor: Executor | None = None, chunks: int = 1,
+                     lineage: bool = True) -> Batch:
+    """Run replications on one engine, split into ``chunks`` tasks on ``executor``;
+    ``lineage``: sum along the critical paths too (recursion only), for the derivatives."""
     if engine not in ENGINES:
         raise ValueError(f"engine must be one of {ENGINES}, got {engine!r}")
     _check_memory(model, len(replications), firings, record)
     block = block or max(1, firings // 200)
     reps = list(replications)
     if executor is None or chunks <= 1 or len(reps) < 2:
-        return _run_chunk(engine, model, seed, reps, firings, block, record)
+        return _run_chunk(engine, model, seed, reps, firings, block, record, lineage)
     parts = [p.tolist() for p in np.array_split(np.asarray(reps), min(chunks, len(reps)))]
-    futures = [executor.submit(_run_chunk, engine, model, seed, p, firings, block, record)
+    futures = [executor.submit(_run_chunk, engine, model, seed, p, firings, block, record,
+                               lineage)
                for p in parts if p]
     return Batch.concatenate([f.result() for f in futures])
 
@@ -308,12 +343,15 @@ class Estimate:
     firings: int
     replications: int
     upper: Interval
-    utilization: np.ndarray
-    criticality_places: np.ndarray | None
+    utilization: np.ndarray  # (n,) per server; NaN for a transition without a self-loop
+    criticality_places: np.ndarray | None  # share of the target's firings each place set
     history: list[tuple[int, float, float, float]]
     target_met: bool | None
     batch: Batch
     warmup_at_limit: bool = False
+    busy_servers: np.ndarray | None = None  # (n,) mean number of firings in progress
+    sensitivity: SensitivityEstimate | None = None
+    seed: int | None = None
 
     @property
     def firings_simulated(self) -> int:
@@ -461,9 +499,13 @@ def estimate_cycle_time(model: Model, engine: str = "recursion", *, seed: int = 
         history = [(c.work, c.estimate, c.low, c.high) for c in seq.history]
     batch = Batch.concatenate(batches)
     growth = _growth(batch, state["warmup"])
-    horizon = batch.x[-1]
+    utilization, busy_servers = utilization_per_server(model.graph(), batch.busy, batch.horizon)
+    sensitivity = None
+    if batch.paths is not None:
+        sensitivity = from_paths(model.graph(), batch.paths,
+                                 frontiers(model.graph(), graph_components(model.graph())), growth,
+                                 state["warmup"])
     with np.errstate(divide="ignore", invalid="ignore"):
-        utilization = np.where(horizon > 0, batch.busy / horizon, 0.0).mean(axis=0)
         crit = None
         if batch.critical is not None:
             crit = batch.critical.sum(axis=0) / (batch.firings * len(batch.replications))
@@ -471,7 +513,24 @@ def estimate_cycle_time(model: Model, engine: str = "recursion", *, seed: int = 
     return Estimate(engine, interval, components.spread(growth).mean(axis=0),
                     components.headline(growth), state["warmup"], batch.firings,
                     len(batch.replications), upper, utilization, crit, history, target_met,
-                    batch, bool(state["at_limit"]))
+                    batch, bool(state["at_limit"]), busy_servers, sensitivity, seed)
+
+
+def utilization_per_server(graph: Any, busy: np.ndarray,
+                           horizon: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """Utilization per server and mean busy servers of every transition, over replications.
+
+    ``busy`` (R, n) is each transition's total firing time, ``horizon`` (R, n) the span it
+    lies in. A transition with a self-loop of ``s`` tokens has ``s`` servers taking jobs in
+    turn: its utilization is mean busy servers / ``s``, at most 1. A transition without a
+    self-loop has no server limit (firings overlap as tokens allow): NaN.
+    """
+    servers = self_loop_servers(graph).astype(np.float64)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        busy_servers = np.where(horizon > 0, busy / horizon, 0.0)
+        per_server = np.minimum(busy_servers / servers, 1.0)  # rounding only
+    per_server = np.where(servers > 0, per_server, np.nan).mean(axis=0)
+    return per_server, busy_servers.mean(axis=0)
 
 
 def default_firings(model: Model, engine: str) -> int:
