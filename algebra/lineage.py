@@ -294,12 +294,19 @@ class LineageSweep:
         reps = np.broadcast_to(np.arange(R), (n, R))
         snap = np.empty((c, n, R, mass.shape[2]))
         add_at = np.add.at
+        levels = self.upper_levels
         for i in range(c - 1, -1, -1):
             base = ((lo + i) % S) * n
             here = mass[base : base + n]
-            # highest level first: a level has all its mass before it passes it on
-            for a, b in reversed(self.upper_levels):
-                add_at(mass, (same[i, a:b], reps[a:b]), here[a:b])
+            # highest level first: a level has all its mass before it passes it on. Mass moves
+            # only down, so the levels above the highest one holding mass are skipped, and so
+            # is any level without mass (most of them: paths are thin).
+            held = np.flatnonzero(here.any(axis=(1, 2)))
+            if held.size and levels and held[-1] >= levels[0][0]:
+                for a, b in reversed(levels):
+                    if a > held[-1] or not here[a:b].any():
+                        continue
+                    add_at(mass, (same[i, a:b], reps[a:b]), here[a:b])
             add_at(mass, (earlier[i], reps), here)
             snap[i] = here
             here[:] = 0.0

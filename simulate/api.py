@@ -23,7 +23,7 @@ from ..algebra.analysis import analyze_graph
 from ..algebra.critical import cyclicity
 from ..algebra.spectral import howard
 from .errors import ModelError
-from .experiment import DEFAULT_PRECISION, estimate_with_executor
+from .experiment import DEFAULT_PRECISION, estimate_with_executor, sensitivity_on_same_draws
 from .modelfile import Model
 from .progress import ProgressLine
 from .result import (
@@ -118,6 +118,7 @@ def simulate_model(model: Model, *, seed: int = 1, precision: float | None = Non
                                      workers=workers, scheduler=scheduler,
                                      cyclicity_of_mean=period,
                                      progress=line)
+    _add_sensitivity(model, est, mean_value)
     doc.update(estimate_section(model, est, mean_value.max_cycle_time))
     if not model.is_random:
         # Fixed durations: the simulation is exact up to the transient; the structure is known.
@@ -131,6 +132,15 @@ def simulate_model(model: Model, *, seed: int = 1, precision: float | None = Non
         _atomic_write(trace_path, run.event_log().to_csv(index=False))
         doc["trace"] = str(trace_path)
     return doc
+
+
+def _add_sensitivity(model: Model, est: Any, mean_value: Any) -> None:
+    """Derivatives for the SimPy engine's estimate: exact for fixed durations, else from the
+    recursion on the same draws."""
+    from .sensitivity import fixed_model_sensitivity
+
+    est.sensitivity = (sensitivity_on_same_draws(model, est) if model.is_random
+                       else fixed_model_sensitivity(model.graph(), mean_value))
 
 
 def check_model(model: Model, *, seed: int = 1, precision: float | None = None,

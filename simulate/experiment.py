@@ -56,6 +56,9 @@ __all__ = [
     "estimate_with_executor",
     "open_executor",
     "run_replications",
+    "sensitivity_on_same_draws",
+    "servers_horizon",
+    "utilization_per_server",
 ]
 
 ENGINES = ("recursion", "simpy")
@@ -182,7 +185,7 @@ class _AlignedDraws:
         return parts[0] if len(parts) == 1 else np.concatenate(parts)
 
 
-def _horizon(graph: Any, last: np.ndarray) -> np.ndarray:
+def servers_horizon(graph: Any, last: np.ndarray) -> np.ndarray:
     """Per replication and transition, the latest of its last ``servers`` completions, from
     ``last`` (the last firings, shape (., R, n)): with ``n`` servers taking jobs in turn the
     last firing need not be the last to end."""
@@ -230,7 +233,7 @@ def _recursion_batch(model: Model, seed: int, replications: Sequence[int], firin
     clearing = _clearing_time(graph, kept[-depth:], holds(firings + 1, marking))
     paths = sweep.finish() if sweep is not None else None
     return Batch(reps, points, x, busy, critical, clearing, kept if record else None,
-                 _horizon(graph, kept[-depth:]), paths)
+                 servers_horizon(graph, kept[-depth:]), paths)
 
 
 def _simpy_batch(model: Model, seed: int, replications: Sequence[int], firings: int,
@@ -255,7 +258,7 @@ def _simpy_batch(model: Model, seed: int, replications: Sequence[int], firings: 
         future = sampler.hold_block(firings + 1, max(1, int(graph.tokens.max(initial=0))))
         future = future[:, None, :]
         clearing[i] = _clearing_time(graph, run.time[-depth:, None, :], future)[0]
-        horizon[i] = _horizon(graph, run.time[-depth:, None, :])[0]
+        horizon[i] = servers_horizon(graph, run.time[-depth:, None, :])[0]
         if times is not None:
             times[:, i] = run.time
     return Batch(reps, points, x, busy, None, clearing, times, horizon)
@@ -561,3 +564,15 @@ def estimate_with_executor(model: Model, engine: str, *, seed: int, precision: f
         )
     finally:
         close()
+
+
+def sensitivity_on_same_draws(model: Model, est: Estimate) -> SensitivityEstimate:
+    """The derivatives for an estimate of the SimPy engine: the recursion run on the same
+    replications (the same draws, so the same firing times), with its warm-up."""
+    batch = run_replications(model, "recursion", est.seed or 0,
+                             est.batch.replications.tolist(), est.firings,
+                             block=int(est.batch.checkpoints[1] - est.batch.checkpoints[0]))
+    graph = model.graph()
+    assert batch.paths is not None
+    return from_paths(graph, batch.paths, frontiers(graph, graph_components(graph)),
+                      _growth(batch, est.warmup_firings), est.warmup_firings)

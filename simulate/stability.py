@@ -55,7 +55,7 @@ def rate_text(rate: float | None, unit: str) -> str:
 
 
 def _entry(model: Model, p: int, rate: float, lam_u: float, lam_t: float, status: str,
-           extra: str = "") -> dict[str, Any]:
+           extra: str = "", average: str = "") -> dict[str, Any]:
     ids = model.transition_ids
     u, t = ids[int(model.source[p])], ids[int(model.target[p])]
     label = model.place_labels[p]
@@ -64,7 +64,7 @@ def _entry(model: Model, p: int, rate: float, lam_u: float, lam_t: float, status
     finite = rate if math.isfinite(rate) else None
     if status == "unstable":
         text = (f"unstable: the buffer {name} grows without bound, by {rate_text(finite, unit)}:"
-                f" {u} fires every {lam_u:.4g}{' ' + unit if unit else ''} on average, {t} "
+                f" {u} fires every {lam_u:.4g}{' ' + unit if unit else ''}{average}, {t} "
                 f"every {lam_t:.4g}{' ' + unit if unit else ''}")
     else:
         text = (f"critical load: the buffer {name} is fed as fast as it is emptied, within the "
@@ -166,5 +166,5 @@ def random_unbounded(model: Model, seed: int, replications: Sequence[int], firin
         status = "unstable" if mean - half > 0.0 else "critical load"
         extra = (f" (own cycle time of the slower side minus the feeding side's: {mean:.3g} "
                  f"± {half:.2g})")
-        out.append(_entry(model, p, rate, lam_u, lam_t, status, extra))
+        out.append(_entry(model, p, rate, lam_u, lam_t, status, extra, " on average"))
     return out
