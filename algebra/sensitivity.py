@@ -112,7 +112,11 @@ def fixed_sensitivity(graph: EventGraph, result: HowardResult,
     inside = np.zeros(0, dtype=np.int64)
     if idx.size:
         src, dst, tok = graph.source[idx], graph.target[idx], graph.tokens[idx]
-        adj = csr_matrix((tok.astype(np.float64), (src, dst)), shape=(n, n))
+        # parallel places: the one with the fewest tokens (a csr matrix would add them up)
+        key = src * n + dst
+        order = np.lexsort((tok, key))
+        keep = order[np.r_[True, key[order][1:] != key[order][:-1]]]
+        adj = csr_matrix((tok[keep].astype(np.float64), (src[keep], dst[keep])), shape=(n, n))
         targets = np.unique(dst)
         # explicit zeros stay edges of a csr matrix built this way: token-free arcs count
         dist = dijkstra(adj, directed=True, indices=targets)
