@@ -98,7 +98,8 @@ class PathSums:
         Look-ahead of the windows in firings; None when the whole run was swept from its last
         firing (exact path sums).
     skipped : str or None
-        Why nothing was summed (the window would not fit in memory); the sums are then zero.
+        Why nothing was summed (the window would not fit in memory); the sums then have no
+        element (last axis of length 0).
     """
 
     segments: np.ndarray
@@ -201,9 +202,6 @@ class LineageSweep:
             raise InvalidArray("segments must be increasing firing numbers, at least two")
         self.segments = seg
         F, J = len(fronts), seg.size - 1
-        shape_t, shape_p = (J, self.n, self.R, F), (J, self.P, self.R, F)
-        self.dur_w, self.dur_m = np.zeros(shape_t), np.zeros(shape_t)
-        self.hold_w, self.hold_m = np.zeros(shape_p), np.zeros(shape_p)
         per_firing = self.R * (self.n * (4 + 8) + self.P * 8)  # record, durations, holds
         capacity = max(1, int(memory or LINEAGE_MEMORY) // per_firing)
         span = int(seg[-1])
@@ -217,6 +215,11 @@ class LineageSweep:
                                 f"{per_firing / 2**20:.1f} MiB each in memory and "
                                 f"{(memory or LINEAGE_MEMORY) / 2**20:.0f} MiB are allowed")
             self.lookahead = max(1, min(look, capacity - 1))
+        # the sums: nothing is allocated for a sweep that will not run
+        size = 0 if self.skipped else 1
+        shape_t, shape_p = (J, self.n * size, self.R, F), (J, self.P * size, self.R, F)
+        self.dur_w, self.dur_m = np.zeros(shape_t), np.zeros(shape_t)
+        self.hold_w, self.hold_m = np.zeros(shape_p), np.zeros(shape_p)
         self.chunks: list[tuple[int, np.ndarray, np.ndarray, np.ndarray | None]] = []
         self.top = 0  # the last firing fed
         self.settled = 0  # firings up to here are summed
@@ -241,6 +244,9 @@ class LineageSweep:
             self._sweep(self.top, self.top)
         F = len(self.fronts)
         J = self.segments.size - 1
+        if self.skipped is not None:
+            empty = np.zeros((self.R, F, J, 0))  # no element: nothing was summed
+            return PathSums(self.segments, empty, empty, self.lookahead, self.skipped)
         weighted = np.zeros((self.R, F, J, self.n + self.m))
         mass = np.zeros_like(weighted)
         # internal transition order -> model order; slot positions -> places (padded slots

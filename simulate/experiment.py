@@ -213,8 +213,11 @@ def _recursion_batch(model: Model, seed: int, replications: Sequence[int], firin
                           criticality=True)
     depth = min(firings, max(1, int(graph.tokens.max(initial=0))))
     points = _checkpoints(firings, block)
-    sweep = (rec.track_lineage(frontiers(graph, graph_components(graph)), segment_bounds(points))
-             if lineage and firings > 0 else None)
+    sweep = None
+    if lineage and firings > 0:
+        fronts = frontiers(graph, graph_components(graph))
+        sweep = rec.track_lineage(fronts, segment_bounds(
+            points, 2 * graph.n_places + graph.n_transitions, len(reps) * len(fronts)))
     x = np.zeros((points.size, len(reps), graph.n_transitions))
     busy = np.zeros((len(reps), graph.n_transitions))
     critical = np.zeros((len(reps), graph.n_places), dtype=np.int64)

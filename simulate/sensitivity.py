@@ -39,6 +39,7 @@ from ..algebra.stability import Components
 __all__ = [
     "MAX_FRONTIERS",
     "MAX_SEGMENTS",
+    "SEGMENT_MEMORY",
     "SensitivityEstimate",
     "bottleneck_index",
     "element_entry",
@@ -114,10 +115,18 @@ def frontiers(graph: EventGraph, parts: Components) -> list[np.ndarray]:
     return [sinks[i] for i in sorted(ranked[:MAX_FRONTIERS])]
 
 
-def segment_bounds(checkpoints: np.ndarray) -> np.ndarray:
-    """At most :data:`MAX_SEGMENTS` + 1 of the checkpoints, the first and last included."""
+#: Bytes the path sums of one batch may take (their segments are reduced to fit).
+SEGMENT_MEMORY = 64 * 2**20
+
+
+def segment_bounds(checkpoints: np.ndarray, elements: int = 1, columns: int = 1) -> np.ndarray:
+    """At most :data:`MAX_SEGMENTS` + 1 of the checkpoints, the first and last included, fewer
+    when the sums of ``elements`` for ``columns`` (replications × frontiers) would exceed
+    :data:`SEGMENT_MEMORY`: with a single segment the warm-up is not cut from the sums."""
+    fit = SEGMENT_MEMORY // max(1, 4 * 8 * elements * columns)  # two sums, kept twice
+    count = int(np.clip(fit, 1, MAX_SEGMENTS))
     picks = np.unique(np.round(np.linspace(0, checkpoints.size - 1,
-                                           MAX_SEGMENTS + 1)).astype(np.int64))
+                                           count + 1)).astype(np.int64))
     return np.asarray(checkpoints)[picks]
 
 
