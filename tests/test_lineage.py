@@ -25,33 +25,17 @@ from hypothesis import given, settings
 from hypothesis import strategies as st
 
 from tests.strategies import live_event_graphs
+from tests.test_recursion import slow_recursion
 
 
 def slow_paths(g: EventGraph, dur: np.ndarray, hold: np.ndarray, frontier: list[int]):
-    """Firing times, the argmax record and, per element, the sums of draws and of visits along
-    the critical paths from the frontier's last firings (weight 1/|frontier| each)."""
+    """Firing times and the argmax record of the plain-Python recursion of test_recursion.py,
+    and, per element, the sums of draws and of visits along the critical paths from the
+    frontier's last firings (weight 1/|frontier| each), walked back here."""
     n, m = g.n_transitions, g.n_places
     K = dur.shape[0]
-    inputs = {t: [p for p in range(m) if int(g.target[p]) == t] for t in range(n)}
-    x: dict[tuple[int, int], float] = {}
     setter: dict[tuple[int, int], int] = {}
-
-    def fire(t: int, k: int) -> float:
-        if (t, k) in x:
-            return x[t, k]
-        best, arg = -math.inf, -1
-        for p in inputs[t]:
-            mp, u = int(g.tokens[p]), int(g.source[p])
-            term = 0.0 if k <= mp else fire(u, k - mp) + hold[k - 1, p]
-            if term > best:
-                best, arg = term, p
-        setter[t, k] = arg
-        x[t, k] = dur[k - 1, t] + best
-        return x[t, k]
-
-    for k in range(1, K + 1):
-        for t in range(n):
-            fire(t, k)
+    times, _ = slow_recursion(g, K, dur, hold, record=setter)
     weighted = np.zeros(n + m)
     visits = np.zeros(n + m)
     for t0 in frontier:
@@ -66,7 +50,6 @@ def slow_paths(g: EventGraph, dur: np.ndarray, hold: np.ndarray, frontier: list[
             weighted[n + p] += hold[k - 1, p] / len(frontier)
             visits[n + p] += 1 / len(frontier)
             t, k = int(g.source[p]), k - mp
-    times = np.array([[x[t, k] for t in range(n)] for k in range(1, K + 1)]).reshape(K, n)
     record = np.array([[setter[t, k] for t in range(n)] for k in range(1, K + 1)]).reshape(K, n)
     return times, record, weighted, visits
 
