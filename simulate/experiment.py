@@ -571,10 +571,10 @@ def estimate_with_executor(model: Model, engine: str, *, seed: int, precision: f
 
 def sensitivity_on_same_draws(model: Model, est: Estimate) -> SensitivityEstimate:
     """The derivatives for an estimate of the SimPy engine: the recursion run on the same
-    replications (the same draws, so the same firing times), with its warm-up."""
-    batch = run_replications(model, "recursion", est.seed or 0,
-                             est.batch.replications.tolist(), est.firings,
-                             block=int(est.batch.checkpoints[1] - est.batch.checkpoints[0]))
+    replications (the same draws, so the same firing times), with its warm-up. These firings
+    are not the estimate's: ``firings_simulated`` does not count them."""
+    batch = _recursion_batch(model, est.seed or 0, est.batch.replications.tolist(), est.firings,
+                             int(est.batch.checkpoints[1] - est.batch.checkpoints[0]), False)
     graph = model.graph()
     assert batch.paths is not None
     return from_paths(graph, batch.paths, frontiers(graph, graph_components(graph)),
