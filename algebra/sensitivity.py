@@ -107,35 +107,67 @@ def fixed_sensitivity(graph: EventGraph, result: HowardResult,
     mask = critical & top[graph.source] & top[graph.target]
     inc_p = np.zeros(m)
     dec_p = np.zeros(m)
+    dec_t = np.zeros(n)
     idx = np.flatnonzero(mask)
     exact = True
     inside = np.zeros(0, dtype=np.int64)
     if idx.size:
-        src, dst, tok = graph.source[idx], graph.target[idx], graph.tokens[idx]
-        # parallel places: the one with the fewest tokens (a csr matrix would add them up)
-        key = src * n + dst
-        order = np.lexsort((tok, key))
-        keep = order[np.r_[True, key[order][1:] != key[order][:-1]]]
-        adj = csr_matrix((tok[keep].astype(np.float64), (src[keep], dst[keep])), shape=(n, n))
-        targets = np.unique(dst)
-        # explicit zeros stay edges of a csr matrix built this way: token-free arcs count
-        dist = dijkstra(adj, directed=True, indices=targets)
-        fewest = tok + dist[np.searchsorted(targets, dst), src]
-        inc_p[idx] = 1.0 / fewest
+        src, dst = graph.source[idx], graph.target[idx]
+        adj = csr_matrix((np.ones(idx.size, dtype=np.int8), (src, dst)), shape=(n, n))
         _, labels = connected_components(adj, directed=True, connection="strong")
-        parts = np.unique(labels[src[labels[src] == labels[dst]]])
-        if parts.size == 1:  # one part holds every critical circuit
-            inside = idx[labels[src] == labels[dst]]
-            if inside.size > ALL_CIRCUITS_LIMIT:
-                exact, inside = False, inside[:0]
+        part = labels[src]  # every critical place lies on a circuit: both ends in one part
+        arcs = np.bincount(part)
+        nodes = np.bincount(labels[np.unique(dst)], minlength=arcs.size)
+        tokens = np.bincount(part, weights=graph.tokens[idx], minlength=arcs.size)
+        # a part with as many places as transitions is a single circuit: all its elements lie
+        # on it, and on no other critical circuit
+        simple = (arcs == nodes)[part]
+        inc_p[idx[simple]] = 1.0 / tokens[part[simple]]
+        for c in np.unique(part[~simple]).tolist():
+            inc_p[idx[part == c]] = 1.0 / _fewest_tokens(graph, idx[part == c])
+        used = np.unique(part)
+        if used.size == 1:  # one part holds every critical circuit
+            if simple.all():
+                dec_p[idx] = inc_p[idx]
+                dec_t[np.unique(dst)] = inc_p[idx[0]]
+            elif idx.size > ALL_CIRCUITS_LIMIT:
+                exact = False
             else:
+                inside = idx
                 dec_p[inside] = _decrease_on_all_circuits(graph, inside)
     inc_t = np.zeros(n)
-    dec_t = np.zeros(n)
     np.maximum.at(inc_t, graph.target[idx], inc_p[idx])
     for t in np.unique(graph.target[inside]).tolist():
         dec_t[t] = _decrease_for_transition(graph, inside, t)
     return FixedSensitivity(dec_t, inc_t, dec_p, inc_p, exact)
+
+
+#: Most entries of one block of distances in :func:`_fewest_tokens`.
+_DISTANCE_BLOCK = 2_000_000
+
+
+def _fewest_tokens(graph: EventGraph, part: np.ndarray) -> np.ndarray:
+    """For each place of a strongly connected critical part: the fewest tokens of a circuit of
+    the part through it, ``m_p + dist(t → u)`` with token counts as lengths."""
+    src, dst, tok = graph.source[part], graph.target[part], graph.tokens[part]
+    nodes, inv = np.unique(np.r_[src, dst], return_inverse=True)
+    s, d = inv[: part.size], inv[part.size :]
+    k = nodes.size
+    # parallel places: the one with the fewest tokens (a csr matrix would add them up)
+    key = s * k + d
+    order = np.lexsort((tok, key))
+    keep = order[np.r_[True, key[order][1:] != key[order][:-1]]]
+    # explicit zeros stay edges of a csr matrix built this way: token-free places count
+    adj = csr_matrix((tok[keep].astype(np.float64), (s[keep], d[keep])), shape=(k, k))
+    out = np.empty(part.size)
+    rows = max(1, _DISTANCE_BLOCK // k)
+    targets = np.unique(d)
+    for a in range(0, targets.size, rows):
+        chunk = targets[a : a + rows]
+        dist = dijkstra(adj, directed=True, indices=chunk)
+        sel = np.flatnonzero(np.isin(d, chunk))
+        out[sel] = tok[sel] + dist[np.searchsorted(chunk, d[sel]), s[sel]]
+    return out
 
 
 def _longest_tokens(arcs: list[tuple[int, int, int]], start: int, end: int) -> float | None:
