@@ -371,3 +371,14 @@ def test_terminal_lists_say_how_many_rows_were_left_out(tmp_path: Path) -> None:
     total = 8 + 8 + 2 * 7
     assert f"and {total - 5} more" in text
     assert "min), to first order" in text
+
+
+def test_docstring_examples() -> None:
+    """The examples of the new algebra modules run and print what they show."""
+    import doctest
+
+    from cyclecheck.algebra import eventgraph, sensitivity, stability
+
+    for module in (eventgraph, sensitivity, stability):
+        result = doctest.testmod(module)
+        assert result.attempted > 0 and result.failed == 0, module.__name__
