@@ -281,6 +281,7 @@ def sensitivity_section(model: Model, sens: SensitivityEstimate, critical_ids: s
     order = np.lexsort((np.arange(d.size), -d))
     entries = [element_entry(model, int(e), sens) for e in order[:MAX_LISTED]]
     out: dict[str, Any] = {"sensitivity": entries, "sensitivity_method": sens.method,
+                           "sensitivity_exact": sens.exact,
                            "sensitivity_omitted": max(0, d.size - MAX_LISTED)}
     best = bottleneck_index(sens, means)
     bottleneck = None

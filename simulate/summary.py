@@ -40,7 +40,7 @@ def _sensitivity_lines(doc: dict[str, Any], unit: str) -> list[str]:
     if not entries:
         method = doc.get("sensitivity_method")
         return [f"sensitivity    {method}"] if method else []
-    exact = doc.get("exact")
+    exact = doc.get("sensitivity_exact", doc.get("exact"))
     lines = []
     b = doc.get("bottleneck")
     if b:
