@@ -44,6 +44,7 @@ __all__ = [
     "EventGraph",
     "check_live",
     "find_token_free_circuit",
+    "self_loop_servers",
     "strongly_connected_components",
 ]
 
@@ -203,6 +204,24 @@ def strongly_connected_components(graph: EventGraph) -> tuple[int, np.ndarray]:
     )
     count, labels = connected_components(adj, directed=True, connection="strong")
     return int(count), labels
+
+
+def self_loop_servers(graph: EventGraph) -> np.ndarray:
+    """Servers of each transition: the fewest tokens on its self-loops, 0 without one.
+
+    A self-loop with ``s`` tokens makes firing ``k`` wait for firing ``k − s``: ``s`` servers
+    taking jobs in turn. Several self-loops: the one with the fewest tokens binds.
+
+    Examples
+    --------
+    >>> g = EventGraph([1.0, 1.0], [0, 0, 1], [0, 1, 1], [2, 0, 1], [0.0, 0.0, 0.0])
+    >>> self_loop_servers(g).tolist()
+    [2, 1]
+    """
+    servers = np.full(graph.n_transitions, np.iinfo(np.int64).max)
+    loops = np.flatnonzero(graph.source == graph.target)
+    np.minimum.at(servers, graph.source[loops], graph.tokens[loops])
+    return np.where(servers == np.iinfo(np.int64).max, 0, servers)
 
 
 def find_token_free_circuit(graph: EventGraph) -> list[int] | None:

@@ -26,8 +26,17 @@ processed in its topological levels. Within a level, transitions of similar in-d
 group whose input places are gathered in one ``take`` into a padded ``(D·T, R)`` block; the
 maximum over inputs is ``D − 1`` elementwise maxima of contiguous ``(T, R)`` slices. All
 replications are processed by the same calls, so the Python work per firing is a handful of
-numpy calls per group, whatever ``R``. Criticality (which place set each firing) is computed
-afterwards, for a whole chunk of firings at once, from the stored terms.
+numpy calls per group, whatever ``R``.
+
+The argmax record
+-----------------
+Which input place set each firing is computed afterwards, for a whole chunk of firings at once,
+from the stored terms: for firing ``k`` of ``t`` in replication ``r``, the input place whose term
+reaches the maximum, ties going to the smallest place index, a place's term being 0 while
+``k <= m_p`` (it competes with that value). This *argmax record* is the one currency shared
+by every engine of the recursion (this one and any compiled twin): the criticality counts are
+its histogram, and the derivatives of :mod:`cyclecheck.algebra.lineage` are sums along the
+paths it defines.
 
 References
 ----------
@@ -47,6 +56,7 @@ import numpy as np
 
 from .eventgraph import EventGraph, check_live
 from .exceptions import InvalidArray
+from .lineage import LineageSweep
 
 __all__ = [
     "BlockSource",
@@ -64,6 +74,8 @@ BlockSource = Callable[[int, int], np.ndarray]
 
 #: Memory budget (float elements) of one chunk of draws and outputs in :meth:`RandomRecursion.run`.
 _CHUNK_ELEMENTS = 1 << 21
+#: Largest history (ring buffer) of firing times the recursion keeps, in float elements (8 GiB).
+_HISTORY_ELEMENTS = 1 << 30
 #: Largest precomputed table of ring-buffer read positions (elements).
 _INDEX_TABLE_ELEMENTS = 1 << 22
 _INDEX_TABLE_ARRAYS = 1 << 16
@@ -154,6 +166,11 @@ class _Engine:
         src = inv[graph.source[pslot]]
         B = int(graph.tokens.max())
         S = B + 1
+        if S * n * R > _HISTORY_ELEMENTS:
+            raise InvalidArray(
+                f"a place holds {B:,} tokens: the recursion would keep the last {B:,} firings of "
+                f"{n:,} transitions in {R:,} replications ({8 * S * n * R / 2**30:,.1f} GiB); "
+                "lower the markings to the firings run first (recursion.within)")
 
         self.n, self.m, self.R, self.B, self.S = n, m, R, B, S
         self.perm, self.inv, self.pslot, self.groups = perm, inv, pslot, groups
@@ -166,6 +183,12 @@ class _Engine:
         self.h_const = graph.hold[pslot][:, None] if graph.hold.any() else None
         self.tok = [tok[g[3] : g[4]] for g in groups]
         self.src = [src[g[3] : g[4]] for g in groups]
+        # per slot position: tokens and (internal) source transition, for the lineage sweep
+        self.tok_all, self.src_all = tok, src
+        lv = level[perm]
+        cuts = np.flatnonzero(np.r_[True, lv[1:] != lv[:-1], True])
+        #: internal ranges [a, b) of the transitions of each token-free level, ascending
+        self.levels = [(int(a), int(b)) for a, b in pairwise(cuts.tolist())]
         self.idx: list[list[np.ndarray]] | None = None
         # one array per (slot, group): bounded in elements and in Python objects
         if S * self.P <= _INDEX_TABLE_ELEMENTS and S * len(groups) <= _INDEX_TABLE_ARRAYS:
@@ -234,30 +257,33 @@ class _Engine:
                 rec[i] = self.slot[s]
         self.k = k
 
-    def count_critical(self, terms: np.ndarray, counts: np.ndarray) -> None:
-        """Add to ``counts`` (m, R) the firings each place set, from ``terms`` (c, P, R).
+    def setters(self, terms: np.ndarray, out: np.ndarray) -> None:
+        """Write to ``out`` (c, n, R) the argmax record of ``terms`` (c, P, R).
 
-        Slot ``j`` of a transition set the firing if it reaches the maximum and no earlier slot
-        does; a padded slot repeats an earlier one and so never counts.
+        Entry ``[i, t, r]`` is the slot position (index into :attr:`pslot`) of the input place
+        of internal transition ``t`` that set the firing: the first slot reaching the maximum,
+        slots listing places by increasing index, so ties go to the smallest place index; a
+        padded slot repeats an earlier one and is never chosen.
         """
         c = terms.shape[0]
         for a, b, D, ga, gb in self.groups:
             T = b - a
-            places = self.pslot[ga:gb].reshape(D, T)
+            own = (ga + np.arange(T))[None, :, None]
             if D == 1:
-                counts[places[0]] += c  # the only input place sets every firing
+                out[:, a:b] = own  # the only input place sets every firing
                 continue
             v = terms[:, ga:gb].reshape(c, D, T, -1)
             top = np.maximum(v[:, 0], v[:, 1])
             for j in range(2, D):
                 np.maximum(top, v[:, j], out=top)
-            taken = v[:, 0] == top
-            counts[places[0]] += taken.sum(axis=0)
-            for j in range(1, D - 1):
-                eq = v[:, j] == top
-                counts[places[j]] += (eq & ~taken).sum(axis=0)
-                taken |= eq
-            counts[places[D - 1]] += c - taken.sum(axis=0)  # the last slot takes the rest
+            first = (v == top[:, None]).argmax(axis=1)  # (c, T, R): first slot at the top
+            out[:, a:b] = own + first * T
+
+    def count_critical(self, record: np.ndarray, counts: np.ndarray) -> None:
+        """Add to ``counts`` (m, R) the firings each place set, from a record (c, n, R)."""
+        R = self.R
+        places = self.pslot[record] * R + np.arange(R)
+        counts += np.bincount(places.ravel(), minlength=self.m * R).reshape(self.m, R)
 
 
 def firing_times(graph: EventGraph, n_firings: int) -> np.ndarray:
@@ -407,6 +433,10 @@ class RecursionRun:
         recursion was built with ``criticality=False``.
     times : ndarray, shape (K, R, n), or None
         All firing times of the run (``record=True``), row ``i`` = firing ``k_0 + 1 + i``.
+    setters : ndarray of int, shape (K, R, n), or None
+        The argmax record (``setters=True``): entry ``[i, r, t]`` is the index of the input
+        place of ``t`` that set firing ``k_0 + 1 + i`` in replication ``r``, by the rule of
+        ``critical``.
     """
 
     checkpoints: np.ndarray
@@ -415,6 +445,7 @@ class RecursionRun:
     busy: np.ndarray
     critical: np.ndarray | None
     times: np.ndarray | None
+    setters: np.ndarray | None = None
 
     @property
     def n_firings(self) -> int:
@@ -459,6 +490,9 @@ class RandomRecursion:
         ``R``.
     criticality : bool
         Count, for every place, the firings it set (a few numpy calls more per firing).
+    lineage : LineageSweep, optional
+        Receives every chunk of the argmax record with its draws
+        (:class:`~cyclecheck.algebra.lineage.LineageSweep`, built by :meth:`track_lineage`).
 
     Raises
     ------
@@ -503,6 +537,28 @@ class RandomRecursion:
         self.duration_source = duration_source
         self.hold_source = hold_source
         self.criticality = bool(criticality)
+        self.lineage: LineageSweep | None = None
+
+    def track_lineage(
+        self,
+        frontiers: Sequence[Sequence[int] | np.ndarray],
+        segments: Sequence[int] | np.ndarray,
+        *,
+        memory: int | None = None,
+        lookahead: int | None = None,
+    ) -> LineageSweep:
+        """Sum the draws along the critical paths of the coming firings (the derivatives of the
+        cycle time, :mod:`cyclecheck.algebra.lineage`); call before the first :meth:`run`.
+
+        ``frontiers`` lists sets of transitions whose last firing the paths start from,
+        ``segments`` the firing numbers ``0 = s_0 < … < s_J = K`` that split the sums. Call
+        :meth:`LineageSweep.finish` after the last run (at firing ``s_J``).
+        """
+        if self._engine.k:
+            raise InvalidArray("track_lineage must be called before the first run")
+        self.lineage = LineageSweep(self._engine, frontiers, segments, memory=memory,
+                                    lookahead=lookahead)
+        return self.lineage
 
     @property
     def replications(self) -> int:
@@ -555,6 +611,7 @@ class RandomRecursion:
         *,
         record: bool = False,
         observe: Sequence[int] | np.ndarray | None = None,
+        setters: bool = False,
     ) -> RecursionRun:
         """Compute the next ``n_firings`` firings of every transition in every replication.
 
@@ -569,6 +626,8 @@ class RandomRecursion:
             Also return all firing times, shape (K, R, n).
         observe : sequence of int, optional
             Transitions whose firing times are kept at the checkpoints (default: all).
+        setters : bool
+            Also return the argmax record, shape (K, R, n).
 
         Returns
         -------
@@ -592,11 +651,13 @@ class RandomRecursion:
         times = np.empty((K, R, n)) if record else None
         busy = np.zeros((n, R))
         counts = np.zeros((m, R), dtype=np.int64) if self.criticality else None
+        record_setters = setters or counts is not None or self.lineage is not None
+        setter_out = np.empty((K, R, n), dtype=np.int64) if setters else None
         P = eng.P
-        per_firing = R * (2 * n + P + (n if record else 0) + (P if counts is not None else 0))
+        per_firing = R * (2 * n + P + (n if record else 0) + (P + n if record_setters else 0))
         chunk = max(1, min(max(b, 1), _CHUNK_ELEMENTS // per_firing))
         rec = np.empty((chunk, n, R)) if record else None
-        terms = np.empty((chunk, P, R)) if counts is not None else None
+        terms = np.empty((chunk, P, R)) if record_setters else None
         for j, end in enumerate(ends, start=1):
             while eng.k < end:
                 first = eng.k + 1
@@ -611,8 +672,18 @@ class RandomRecursion:
                 if times is not None and r is not None:
                     pos = first - 1 - k0
                     times[pos : pos + count] = r[:, eng.inv, :].transpose(0, 2, 1)
-                if counts is not None and tv is not None:
-                    eng.count_critical(tv, counts)
+                if tv is not None:
+                    # a fresh array per chunk: the lineage keeps it until its paths are summed
+                    argmax = np.empty((count, n, R), dtype=np.int32)
+                    eng.setters(tv, argmax)
+                    if counts is not None:
+                        eng.count_critical(argmax, counts)
+                    if setter_out is not None:
+                        pos = first - 1 - k0
+                        setter_out[pos : pos + count] = (
+                            eng.pslot[argmax][:, eng.inv, :].transpose(0, 2, 1))
+                    if self.lineage is not None:
+                        self.lineage.feed(first, argmax, dur, hold)
             xs[j] = eng.current()[rows].T
         critical = counts.T.copy() if counts is not None else None
         return RecursionRun(
@@ -622,4 +693,5 @@ class RandomRecursion:
             busy=busy[eng.inv].T.copy(),
             critical=critical,
             times=times,
+            setters=setter_out,
         )

@@ -203,6 +203,7 @@ def simulate(model: ModelLike, *, seed: int | None = DEFAULT_SEED,
     with _progress_line(settings, settings.precision) as line:
         est = estimate_with_executor(loaded, "simpy", settings, cyclicity_of_mean=period,
                                      progress=line)
+    _add_sensitivity(loaded, est, mean_value)
     doc = simulation_document(loaded, est, mean_value, period, settings)
     log_text = None
     if trace is not None:
@@ -211,6 +212,16 @@ def simulate(model: ModelLike, *, seed: int | None = DEFAULT_SEED,
         log_text = run.event_log().to_csv(index=False)
         doc["trace"] = os.fspath(trace)
     return _finish(doc, outputs, force=force, log_text=log_text)
+
+
+def _add_sensitivity(model: Model, est: Any, mean_value: Any) -> None:
+    """Derivatives for the SimPy engine's estimate: exact for fixed durations, else from the
+    recursion on the same draws."""
+    from .experiment import sensitivity_on_same_draws
+    from .sensitivity import fixed_model_sensitivity
+
+    est.sensitivity = (sensitivity_on_same_draws(model, est) if model.is_random
+                       else fixed_model_sensitivity(model.graph(), mean_value))
 
 
 def check(model: ModelLike, *, seed: int | None = DEFAULT_SEED,

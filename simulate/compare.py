@@ -28,9 +28,17 @@ from .experiment import (
     default_firings,
     estimate_with_executor,
     run_replications,
+    servers_horizon,
+    utilization_per_server,
 )
 from .modelfile import Model
-from .result import analysis_section, estimate_section, random_analysis_section, settings_section
+from .result import (
+    analysis_section,
+    estimate_section,
+    random_analysis_section,
+    settings_section,
+    utilization_section,
+)
 from .settings import RunSettings
 
 __all__ = ["PATH_RTOL", "compare"]
@@ -139,6 +147,10 @@ def _fixed(model: Model, exact: GraphAnalysis, settings: RunSettings) -> dict[st
         reasons.append(f"simulated cycle time of {ids[t]!r} is {sim_rate[t]:.9g}, the theory "
                        f"gives {eta[t]:.9g}")
     lam_sim = float(sim_rate.max())
+    per_server, busy = utilization_per_server(graph, run.busy_time[None, :],
+                                              servers_horizon(graph, run.time[:, None, :]))
+    analysis = analysis_section(model, exact)
+    reasons += _unbounded_reasons(analysis)
     simulation = {
         "cycle_time": lam_sim, "cycle_time_ci": [lam_sim, lam_sim],
         "throughput": 1.0 / lam_sim if lam_sim > 0 else None,
@@ -146,10 +158,10 @@ def _fixed(model: Model, exact: GraphAnalysis, settings: RunSettings) -> dict[st
         "critical_circuits": [], "bounds": None, "firings_simulated": int(K * graph.n_transitions),
         "cyclicity": c, "exact": True, "time_unit": model.time_unit, "engine": "simpy",
         "method": f"SimPy, {K} firings, cycle time (x(K) - x(K - {c})) / {c}",
-        "utilization": {ids[t]: float(u) for t, u in enumerate(run.utilization())},
+        **utilization_section(model, per_server, busy),
     }
     return {
-        "analysis": analysis_section(model, exact),
+        "analysis": analysis,
         "simulation": simulation,
         "comparison": {
             "verdict": "agrees" if identical and (agrees_rate or not settled) else "disagrees",
@@ -176,6 +188,12 @@ def _why_unsettled(model: Model, firings: int, period: int) -> str:
     if 4 * period + 4 > TRANSIENT_MAX_HORIZON:
         return f" (the regime's period, {period:,} firings, is too long to be run)"
     return " (give more --firings to compare them too)"
+
+
+def _unbounded_reasons(analysis: dict[str, Any]) -> list[str]:
+    """The places that gain tokens without bound, one reason each: the verdict is about the
+    simulation against the theory, but an unstable model never passes silently."""
+    return [u["text"] for u in analysis.get("unbounded_places") or []]
 
 
 def _overlap(a: Estimate, b: Estimate) -> bool:
@@ -237,6 +255,7 @@ def _random(model: Model, exact: GraphAnalysis, settings: RunSettings,
     eta_est = rec_est.by_transition
     analysis = random_analysis_section(model, exact, rec_est)
     simulation = estimate_section(model, sim_est, lower)
+    reasons += _unbounded_reasons(analysis)
     return {
         "analysis": analysis,
         "simulation": simulation,

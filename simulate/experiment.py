@@ -31,9 +31,11 @@ from typing import Any, Literal
 import numpy as np
 
 from ..algebra.critical import cyclicity
-from ..algebra.eventgraph import strongly_connected_components
+from ..algebra.eventgraph import self_loop_servers, strongly_connected_components
+from ..algebra.lineage import PathSums
 from ..algebra.recursion import RandomRecursion, within
 from ..algebra.spectral import howard
+from ..algebra.stability import components as graph_components
 from .durations import BLOCK
 from .errors import ArgumentError, ModelError
 from .estimate import (
@@ -45,6 +47,7 @@ from .estimate import (
     sequential_precision,
 )
 from .modelfile import Model
+from .sensitivity import SensitivityEstimate, from_paths, frontiers, segment_bounds
 from .settings import RunSettings
 
 __all__ = [
@@ -54,6 +57,9 @@ __all__ = [
     "estimate_with_executor",
     "open_executor",
     "run_replications",
+    "sensitivity_on_same_draws",
+    "servers_horizon",
+    "utilization_per_server",
 ]
 
 ENGINES = ("recursion", "simpy")
@@ -89,6 +95,11 @@ class Batch:
         :data:`CLEARING_DRAWS`.
     times : ndarray, shape (K, R, n), or None
         All firing times, when recorded.
+    horizon : ndarray, shape (R, n)
+        Latest completion among each transition's last ``servers`` firings (its last one when
+        it has no self-loop): the span its servers' busy time lies in.
+    paths : PathSums or None
+        Sums along the critical paths, for the derivatives (recursion only).
     """
 
     replications: np.ndarray
@@ -98,6 +109,8 @@ class Batch:
     critical: np.ndarray | None
     clearing: np.ndarray | None
     times: np.ndarray | None
+    horizon: np.ndarray
+    paths: PathSums | None = None
 
     @property
     def firings(self) -> int:
@@ -110,12 +123,14 @@ class Batch:
         first = batches[0]
         crit = None if first.critical is None else np.concatenate([b.critical for b in batches])
         times = None if first.times is None else np.concatenate([b.times for b in batches], axis=1)
+        paths = (None if any(b.paths is None for b in batches)
+                 else PathSums.concatenate([b.paths for b in batches]))
         return Batch(
             np.concatenate([b.replications for b in batches]), first.checkpoints,
             np.concatenate([b.x for b in batches], axis=1),
             np.concatenate([b.busy for b in batches]), crit,
             None if first.clearing is None else np.concatenate([b.clearing for b in batches]),
-            times,
+            times, np.concatenate([b.horizon for b in batches]), paths,
         )
 
 
@@ -183,8 +198,20 @@ class _AlignedDraws:
         return parts[0] if len(parts) == 1 else np.concatenate(parts)
 
 
+def servers_horizon(graph: Any, last: np.ndarray) -> np.ndarray:
+    """Per replication and transition, the latest of its last ``servers`` completions, from
+    ``last`` (the last firings, shape (., R, n)): with ``n`` servers taking jobs in turn the
+    last firing need not be the last to end."""
+    servers = np.clip(self_loop_servers(graph), 1, last.shape[0])
+    out = last[-1].copy()
+    for j in range(2, int(servers.max(initial=1)) + 1):
+        cols = np.flatnonzero(servers >= j)
+        out[:, cols] = np.maximum(out[:, cols], last[-j][:, cols])
+    return out
+
+
 def _recursion_batch(model: Model, seed: int, replications: Sequence[int], firings: int,
-                     block: int, record: bool) -> Batch:
+                     block: int, record: bool, lineage: bool = True) -> Batch:
     reps = np.asarray(replications, dtype=np.int64)
     samplers = [model.sampler(seed, int(r)) for r in reps]
     # Markings above the run's firings deliver nothing within it: the same firing times with
@@ -202,6 +229,11 @@ def _recursion_batch(model: Model, seed: int, replications: Sequence[int], firin
                           _AlignedDraws(holds), len(reps), criticality=True)
     depth = min(firings, max(1, int(graph.tokens.max(initial=0))))
     points = _checkpoints(firings, block)
+    sweep = None
+    if lineage and firings > 0:
+        fronts = frontiers(graph, graph_components(graph))
+        sweep = rec.track_lineage(fronts, segment_bounds(
+            points, 2 * graph.n_places + graph.n_transitions, len(reps) * len(fronts)))
     x = np.zeros((points.size, len(reps), graph.n_transitions))
     busy = np.zeros((len(reps), graph.n_transitions))
     critical = np.zeros((len(reps), graph.n_places), dtype=np.int64)
@@ -218,7 +250,9 @@ def _recursion_batch(model: Model, seed: int, replications: Sequence[int], firin
     kept = np.concatenate(recorded)
     clearing = (_clearing_time(graph, kept[-depth:], holds(firings + 1, marking))
                 if _clearing_fits(graph, marking, len(reps)) else None)
-    return Batch(reps, points, x, busy, critical, clearing, kept if record else None)
+    paths = sweep.finish() if sweep is not None else None
+    return Batch(reps, points, x, busy, critical, clearing, kept if record else None,
+                 servers_horizon(graph, kept[-depth:]), paths)
 
 
 def _simpy_batch(model: Model, seed: int, replications: Sequence[int], firings: int,
@@ -233,6 +267,7 @@ def _simpy_batch(model: Model, seed: int, replications: Sequence[int], firings: 
     busy = np.zeros((len(reps), n))
     marking = max(1, int(graph.tokens.max(initial=0)))
     clearing = np.zeros(len(reps)) if _clearing_fits(graph, marking, 1) else None
+    horizon = np.zeros((len(reps), n))
     times = np.zeros((firings, len(reps), n)) if record else None
     depth = min(firings, marking)
     for i, r in enumerate(reps.tolist()):
@@ -243,15 +278,17 @@ def _simpy_batch(model: Model, seed: int, replications: Sequence[int], firings: 
         if clearing is not None:
             future = sampler.hold_block(firings + 1, marking)[:, None, :]
             clearing[i] = _clearing_time(graph, run.time[-depth:, None, :], future)[0]
+        horizon[i] = servers_horizon(graph, run.time[-depth:, None, :])[0]
         if times is not None:
             times[:, i] = run.time
-    return Batch(reps, points, x, busy, None, clearing, times)
+    return Batch(reps, points, x, busy, None, clearing, times, horizon)
 
 
 def _run_chunk(engine: str, model: Model, seed: int, replications: Sequence[int], firings: int,
-               block: int, record: bool) -> Batch:
-    run = _recursion_batch if engine == "recursion" else _simpy_batch
-    return run(model, seed, replications, firings, block, record)
+               block: int, record: bool, lineage: bool = True) -> Batch:
+    if engine == "recursion":
+        return _recursion_batch(model, seed, replications, firings, block, record, lineage)
+    return _simpy_batch(model, seed, replications, firings, block, record)
 
 
 def open_executor(workers: int = 1,
@@ -281,17 +318,20 @@ def open_executor(workers: int = 1,
 
 def run_replications(model: Model, engine: str, seed: int, replications: Sequence[int],
                      firings: int, *, block: int | None = None, record: bool = False,
-                     executor: Executor | None = None, chunks: int = 1) -> Batch:
-    """Run replications on one engine, split into ``chunks`` tasks on ``executor``."""
+                     executor: Executor | None = None, chunks: int = 1,
+                     lineage: bool = True) -> Batch:
+    """Run replications on one engine, split into ``chunks`` tasks on ``executor``;
+    ``lineage``: sum along the critical paths too (recursion only), for the derivatives."""
     if engine not in ENGINES:
         raise ArgumentError(f"engine must be one of {ENGINES}, got {engine!r}")
     _check_memory(model, len(replications), firings, record)
     block = block or max(1, firings // 200)
     reps = list(replications)
     if executor is None or chunks <= 1 or len(reps) < 2:
-        return _run_chunk(engine, model, seed, reps, firings, block, record)
+        return _run_chunk(engine, model, seed, reps, firings, block, record, lineage)
     parts = [p.tolist() for p in np.array_split(np.asarray(reps), min(chunks, len(reps)))]
-    futures = [executor.submit(_run_chunk, engine, model, seed, p, firings, block, record)
+    futures = [executor.submit(_run_chunk, engine, model, seed, p, firings, block, record,
+                               lineage)
                for p in parts if p]
     return Batch.concatenate([f.result() for f in futures])
 
@@ -327,12 +367,15 @@ class Estimate:
     firings: int
     replications: int
     upper: Interval | None
-    utilization: np.ndarray
-    criticality_places: np.ndarray | None
+    utilization: np.ndarray  # (n,) per server; NaN for a transition without a self-loop
+    criticality_places: np.ndarray | None  # share of the target's firings each place set
     history: list[tuple[int, float, float, float]]
     target_met: bool | None
     batch: Batch
     warmup_at_limit: bool = False
+    busy_servers: np.ndarray | None = None  # (n,) mean number of firings in progress
+    sensitivity: SensitivityEstimate | None = None
+    seed: int | None = None
 
     @property
     def firings_simulated(self) -> int:
@@ -480,9 +523,13 @@ def estimate_cycle_time(model: Model, engine: str = "recursion", *, seed: int = 
         history = [(c.work, c.estimate, c.low, c.high) for c in seq.history]
     batch = Batch.concatenate(batches)
     growth = _growth(batch, state["warmup"])
-    horizon = batch.x[-1]
+    utilization, busy_servers = utilization_per_server(model.graph(), batch.busy, batch.horizon)
+    sensitivity = None
+    if batch.paths is not None:
+        sensitivity = from_paths(model.graph(), batch.paths,
+                                 frontiers(model.graph(), graph_components(model.graph())), growth,
+                                 state["warmup"])
     with np.errstate(divide="ignore", invalid="ignore"):
-        utilization = np.where(horizon > 0, batch.busy / horizon, 0.0).mean(axis=0)
         crit = None
         if batch.critical is not None:
             crit = batch.critical.sum(axis=0) / (batch.firings * len(batch.replications))
@@ -491,7 +538,24 @@ def estimate_cycle_time(model: Model, engine: str = "recursion", *, seed: int = 
     return Estimate(engine, interval, components.spread(growth).mean(axis=0),
                     components.headline(growth), state["warmup"], batch.firings,
                     len(batch.replications), upper, utilization, crit, history, target_met,
-                    batch, bool(state["at_limit"]))
+                    batch, bool(state["at_limit"]), busy_servers, sensitivity, seed)
+
+
+def utilization_per_server(graph: Any, busy: np.ndarray,
+                           horizon: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """Utilization per server and mean busy servers of every transition, over replications.
+
+    ``busy`` (R, n) is each transition's total firing time, ``horizon`` (R, n) the span it
+    lies in. A transition with a self-loop of ``s`` tokens has ``s`` servers taking jobs in
+    turn: its utilization is mean busy servers / ``s``, at most 1. A transition without a
+    self-loop has no server limit (firings overlap as tokens allow): NaN.
+    """
+    servers = self_loop_servers(graph).astype(np.float64)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        busy_servers = np.where(horizon > 0, busy / horizon, 0.0)
+        per_server = np.minimum(busy_servers / servers, 1.0)  # rounding only
+    per_server = np.where(servers > 0, per_server, np.nan).mean(axis=0)
+    return per_server, busy_servers.mean(axis=0)
 
 
 def default_firings(model: Model, engine: str) -> int:
@@ -531,3 +595,15 @@ def estimate_with_executor(model: Model, engine: str, settings: RunSettings, *,
         )
     finally:
         close()
+
+
+def sensitivity_on_same_draws(model: Model, est: Estimate) -> SensitivityEstimate:
+    """The derivatives for an estimate of the SimPy engine: the recursion run on the same
+    replications (the same draws, so the same firing times), with its warm-up. These firings
+    are not the estimate's: ``firings_simulated`` does not count them."""
+    batch = _recursion_batch(model, est.seed or 0, est.batch.replications.tolist(), est.firings,
+                             int(est.batch.checkpoints[1] - est.batch.checkpoints[0]), False)
+    graph = model.graph()
+    assert batch.paths is not None
+    return from_paths(graph, batch.paths, frontiers(graph, graph_components(graph)),
+                      _growth(batch, est.warmup_firings), est.warmup_firings)

@@ -27,12 +27,20 @@ from typing import Any
 import numpy as np
 
 from ..algebra.analysis import GraphAnalysis
-from ..algebra.spectral import HowardResult
+from ..algebra.critical import critical_places
+from ..algebra.spectral import HowardResult, howard
 from ..reports.schema import DOCUMENT_KIND, SCHEMA_VERSION
 from .estimate import replication_interval
 from .experiment import Estimate
 from .modelfile import Model
+from .sensitivity import (
+    SensitivityEstimate,
+    bottleneck_index,
+    element_entry,
+    fixed_model_sensitivity,
+)
 from .settings import RunSettings
+from .stability import fixed_unbounded, random_unbounded
 
 __all__ = [
     "DOCUMENT_KIND",
@@ -46,9 +54,12 @@ __all__ = [
     "model_section",
     "provenance",
     "random_analysis_section",
+    "sensitivity_section",
     "settings_section",
     "simulation_document",
+    "stability_section",
     "trace_document",
+    "utilization_section",
 ]
 
 #: Longest lists written element by element in a document; larger models keep the first ones and
@@ -171,6 +182,11 @@ def analysis_section(model: Model, analysis: GraphAnalysis) -> dict[str, Any]:
         "transient_horizon": analysis.transient_horizon,
         "howard_iterations": hw.iterations,
     }
+    critical_ids = {ids[t] for c in hw.circuits for t in c.transitions}
+    doc.update(sensitivity_section(
+        model, fixed_model_sensitivity(graph, hw, analysis.critical), critical_ids,
+        set(np.flatnonzero(analysis.critical).tolist()), lam))
+    doc.update(stability_section(fixed_unbounded(model, hw.cycle_time)))
     return doc
 
 
@@ -207,7 +223,7 @@ def estimate_section(model: Model, est: Estimate, lower: float) -> dict[str, Any
         "relative_half_width": finite_or_none(iv.relative_half_width),
         "batch_means": _batch_means(est),
         "precision_met": est.target_met,
-        "utilization": {ids[t]: float(u) for t, u in enumerate(est.utilization)},
+        **utilization_section(model, est.utilization, est.busy_servers),
         "per_replication": [float(v) for v in est.per_replication],
         "running_estimate": _running_estimate(est, model.n_transitions),
         "sequential_rounds": [
@@ -221,16 +237,99 @@ def estimate_section(model: Model, est: Estimate, lower: float) -> dict[str, Any
                          "transient, so this estimate need not be the cycle time"]
                         if marking > est.firings else [])
     if crit_p is not None:
-        graph = model.graph()
-        trans = np.zeros(graph.n_transitions)
-        np.maximum.at(trans, graph.source, crit_p)
-        section["criticality"] = {
-            "places": [float(c) for c in crit_p],
-            "transitions": {ids[t]: float(c) for t, c in enumerate(trans)},
-            "definition": ("place: share of its target's firings whose start it set; transition: "
-                           "the largest share among its output places"),
+        # The local share alone does not find the bottleneck (a station downstream of it sets
+        # every firing of the next one): kept under its own name, never as "criticality".
+        section["setter_share"] = {
+            "places": [float(c) for c in crit_p[:MAX_LISTED]],
+            "definition": ("share of its target's firings whose start the place set (its token "
+                           "arrived last); a local measure, not the bottleneck: see sensitivity"),
         }
+    if est.sensitivity is not None:
+        graph = model.graph()
+        mean_value = howard(graph)
+        critical = critical_places(graph, mean_value)
+        section.update(sensitivity_section(
+            model, est.sensitivity, {ids[t] for c in mean_value.circuits for t in c.transitions},
+            set(np.flatnonzero(critical).tolist()), iv.estimate))
+    if est.seed is not None:
+        if model.is_random:
+            unbounded = random_unbounded(model, est.seed, est.batch.replications.tolist(),
+                                         est.firings, est.warmup_firings, est.by_transition)
+        else:
+            unbounded = fixed_unbounded(model, howard(model.graph()).cycle_time)
+        section.update(stability_section(unbounded))
     return section
+
+
+def utilization_section(model: Model, per_server: np.ndarray,
+                        busy: np.ndarray | None) -> dict[str, Any]:
+    """``utilization`` per server (null without a self-loop), ``busy_servers``, ``servers``."""
+    from ..algebra.eventgraph import self_loop_servers
+
+    ids = model.transition_ids
+    servers = self_loop_servers(model.graph())
+    out: dict[str, Any] = {
+        "utilization": {ids[t]: finite_or_none(u) for t, u in enumerate(per_server)},
+        "servers": {ids[t]: (int(s) if s > 0 else None) for t, s in enumerate(servers)},
+        "utilization_definition": (
+            "share of the time each of the transition's servers is busy firing: mean busy "
+            "servers / servers, the servers being the tokens of its self-loop (n servers take "
+            "jobs in turn); null for a transition without a self-loop, whose firings overlap "
+            "as tokens allow (busy_servers gives their mean number in progress)"),
+    }
+    if busy is not None:
+        out["busy_servers"] = {ids[t]: float(b) for t, b in enumerate(busy)}
+    return out
+
+
+def sensitivity_section(model: Model, sens: SensitivityEstimate, critical_ids: set[str],
+                        critical_places_: set[int], cycle_time: float) -> dict[str, Any]:
+    """``sensitivity`` (largest derivative first), ``bottleneck``, ``sensitivity_method`` and,
+    for random durations, the path ``criticality`` of every element."""
+    graph = model.graph()
+    n = graph.n_transitions
+    means = np.r_[graph.duration, graph.hold]
+    if sens.skipped:
+        return {"sensitivity": [], "bottleneck": None, "sensitivity_method": sens.method}
+    d = np.where(np.isfinite(sens.derivative), sens.derivative, -np.inf)
+    order = np.lexsort((np.arange(d.size), -d))
+    entries = [element_entry(model, int(e), sens) for e in order[:MAX_LISTED]]
+    out: dict[str, Any] = {"sensitivity": entries, "sensitivity_method": sens.method,
+                           "sensitivity_exact": sens.exact,
+                           "sensitivity_omitted": max(0, d.size - MAX_LISTED)}
+    best = bottleneck_index(sens, means)
+    bottleneck = None
+    if best is not None:
+        bottleneck = element_entry(model, best, sens)
+        theta = float(means[best])
+        # a decrease is governed by the decrease derivative (the low end for fixed durations)
+        slope = float(sens.low[best]) if sens.exact else float(sens.derivative[best])
+        on = (model.transition_ids[best] in critical_ids if best < n
+              else (best - n) in critical_places_)
+        bottleneck.update({
+            "name": model.transition_ids[best] if best < n else model.place_name(best - n),
+            "mean": theta,
+            "faster_10_percent": {"mean": 0.9 * theta,
+                                  "cycle_time": cycle_time - 0.1 * theta * slope,
+                                  "change": -0.1 * theta * slope},
+            "on_mean_critical_circuit": bool(on),
+        })
+    out["bottleneck"] = bottleneck
+    if sens.criticality is not None:
+        crit = sens.criticality
+        out["criticality"] = {
+            "places": [finite_or_none(c) for c in crit[n : n + MAX_LISTED]],
+            "transitions": {model.transition_ids[t]: finite_or_none(crit[t]) for t in range(n)},
+            "definition": ("share of the element's firings on the critical path of the cycle "
+                           "time (for a place: of its target's firings that it set on that "
+                           "path)"),
+        }
+    return out
+
+
+def stability_section(entries: list[dict[str, Any]]) -> dict[str, Any]:
+    """``unbounded_places``: the places that gain tokens without bound ([] when none)."""
+    return {"unbounded_places": entries}
 
 
 def _running_estimate(est: Estimate, n_transitions: int) -> dict[str, list[float]]:

@@ -7,8 +7,92 @@ from typing import Any
 
 __all__ = ["analysis_text", "check_text", "simulation_text", "trace_text"]
 
-#: Slack rows shown in a summary (the smallest non-zero ones: the near-critical elements).
+#: Rows of a list shown in a summary (the smallest slacks, the largest derivatives, ...); the
+#: rest is counted ("and N more").
 TOP_SLACKS = 5
+
+
+def _more(total: int, shown: int) -> list[str]:
+    """The line that says how many rows of a list were left out (none when all are shown)."""
+    return [f"  and {total - shown:,} more"] if total > shown else []
+
+
+def _element(entry: dict[str, Any], doc: dict[str, Any]) -> str:
+    """A sensitivity entry's element as text: the transition id, or the place by its ends."""
+    if entry.get("element") == "transition":
+        return str(entry.get("id"))
+    index = entry.get("index")
+    places = doc.get("model", {}).get("places") or []
+    if isinstance(index, int) and index < len(places):
+        p = places[index]
+        label = f" ({p['label']})" if p.get("label") else ""
+        return f"{p.get('from')} -> {p.get('to')}{label}"
+    return f"place {index}"
+
+
+def _warnings(doc: dict[str, Any]) -> list[str]:
+    """Unbounded places, first and loud."""
+    return [f"WARNING        {u['text']}" for u in doc.get("unbounded_places") or []]
+
+
+def _sensitivity_lines(doc: dict[str, Any], unit: str) -> list[str]:
+    entries = doc.get("sensitivity") or []
+    if not entries:
+        method = doc.get("sensitivity_method")
+        return [f"sensitivity    {method}"] if method else []
+    exact = doc.get("sensitivity_exact", doc.get("exact"))
+    lines = []
+    b = doc.get("bottleneck")
+    if b:
+        what = "duration" if b["element"] == "transition" else "hold"
+        lo, hi = b["ci"]
+        if exact:
+            value = (f"{_num(b['derivative'], 3)} (exact)" if lo == hi else
+                     f"{_num(hi, 3)} when it grows, {_num(lo, 3)} when it shrinks (critical "
+                     "circuits of equal ratio)")
+        else:
+            value = f"{_num(b['derivative'], 3)}, 95 % CI [{_num(lo, 3)}, {_num(hi, 3)}]"
+        kind = "" if b["element"] == "transition" else " (place)"
+        lines.append(f"bottleneck     {_element(b, doc)}{kind}: dλ/d(mean {what}) = {value}")
+        fast = b["faster_10_percent"]
+        lines.append(f"               10 % faster (mean {_num(b['mean'], 4)} -> "
+                     f"{_num(fast['mean'], 4)}{unit}): cycle time about "
+                     f"{_num(fast['cycle_time'], 4)}{unit} ({_num(fast['change'], 3)}{unit}), to "
+                     "first order")
+        if not b.get("on_mean_critical_circuit"):
+            lines.append("               not on the critical circuit of the mean durations: "
+                         "variability moved the bottleneck")
+    head = "exact" if exact else "95 % CI"
+    lines.append(f"sensitivity of the cycle time to each mean (dλ/dθ, {head}"
+                 + ("" if exact else "; share of firings on the critical path") + "):")
+    for e in entries[:TOP_SLACKS]:
+        lo, hi = e["ci"]
+        crit = e.get("path_criticality")
+        tail = f"  {100 * crit:5.1f} %" if crit is not None and not exact else ""
+        lines.append(f"  {_element(e, doc):<28} {_num(e['derivative'], 3):>8}  "
+                     f"[{_num(lo, 3)}, {_num(hi, 3)}]{tail}")
+    lines += _more(len(entries) + int(doc.get("sensitivity_omitted") or 0), TOP_SLACKS)
+    return lines
+
+
+def _utilization_lines(doc: dict[str, Any]) -> list[str]:
+    util = doc.get("utilization") or {}
+    servers = doc.get("servers") or {}
+    busy = doc.get("busy_servers") or {}
+    if not util:
+        return []
+    rows = sorted(util.items(), key=lambda kv: -(kv[1] if kv[1] is not None else -1.0))
+    lines = ["utilization per server (busy share of each of its servers):"]
+    for tid, u in rows[:TOP_SLACKS]:
+        s = servers.get(tid)
+        if u is None:
+            b = busy.get(tid)
+            extra = f", {b:.3g} firings in progress on average" if b is not None else ""
+            lines.append(f"  {tid:<20}      no self-loop: no server limit{extra}")
+        else:
+            who = f"{s} servers in turn" if s and s > 1 else "1 server"
+            lines.append(f"  {tid:<20} {100 * u:5.1f} %  ({who})")
+    return lines + _more(len(rows), TOP_SLACKS)
 
 
 def _num(x: float | None, digits: int = 6) -> str:
@@ -70,12 +154,14 @@ def analysis_text(doc: dict[str, Any]) -> str:
     model = doc.get("model", {})
     lines = [f"{model.get('name', 'model')}: {model.get('n_transitions', '?')} transitions, "
              f"{model.get('n_places', '?')} places"]
+    lines += _warnings(doc)
     lines += _estimate_lines(doc, unit)
     by_t = doc["cycle_time_by_transition"]
     if doc.get("strongly_connected") is False:
         lines.append("not strongly connected: cycle times differ by transition")
         shown = sorted(by_t.items(), key=lambda kv: -kv[1])[:TOP_SLACKS]
         lines += [f"  {tid:<20} {_num(v)}{unit}" for tid, v in shown]
+        lines += _more(len(by_t), len(shown))
     basis = doc.get("critical_circuits_basis")
     ratios = doc.get("critical_circuit_ratios") or []
     for i, circuit in enumerate(doc.get("critical_circuits", [])[:3]):
@@ -95,16 +181,12 @@ def analysis_text(doc: dict[str, Any]) -> str:
         lines.append(f"smallest slack{of_mean} (duration increase before the cycle time "
                      "changes):")
         lines += [f"  {tid:<20} {_num(v)}{unit}" for v, tid in near]
+        lines += _more(sum(1 for v in slack.values() if v is not None and v > 0), len(near))
     cert = doc.get("certificate")
     if cert:
         lines.append(("certificate    checked: " if cert["checked"] else "certificate    FAILED: ")
                      + f"residual {cert['eigen_residual']:.1e}")
-    crit = doc.get("criticality", {}) or {}
-    if crit.get("transitions"):
-        top = sorted(crit["transitions"].items(), key=lambda kv: -kv[1])[:TOP_SLACKS]
-        lines.append("criticality under variability (share of the downstream firings whose "
-                     "start it set):")
-        lines += [f"  {tid:<20} {100 * v:.1f} %" for tid, v in top]
+    lines += _sensitivity_lines(doc, unit)
     return "\n".join(lines)
 
 
@@ -113,12 +195,10 @@ def simulation_text(doc: dict[str, Any]) -> str:
     unit = _unit(doc)
     model = doc.get("model", {})
     lines = [f"{model.get('name', 'model')}: SimPy simulation"]
+    lines += _warnings(doc)
     lines += _estimate_lines(doc, unit)
-    util = doc.get("utilization") or {}
-    if util:
-        lines.append("utilization:")
-        lines += [f"  {tid:<20} {100 * u:.1f} %" for tid, u in
-                  sorted(util.items(), key=lambda kv: -kv[1])[:TOP_SLACKS]]
+    lines += _utilization_lines(doc)
+    lines += _sensitivity_lines(doc, unit)
     if doc.get("trace"):
         lines.append(f"event log      {doc['trace']}")
     return "\n".join(lines)

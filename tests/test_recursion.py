@@ -27,12 +27,14 @@ from tests.strategies import live_event_graphs
 
 
 def slow_recursion(
-    g: EventGraph, K: int, dur: np.ndarray | None = None, hold: np.ndarray | None = None
+    g: EventGraph, K: int, dur: np.ndarray | None = None, hold: np.ndarray | None = None,
+    record: dict[tuple[int, int], int] | None = None,
 ) -> tuple[np.ndarray, list[int]]:
     """x_t(k) = d_t(k) + max_p term_p(k), term_p(k) = 0 if k <= m_p else x_u(k − m_p) + h_p(k).
 
     ``dur[k − 1, t]`` and ``hold[k − 1, p]`` (the consuming firing), or the graph's values.
-    Also counts, for every place, the firings it set (first place by index among ties).
+    Also counts, for every place, the firings it set (first place by index among ties), and
+    writes into ``record`` the place that set each firing ``(t, k)``.
     """
     n, m = g.n_transitions, g.n_places
     inputs = {t: [p for p in range(m) if int(g.target[p]) == t] for t in range(n)}
@@ -61,6 +63,8 @@ def slow_recursion(
             if term > best:
                 best, arg = term, p
         setter[arg] += 1
+        if record is not None:
+            record[t, k] = arg
         x[t, k] = d(t, k) + best
         return x[t, k]
 

@@ -126,13 +126,13 @@ def stage_profile(toml: Path) -> list[tuple[str, float]]:
 
 def cprofile_top(toml: Path, count: int = 25) -> str:
     """cProfile of load + analyze + dumps in process, top entries by internal time."""
-    from cyclecheck.simulate.api import analyze_model
+    from cyclecheck.simulate import analyze
     from cyclecheck.simulate.modelfile import load_model
     from cyclecheck.simulate.result import dumps
 
     prof = cProfile.Profile()
     prof.enable()
-    dumps(analyze_model(load_model(toml)))
+    dumps(analyze(load_model(toml)))
     prof.disable()
     buf = io.StringIO()
     pstats.Stats(prof, stream=buf).sort_stats("tottime").print_stats(count)
@@ -191,7 +191,7 @@ def main() -> None:
                     sec = min(t[i][1] for t in tables)
                     print(f"  {name:<48} {'' if sec != sec else f'{sec:8.2f}'}")
             last = sizes[-1]
-            print(f"\ncProfile, load + analyze_model + dumps, {SIZES[last][1]:,} places "
+            print(f"\ncProfile, load + analyze + dumps, {SIZES[last][1]:,} places "
                   "(profiler overhead inflates Python-level code):")
             print(cprofile_top(models[last]))
 
