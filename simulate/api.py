@@ -257,7 +257,7 @@ def check(model: ModelLike, *, seed: int | None = DEFAULT_SEED,
     outputs = _outputs(report, save, force=force)
     loaded = _model(model)
     with _progress_line(settings, settings.precision) as line:
-        doc = comparison_document(loaded, compare(loaded, settings, progress=line))
+        doc = comparison_document(loaded, compare(loaded, settings, progress=line), settings)
     return _finish(doc, outputs, force=force)
 
 

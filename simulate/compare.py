@@ -10,12 +10,15 @@ Two comparisons, the strongest first:
    transition. Random durations: the SimPy estimate and the recursion's Lyapunov estimate must
    agree within their 95 % intervals (the intervals overlap), and the estimate may not fall
    below the cycle time of the mean durations (Baccelli et al. 1992, ch. 8).
+
+:func:`compare` returns a :class:`Comparison`: the verdict, its reasons and the runs behind them;
+the check document is shaped from it by :func:`cyclecheck.simulate.result.comparison_document`.
 """
 
 from __future__ import annotations
 
 from collections.abc import Callable
-from typing import Any
+from dataclasses import dataclass
 
 import numpy as np
 
@@ -32,27 +35,72 @@ from .experiment import (
     utilization_per_server,
 )
 from .modelfile import Model
-from .result import (
-    analysis_section,
-    estimate_section,
-    random_analysis_section,
-    settings_section,
-    utilization_section,
-)
 from .settings import RunSettings
 
-__all__ = ["PATH_RTOL", "compare"]
+__all__ = ["PATH_RTOL", "Comparison", "FixedRun", "compare"]
 
 #: Relative tolerance of the sample-path identity.
 PATH_RTOL = 1e-9
-#: Transitions drawn in the transient figure.
-FIGURE_TRANSITIONS = 8
-#: Firings drawn in the transient figure.
-FIGURE_FIRINGS = 200
 #: SimPy replications of a random model's check when --replications is not given: enough
 #: for the sample-path comparison and a rough interval; the precision target is the
 #: recursion's.
 SIMPY_REPLICATIONS = 5
+
+
+@dataclass
+class FixedRun:
+    """The SimPy run of a model with fixed durations: ``K`` firings of every transition.
+
+    ``cycle_time`` is each transition's ``(x(K) − x(K − span)) / span`` (``span`` the
+    cyclicity, or less when the run is shorter); ``utilization`` per server and ``busy``
+    servers as :func:`~cyclecheck.simulate.experiment.utilization_per_server` gives them.
+    """
+
+    firings: int
+    span: int
+    cycle_time: np.ndarray
+    utilization: np.ndarray
+    busy: np.ndarray
+
+
+@dataclass
+class Comparison:
+    """What ``check`` found.
+
+    Attributes
+    ----------
+    exact : GraphAnalysis
+        The max-plus analysis of the (mean-duration) graph.
+    verdict : str
+        ``"agrees"`` or ``"disagrees"``.
+    reasons : list of str
+        Why, in plain sentences, the strongest evidence first.
+    sample_path : dict
+        ``identical``, ``max_relative_difference``, ``firings_compared``,
+        ``replications_compared``, ``tolerance``.
+    cycle_times_compared : bool or None
+        Fixed durations: whether the periodic regime was reached and the cycle times compared.
+    recursion, simulation : Estimate or None, Estimate or FixedRun
+        The max-plus side (None for fixed durations: exact) and the SimPy side.
+    eta : ndarray, shape (n,)
+        The cycle time each transition's path is drawn against in the transient figure.
+    simulated_paths, recursion_paths : ndarray, shape (K, R, n)
+        Firing times of the compared replications, both engines.
+    precision : float or None
+        The relative half-width aimed at (random durations).
+    """
+
+    exact: GraphAnalysis
+    verdict: str
+    reasons: list[str]
+    sample_path: dict[str, float | int | bool]
+    cycle_times_compared: bool | None
+    recursion: Estimate | None
+    simulation: Estimate | FixedRun
+    eta: np.ndarray
+    simulated_paths: np.ndarray
+    recursion_paths: np.ndarray
+    precision: float | None = None
 
 
 def _path_difference(a: np.ndarray, b: np.ndarray) -> float:
@@ -63,38 +111,11 @@ def _path_difference(a: np.ndarray, b: np.ndarray) -> float:
     return float(np.max(np.abs(a - b) / scale, initial=0.0))
 
 
-def _transient_figure(model: Model, eta: np.ndarray, sim: np.ndarray,
-                      rec: np.ndarray) -> dict[str, Any]:
-    """``x_t(k) - k * eta_t`` for the first firings of a few transitions, both engines."""
-    k_max = min(FIGURE_FIRINGS, sim.shape[0])
-    k = np.arange(1, k_max + 1)
-    shown = np.argsort(-eta, kind="stable")[:FIGURE_TRANSITIONS]
-    ids = model.transition_ids
-    return {
-        "k": k.tolist(),
-        "cycle_time": {ids[t]: float(eta[t]) for t in shown},
-        "simulation": {ids[t]: (sim[:k_max, t] - k * eta[t]).tolist() for t in shown},
-        "recursion": {ids[t]: (rec[:k_max, t] - k * eta[t]).tolist() for t in shown},
-    }
-
-
-def _schedule_figure(model: Model, exact: GraphAnalysis) -> dict[str, Any]:
-    ids = model.transition_ids
-    g = exact.graph
-    return {
-        "cycle_time": exact.cycle_time,
-        "start": {ids[t]: float(exact.start[t]) for t in range(g.n_transitions)},
-        "duration": {ids[t]: float(g.duration[t]) for t in range(g.n_transitions)},
-        "cycle_time_by_transition": {ids[t]: float(exact.howard.cycle_time[t])
-                                     for t in range(g.n_transitions)},
-    }
-
-
 def _firings(k: int) -> str:
     return f"{k} firing" if k == 1 else f"{k} firings"
 
 
-def _fixed(model: Model, exact: GraphAnalysis, settings: RunSettings) -> dict[str, Any]:
+def _fixed(model: Model, exact: GraphAnalysis, settings: RunSettings) -> Comparison:
     firings = settings.firings
     graph = model.graph()
     eta = exact.howard.cycle_time
@@ -146,37 +167,20 @@ def _fixed(model: Model, exact: GraphAnalysis, settings: RunSettings) -> dict[st
         t = int(np.argmax(rate_gap))
         reasons.append(f"simulated cycle time of {ids[t]!r} is {sim_rate[t]:.9g}, the theory "
                        f"gives {eta[t]:.9g}")
-    lam_sim = float(sim_rate.max())
     per_server, busy = utilization_per_server(graph, run.busy_time[None, :],
                                               servers_horizon(graph, run.time[:, None, :]))
-    analysis = analysis_section(model, exact)
-    reasons += _unbounded_reasons(analysis)
-    simulation = {
-        "cycle_time": lam_sim, "cycle_time_ci": [lam_sim, lam_sim],
-        "throughput": 1.0 / lam_sim if lam_sim > 0 else None,
-        "cycle_time_by_transition": {ids[t]: float(v) for t, v in enumerate(sim_rate)},
-        "critical_circuits": [], "bounds": None, "firings_simulated": int(K * graph.n_transitions),
-        "cyclicity": c, "exact": True, "time_unit": model.time_unit, "engine": "simpy",
-        "method": f"SimPy, {K} firings, cycle time (x(K) - x(K - {c})) / {c}",
-        **utilization_section(model, per_server, busy),
-    }
-    return {
-        "analysis": analysis,
-        "simulation": simulation,
-        "comparison": {
-            "verdict": "agrees" if identical and (agrees_rate or not settled) else "disagrees",
-            "reasons": reasons,
-            "cycle_times_compared": settled,
-            "sample_path": {"identical": identical, "max_relative_difference": diff,
-                            "firings_compared": int(K * graph.n_transitions),
-                            "replications_compared": 1, "tolerance": PATH_RTOL},
-        },
-        "figures": {"transient": _transient_figure(model, eta, run.time, rec),
-                    # A joint periodic schedule exists only when one cycle time rules them all.
-                    "schedule": _schedule_figure(model, exact) if uniform else None,
-                    "running_estimate": None, "replication_estimates": None},
-        "settings": settings_section(settings, None, 1, K),
-    }
+    return Comparison(
+        exact=exact,
+        verdict="agrees" if identical and (agrees_rate or not settled) else "disagrees",
+        reasons=reasons,
+        sample_path={"identical": identical, "max_relative_difference": diff,
+                     "firings_compared": int(K * graph.n_transitions),
+                     "replications_compared": 1, "tolerance": PATH_RTOL},
+        cycle_times_compared=settled,
+        recursion=None,
+        simulation=FixedRun(K, span, sim_rate, per_server, busy),
+        eta=eta, simulated_paths=run.time[:, None, :], recursion_paths=rec[:, None, :],
+    )
 
 
 def _why_unsettled(model: Model, firings: int, period: int) -> str:
@@ -190,18 +194,12 @@ def _why_unsettled(model: Model, firings: int, period: int) -> str:
     return " (give more --firings to compare them too)"
 
 
-def _unbounded_reasons(analysis: dict[str, Any]) -> list[str]:
-    """The places that gain tokens without bound, one reason each: the verdict is about the
-    simulation against the theory, but an unstable model never passes silently."""
-    return [u["text"] for u in analysis.get("unbounded_places") or []]
-
-
 def _overlap(a: Estimate, b: Estimate) -> bool:
     return a.interval.low <= b.interval.high and b.interval.low <= a.interval.high
 
 
 def _random(model: Model, exact: GraphAnalysis, settings: RunSettings,
-            progress: Callable[[str, int, np.ndarray], None] | None) -> dict[str, Any]:
+            progress: Callable[[str, int, np.ndarray], None] | None) -> Comparison:
     precision = DEFAULT_PRECISION if settings.precision is None else settings.precision
     seed, replications = settings.seed, settings.replications
     rec_est = estimate_with_executor(model, "recursion", settings, precision=precision,
@@ -251,38 +249,26 @@ def _random(model: Model, exact: GraphAnalysis, settings: RunSettings,
                        "which bounds it from below")
     if rec_est.target_met is False:
         reasons.append(f"the precision {precision} was not reached within the replication limit")
-    eta_mean = exact.howard.cycle_time
     eta_est = rec_est.by_transition
-    analysis = random_analysis_section(model, exact, rec_est)
-    simulation = estimate_section(model, sim_est, lower)
-    reasons += _unbounded_reasons(analysis)
-    return {
-        "analysis": analysis,
-        "simulation": simulation,
-        "comparison": {
-            "verdict": "agrees" if identical and overlap and above_lower else "disagrees",
-            "reasons": reasons,
-            "sample_path": {"identical": identical, "max_relative_difference": diff,
-                            "firings_compared": int(R * K * n), "replications_compared": int(R),
-                            "tolerance": PATH_RTOL},
-        },
-        "figures": {
-            "transient": _transient_figure(model, np.where(eta_est > 0, eta_est, eta_mean),
-                                           sim_times[:, 0, :], rec_batch.times[:, 0, :]),
-            "schedule": None,  # random durations have no periodic regime
-            "running_estimate": analysis["running_estimate"],
-            "replication_estimates": {"recursion": analysis["per_replication"],
-                                      "simulation": simulation["per_replication"]},
-        },
-        "settings": settings_section(settings, precision, rec_est.replications,
-                                     rec_est.firings),
-    }
+    return Comparison(
+        exact=exact,
+        verdict="agrees" if identical and overlap and above_lower else "disagrees",
+        reasons=reasons,
+        sample_path={"identical": identical, "max_relative_difference": diff,
+                     "firings_compared": int(R * K * n), "replications_compared": int(R),
+                     "tolerance": PATH_RTOL},
+        cycle_times_compared=None,
+        recursion=rec_est,
+        simulation=sim_est,
+        eta=np.where(eta_est > 0, eta_est, exact.howard.cycle_time),
+        simulated_paths=sim_times, recursion_paths=rec_batch.times,
+        precision=precision,
+    )
 
 
 def compare(model: Model, settings: RunSettings,
-            progress: Callable[[str, int, np.ndarray], None] | None = None) -> dict[str, Any]:
-    """Run both engines and judge: the ``analysis``, ``simulation``, ``comparison``,
-    ``figures`` and ``settings`` sections of a check document."""
+            progress: Callable[[str, int, np.ndarray], None] | None = None) -> Comparison:
+    """Run both engines on the model and judge whether the simulation agrees with the theory."""
     exact = analyze_graph(model.graph())
     if not model.is_random:
         return _fixed(model, exact, settings)

@@ -22,7 +22,7 @@ import sys
 from collections.abc import Mapping
 from importlib import metadata
 from pathlib import Path
-from typing import Any
+from typing import TYPE_CHECKING, Any
 
 import numpy as np
 
@@ -41,6 +41,9 @@ from .sensitivity import (
 )
 from .settings import RunSettings
 from .stability import fixed_unbounded, random_unbounded
+
+if TYPE_CHECKING:  # compare.py imports the SimPy engine; the documents need only its types
+    from .compare import Comparison, FixedRun
 
 __all__ = [
     "DOCUMENT_KIND",
@@ -423,10 +426,101 @@ def simulation_document(model: Model, est: Estimate, mean_value: HowardResult, p
     return doc
 
 
-def comparison_document(model: Model, sections: Mapping[str, Any]) -> dict[str, Any]:
-    """The document of ``check``: both sides, the comparison, the figures and the settings."""
+#: Transitions drawn in the transient figure.
+FIGURE_TRANSITIONS = 8
+#: Firings drawn in the transient figure.
+FIGURE_FIRINGS = 200
+#: Quantiles of x(k) − kλ over the compared replications, for the band of a random model.
+FIGURE_QUANTILES = (0.1, 0.5, 0.9)
+
+
+def _transient_figure(model: Model, eta: np.ndarray, sim: np.ndarray,
+                      rec: np.ndarray) -> dict[str, Any]:
+    """``x_t(k) − k·eta_t`` for the first firings of a few transitions: replication 0 of both
+    engines, and for several replications the quantiles over them (a band, not a tangle)."""
+    k_max = min(FIGURE_FIRINGS, sim.shape[0])
+    k = np.arange(1, k_max + 1)
+    shown = np.argsort(-eta, kind="stable")[:FIGURE_TRANSITIONS]
+    ids = model.transition_ids
+    figure: dict[str, Any] = {
+        "k": k.tolist(),
+        "cycle_time": {ids[t]: float(eta[t]) for t in shown},
+        "simulation": {ids[t]: (sim[:k_max, 0, t] - k * eta[t]).tolist() for t in shown},
+        "recursion": {ids[t]: (rec[:k_max, 0, t] - k * eta[t]).tolist() for t in shown},
+    }
+    if sim.shape[1] > 1:
+        levels = np.quantile(sim[:k_max, :, shown] - k[:, None, None] * eta[shown],
+                             FIGURE_QUANTILES, axis=1)  # (levels, k, shown)
+        figure["quantiles"] = {
+            "levels": list(FIGURE_QUANTILES), "replications": int(sim.shape[1]),
+            "simulation": {ids[t]: levels[:, :, i].tolist() for i, t in enumerate(shown)},
+        }
+    return figure
+
+
+def _schedule_figure(model: Model, exact: GraphAnalysis) -> dict[str, Any]:
+    ids = model.transition_ids
+    g = exact.graph
+    return {
+        "cycle_time": exact.cycle_time,
+        "start": {ids[t]: float(exact.start[t]) for t in range(g.n_transitions)},
+        "duration": {ids[t]: float(g.duration[t]) for t in range(g.n_transitions)},
+        "cycle_time_by_transition": {ids[t]: float(exact.howard.cycle_time[t])
+                                     for t in range(g.n_transitions)},
+    }
+
+
+def _fixed_simulation_section(model: Model, run: FixedRun) -> dict[str, Any]:
+    """The SimPy side of a check with fixed durations: exact after the transient."""
+    ids = model.transition_ids
+    lam = float(run.cycle_time.max())
+    return {
+        "cycle_time": lam, "cycle_time_ci": [lam, lam], "throughput": _throughput(lam),
+        "cycle_time_by_transition": {ids[t]: float(v) for t, v in enumerate(run.cycle_time)},
+        "critical_circuits": [], "bounds": None,
+        "firings_simulated": int(run.firings * model.n_transitions),
+        "cyclicity": run.span, "exact": True, "time_unit": model.time_unit, "engine": "simpy",
+        "method": (f"SimPy, {run.firings} firings, cycle time (x(K) - x(K - {run.span})) / "
+                   f"{run.span}"),
+        **utilization_section(model, run.utilization, run.busy),
+    }
+
+
+def comparison_document(model: Model, comparison: Comparison,
+                        settings: RunSettings) -> dict[str, Any]:
+    """The document of ``check``: both sides, the comparison, the figures and the settings.
+
+    An unstable model never passes silently: each place that gains tokens without bound adds
+    a reason (the verdict itself is about the simulation against the theory).
+    """
     doc = _base(model, "check")
-    doc.update(sections)
+    exact, rec, sim = comparison.exact, comparison.recursion, comparison.simulation
+    if rec is None:  # fixed durations: the SimPy side is a FixedRun
+        analysis = analysis_section(model, exact)
+        simulation = _fixed_simulation_section(model, sim)  # type: ignore[arg-type]
+        uniform = bool(np.all(comparison.eta == comparison.eta[0]))
+        figures = {"running_estimate": None, "replication_estimates": None,
+                   # a joint periodic schedule exists only when one cycle time rules them all
+                   "schedule": _schedule_figure(model, exact) if uniform else None}
+        settings_part = settings_section(settings, None, 1, sim.firings)  # type: ignore[union-attr]
+    else:
+        analysis = random_analysis_section(model, exact, rec)
+        simulation = estimate_section(model, sim, exact.cycle_time)  # type: ignore[arg-type]
+        figures = {"running_estimate": analysis["running_estimate"],
+                   "replication_estimates": {"recursion": analysis["per_replication"],
+                                             "simulation": simulation["per_replication"]},
+                   "schedule": None}  # random durations have no periodic regime
+        settings_part = settings_section(settings, comparison.precision, rec.replications,
+                                         rec.firings)
+    figures["transient"] = _transient_figure(model, comparison.eta, comparison.simulated_paths,
+                                             comparison.recursion_paths)
+    reasons = comparison.reasons + [u["text"] for u in analysis.get("unbounded_places") or []]
+    verdict: dict[str, Any] = {"verdict": comparison.verdict, "reasons": reasons,
+                               "sample_path": comparison.sample_path}
+    if comparison.cycle_times_compared is not None:
+        verdict["cycle_times_compared"] = comparison.cycle_times_compared
+    doc.update({"analysis": analysis, "simulation": simulation, "comparison": verdict,
+                "figures": figures, "settings": settings_part})
     return doc
 
 
