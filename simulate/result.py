@@ -384,16 +384,16 @@ def _sweep_point(out: PointOutcome, grid: Grid) -> dict[str, Any]:
             point["cycle_time_by_transition"] = dict(zip(ids, out.by_transition, strict=True))
         point.update(bounds=None, firings_simulated=0, replications=0)
     else:
-        crit = out.criticality
-        top = None if crit is None else int(np.argmax(crit))
+        util = out.utilization
+        top = None if util is None or np.all(np.isnan(util)) else int(np.nanargmax(util))
         point.update(
             bounds={"lower": out.lower, "upper": out.upper},
             relative_half_width=finite_or_none(iv.relative_half_width),
             precision_met=out.target_met, replications=out.replications,
             firings_per_replication=out.firings, warmup_firings=out.warmup,
             firings_simulated=out.firings * out.replications * model.n_transitions,
-            most_critical=None if top is None else
-            {"transition": ids[top], "share": float(crit[top])},  # type: ignore[index]
+            busiest=None if top is None else
+            {"transition": ids[top], "utilization": float(util[top])},  # type: ignore[index]
             per_replication=[float(v) for v in out.per_replication],  # type: ignore[union-attr]
         )
     point["differences"] = out.differences
@@ -433,7 +433,7 @@ def sweep_rows(document: Mapping[str, Any]) -> tuple[list[str], list[list[Any]]]
     columns = ["point", *targets, "status", "cycle_time", "cycle_time_low", "cycle_time_high",
                "throughput", "throughput_low", "throughput_high", "relative_half_width",
                "replications", "lower_bound", "upper_bound", "critical_circuit",
-               "most_critical", "most_critical_share"]
+               "busiest", "busiest_utilization"]
     for t in targets:
         columns += [f"difference_{t}", f"difference_{t}_low", f"difference_{t}_high"]
     rows = []
@@ -441,12 +441,12 @@ def sweep_rows(document: Mapping[str, Any]) -> tuple[list[str], list[list[Any]]]
         ci = p.get("cycle_time_ci") or [None, None]
         tci = p.get("throughput_ci") or [None, None]
         bounds = p.get("bounds") or {}
-        top = p.get("most_critical") or {}
+        top = p.get("busiest") or {}
         row = [p["point"], *(p["values"][t] for t in targets), p["status"], p["cycle_time"],
                ci[0], ci[1], p["throughput"], tci[0], tci[1], p.get("relative_half_width"),
                p.get("replications"), bounds.get("lower"), bounds.get("upper"),
                " -> ".join(p.get("critical_circuit") or p.get("deadlock") or []),
-               top.get("transition"), top.get("share")]
+               top.get("transition"), top.get("utilization")]
         for t in targets:
             diff = (p.get("differences") or {}).get(t) or {}
             low, high = diff.get("ci") or [None, None]

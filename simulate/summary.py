@@ -173,7 +173,8 @@ def sweep_text(doc: dict[str, Any]) -> str:
     points = doc["points"]
     header = ["point", *targets, f"cycle time ({unit.strip()})" if unit else "cycle time",
               "95 % CI", f"throughput per{unit or ' time unit'}",
-              "critical circuit / most critical"]
+              "critical circuit" + (" (random: of the mean durations; busiest server)"
+                                    if any(not p["exact"] for p in points) else "")]
     rows = []
     for p in points[:SWEEP_ROWS]:
         values = [f"{p['values'][t]:g}" for t in targets]
@@ -183,9 +184,10 @@ def sweep_text(doc: dict[str, Any]) -> str:
             continue
         low, high = p["cycle_time_ci"]
         ci = "exact" if p["exact"] else f"[{_num(low, 5)}, {_num(high, 5)}]"
-        top = p.get("most_critical")
-        where = (f"{top['transition']} ({100 * top['share']:.0f} % of firings)" if top
-                 else _circuit_or_dash(p.get("critical_circuit")))
+        top = p.get("busiest")
+        where = _circuit_or_dash(p.get("critical_circuit"))
+        if top:
+            where += f"; busiest {top['transition']} ({100 * top['utilization']:.0f} % busy)"
         rows.append([str(p["point"]), *values, _num(p["cycle_time"]), ci,
                      _num(p["throughput"], 4), where])
     widths = [max(len(r[i]) for r in [header, *rows]) for i in range(len(header))]

@@ -7,7 +7,10 @@ What each point gets
 - **Random durations**: the Lyapunov exponent estimated by replications of the max-plus
   recursion (replication/deletion, as ``analyze`` does it), its 95 % interval, the bounds (the
   cycle time of the mean durations below, the subadditive ``E Z(K)/K`` above), the critical
-  circuit of the mean durations and the transition most often critical.
+  circuit of the mean durations and the busiest server: the transition with a self-loop
+  whose servers are busy the largest share of the time (in a closed line of single servers,
+  utilization ``X·D_i`` is largest at the largest demand ``D_i``, the bottleneck of
+  asymptotic bound analysis).
 - **Not live** (a circuit emptied of tokens by the sweep): reported in its row, with the
   circuit; the other points go on.
 
@@ -107,19 +110,21 @@ def replicate_point(model: Model, seed: int, first: int, count: int, firings: in
 
     Returns the checkpoints and, per replication, the firing times at the checkpoints averaged
     over each strongly connected component (``series``, shape (J + 1, components)), ``Z(K)``
-    (``clearing``) and the firings each place set (``critical``).
+    (``clearing``) and the mean number of busy servers of each transition (``busy``).
     """
     from .experiment import run_replications
 
     batch = run_replications(model, "recursion", seed, range(first, first + count), firings,
                              block=block)
     means = _Components(model).means(batch.x)  # (J + 1, R, C)
+    horizon = batch.x[-1]
+    with np.errstate(divide="ignore", invalid="ignore"):
+        busy = np.where(horizon > 0, batch.busy / horizon, 0.0)  # (R, n) busy servers
     return {
         "checkpoints": batch.checkpoints.tolist(),
         "series": [means[:, i, :] for i in range(count)],
         "clearing": None if batch.clearing is None else batch.clearing.tolist(),
-        "critical": [batch.critical[i] for i in range(count)]
-        if batch.critical is not None else None,
+        "busy": [busy[i] for i in range(count)],
     }
 
 
@@ -147,7 +152,7 @@ class PointOutcome:
     firings: int = 0
     warmup: int = 0
     target_met: bool | None = None
-    criticality: np.ndarray | None = None  # per transition
+    utilization: np.ndarray | None = None  # per transition with servers, NaN elsewhere
     differences: dict[str, dict[str, Any]] = field(default_factory=dict)
 
 
@@ -236,14 +241,12 @@ class _State:
             self.runs[point, r] = {
                 "series": np.array(run["series"], dtype=np.float64),
                 "clearing": run["clearing"],
-                "critical": None if run["critical"] is None
-                else np.array(run["critical"], dtype=np.int64)}
+                "busy": np.array(run["busy"], dtype=np.float64)}
         self.resumed = len(self.exact) + len(self.runs)
 
     def text(self) -> str:
         runs = {f"{p}:{r}": {"series": v["series"].tolist(), "clearing": v["clearing"],
-                             "critical": None if v["critical"] is None
-                             else v["critical"].tolist()}
+                             "busy": v["busy"].tolist()}
                 for (p, r), v in sorted(self.runs.items())}
         return json.dumps({"document": STATE_DOCUMENT, "key": self.key,
                            "exact": {str(k): v for k, v in sorted(self.exact.items())},
@@ -363,8 +366,7 @@ class _Sweep:
                     "series": np.asarray(series, dtype=np.float64),
                     "clearing": None if result["clearing"] is None
                     else float(result["clearing"][k]),
-                    "critical": None if result["critical"] is None
-                    else np.asarray(result["critical"][k], dtype=np.int64)}
+                    "busy": np.asarray(result["busy"][k], dtype=np.float64)}
             self.state.dirty = True
             self.tasks_done += 1
             self._tick(finished)
@@ -395,12 +397,18 @@ class _Sweep:
         if all(run["clearing"] is not None for run in runs):
             clearing = np.array([run["clearing"] for run in runs]) / out.firings
             out.upper = max(out.lower or 0.0, replication_interval(clearing).high)
-        if all(run["critical"] is not None for run in runs):
-            share = np.sum([run["critical"] for run in runs], axis=0) / (out.firings * count)
-            per_t = np.zeros(model.n_transitions)
-            np.maximum.at(per_t, model.source, share)
-            out.criticality = per_t
+        out.utilization = np.mean([run["busy"] for run in runs], axis=0) / servers(model)
         return out
+
+
+def servers(model: Model) -> np.ndarray:
+    """Servers of each transition: the tokens of its self-loop (the fewest, if it has
+    several); NaN for a transition without one (its firings may overlap without limit)."""
+    out = np.full(model.n_transitions, np.inf)
+    loops = np.flatnonzero(model.source == model.target)
+    np.minimum.at(out, model.source[loops], model.tokens[loops].astype(np.float64))
+    out[~np.isfinite(out)] = np.nan
+    return out
 
 
 def _ranges(items: list[int]) -> list[tuple[int, int]]:
