@@ -68,7 +68,8 @@ def throughput_figure(target: str, series: Sequence[tuple[str, Sequence[Mapping[
             if label:
                 handles.append(Line2D([], [], color=colour, linestyle=DASHES[i],
                                       marker=MARKERS[i], markersize=4, label=_plain(label)))
-        handles.append(Patch(facecolor=SERIES[0], alpha=0.18, label="95 % interval (band)"))
+        if any(p.get("status") == "estimated" for _, points in series for p in points):
+            handles.append(Patch(facecolor=SERIES[0], alpha=0.18, label="95 % interval (band)"))
         if any(p.get("cycle_time") is None for _, points in series for p in points):
             handles.append(Line2D([], [], linestyle="none", marker="x", color=ACCENT,
                                   label="not live (deadlock)"))
@@ -121,7 +122,7 @@ def _table(document: Mapping[str, Any]) -> str:
     unit = time_unit(document)
     targets = [v["target"] for v in document["vary"]]
     last = targets[-1]
-    random = any(not p.get("exact") for p in document["points"])
+    random = any(p.get("status") == "estimated" for p in document["points"])
     rows = []
     for p in document["points"][:MAX_POINT_ROWS]:
         live = p.get("cycle_time") is not None

@@ -151,7 +151,7 @@ def parse_target(text: str, model: Model) -> Target:
     text = text.strip()
     head, _, field = text.rpartition(".")
     head, field = head.strip(), field.strip()
-    t = model._index.get(head)  # noqa: SLF001 - the model's own id index
+    t = model.transition_index(head) if head in model.transition_ids else None
     if t is not None and field not in ("tokens", "hold"):
         law = model.durations[t]
         fields = ["duration", *_law_fields(law)]

@@ -174,7 +174,7 @@ def sweep_text(doc: dict[str, Any]) -> str:
     header = ["point", *targets, f"cycle time ({unit.strip()})" if unit else "cycle time",
               "95 % CI", f"throughput per{unit or ' time unit'}",
               "critical circuit" + (" (random: of the mean durations; busiest server)"
-                                    if any(not p["exact"] for p in points) else "")]
+                                    if any(p["status"] == "estimated" for p in points) else "")]
     rows = []
     for p in points[:SWEEP_ROWS]:
         values = [f"{p['values'][t]:g}" for t in targets]

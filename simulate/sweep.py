@@ -18,13 +18,16 @@ Common random numbers
 ---------------------
 Replication ``r`` of every point draws from ``SeedSequence(seed, spawn_key=(r, kind, element,
 block))``: the same seed and replication index give every point the same stream for every
-element. Where a law's parameter changes, the ``k``-th draw keeps its index and moves with the
-parameter: exactly monotone for scale changes (``mean`` of exponential, gamma, Erlang, Weibull
-and log-normal, ``low``/``high`` of uniform and triangular, all of which numpy draws as a scale
-or shift of one standard draw) and for the ``cv`` of a log-normal and the ``shape`` of a Weibull
-(one normal or exponential draw per value, transformed); the ``cv`` of a gamma and the ``k`` of
-an Erlang change the shape of numpy's rejection sampler, which then uses other uniforms, so
-the draws of that element are common in distribution only (the other elements keep theirs).
+element. Where a law's parameter changes, the ``k``-th draw keeps its index and is the same
+standard draw transformed: numpy draws the exponential, gamma, Erlang and Weibull laws as a
+scale times a standard draw, the log-normal as ``exp(μ + σ z)`` of one normal ``z``, the
+uniform and triangular from one uniform, so changing a ``mean`` (or ``low``/``high``) moves
+every draw monotonically (a scale change multiplies them all), and the ``cv`` of a log-normal
+or the ``shape`` of a Weibull transform the same ``z`` or exponential draw. The ``cv`` of a
+gamma and the ``k`` of an Erlang change the shape of numpy's rejection sampler, which then
+consumes other uniforms: those draws are common in distribution only (the other elements
+keep theirs).
+
 The difference between neighbouring points is estimated *paired*: replication ``r`` of one
 point against replication ``r`` of the other, a Student-t interval over the differences. With
 positively correlated points its variance is ``Var X + Var Y − 2 Cov(X, Y)``, far below the sum
@@ -65,9 +68,9 @@ from typing import Any
 import numpy as np
 
 from .errors import ModelError
-from .files import STATE_DOCUMENT
 from .estimate import Interval, replication_interval
 from .experiment import DEFAULT_PRECISION, MAX_REPLICATIONS, _aligned, _Components, default_firings
+from .files import STATE_DOCUMENT
 from .grid import Grid, point_model
 from .modelfile import Model
 from .settings import RunSettings
@@ -374,6 +377,27 @@ class _Sweep:
 
         self.runner.run(tasks, done)
 
+    def differences(self, outcomes: list[PointOutcome]) -> None:
+        """The paired difference of the cycle time to the previous value of each target.
+
+        Both points are measured over the same span, after the larger of their two warm-ups:
+        with the same replications and the same firings the draws cancel as far as they can
+        (each point's own estimate keeps its own warm-up).
+        """
+        for out in outcomes:
+            for axis, target in enumerate(self.grid.targets):
+                j = self.grid.neighbour(out.index, axis)
+                prev = None if j is None else outcomes[j]
+                if prev is None or out.cycle_time is None or prev.cycle_time is None:
+                    continue
+                warmup = max(out.warmup, prev.warmup)
+                a, b = (None if p.per_replication is None
+                        else self._values(p.index, p.replications, warmup) for p in (out, prev))
+                entry = {"from_point": j, **_difference(a, b, out.cycle_time, prev.cycle_time)}
+                if not entry["exact"]:
+                    entry["warmup_firings"] = warmup
+                out.differences[target.text] = entry
+
     def _outcome(self, i: int, count: int, plan: tuple[int, int] | None,
                  warmup: int) -> PointOutcome:
         model = self.models[i]
@@ -422,27 +446,18 @@ def _ranges(items: list[int]) -> list[tuple[int, int]]:
     return out
 
 
-def _differences(outcomes: list[PointOutcome], grid: Grid) -> None:
-    """The paired difference of the cycle time to the previous value of each target."""
-    for out in outcomes:
-        for axis, target in enumerate(grid.targets):
-            j = grid.neighbour(out.index, axis)
-            if j is None or out.cycle_time is None or outcomes[j].cycle_time is None:
-                continue
-            prev = outcomes[j]
-            entry: dict[str, Any] = {"from_point": j}
-            a, b = out.per_replication, prev.per_replication
-            if a is None and b is None:
-                d = out.cycle_time - prev.cycle_time  # type: ignore[operator]
-                entry.update(cycle_time_difference=d, ci=[d, d], replications=0, exact=True)
-            else:
-                n = min(x.size for x in (a, b) if x is not None)
-                xs = a[:n] if a is not None else np.full(n, out.cycle_time)
-                ys = b[:n] if b is not None else np.full(n, prev.cycle_time)
-                iv = replication_interval(xs - ys)
-                entry.update(cycle_time_difference=iv.estimate, ci=[iv.low, iv.high],
-                             replications=n, exact=False)
-            out.differences[target.text] = entry
+def _difference(a: np.ndarray | None, b: np.ndarray | None, exact_a: float,
+                exact_b: float) -> dict[str, Any]:
+    """The paired difference ``a - b`` of per-replication values (None: an exact point)."""
+    if a is None and b is None:
+        d = exact_a - exact_b
+        return {"cycle_time_difference": d, "ci": [d, d], "replications": 0, "exact": True}
+    n = min(x.size for x in (a, b) if x is not None)
+    xs = a[:n] if a is not None else np.full(n, exact_a)
+    ys = b[:n] if b is not None else np.full(n, exact_b)
+    iv = replication_interval(xs - ys)
+    return {"cycle_time_difference": iv.estimate, "ci": [iv.low, iv.high], "replications": n,
+            "exact": False}
 
 
 def state_key(model: Model, grid: Grid, settings: RunSettings) -> dict[str, Any]:
@@ -474,5 +489,5 @@ def run_sweep(model: Model, grid: Grid, settings: RunSettings, *,
         except KeyboardInterrupt:
             state.save(now=True)  # what finished is kept; nothing else is written
             raise
-    _differences(outcomes, grid)
+    sweep.differences(outcomes)
     return outcomes, state.resumed
