@@ -341,10 +341,12 @@ class _Sweep:
 
     def _round(self, need: dict[int, int], have: dict[int, int],
                plans: dict[int, tuple[int, int]], finished: int) -> None:
-        """Run the replications every point of ``need`` asked for, in tasks sized so that
-        the workers have several each."""
+        """Run the replications every point of ``need`` asked for, as tasks."""
         tasks = []
-        per_point = max(1, math.ceil(2 * self.runner.slots / max(len(need), 1)))
+        # The recursion runs a task's replications together, vectorized: a firing of 10
+        # replications costs little more than one of 1. So a point's round is one task,
+        # split only while there are fewer tasks than workers.
+        per_point = max(1, math.ceil(self.runner.slots / max(len(need), 1)))
         for i, count in need.items():
             missing = [r for r in range(have[i], have[i] + count)
                        if (i, r) not in self.state.runs]

@@ -76,8 +76,18 @@ class TaskRunner:
 
     @property
     def slots(self) -> int:
-        """How many tasks can run at once, to size tasks (a cluster: as many as there are)."""
-        return 1 if self.local else self.workers if self.scheduler is None else 1 << 20
+        """How many tasks can run at once: 1 here, the local workers, or the threads of the
+        cluster's workers (tasks are sized by it; the results do not depend on it)."""
+        if self.local:
+            return 1
+        if self.scheduler is None:
+            return self.workers
+        self._open()
+        client = getattr(self._close, "__self__", None)  # close is the Client's own method
+        try:
+            return max(1, sum(client.nthreads().values()))  # type: ignore[union-attr]
+        except Exception:  # an older or other client: guess generously
+            return 2 * self.workers
 
     def __enter__(self) -> TaskRunner:
         return self
