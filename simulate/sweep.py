@@ -278,13 +278,15 @@ class _Sweep:
         self.runner, self.state, self.progress = runner, state, progress
         self.models = [point_model(model, grid, values) for values in grid.points()]
         self.tasks_done = self.tasks_total = 0
+        self.stage = "exact analysis"
         self.precision = settings.precision or DEFAULT_PRECISION
         self.first_round = settings.replications or 10
 
     def _tick(self, finished_points: int) -> None:
         if self.progress is not None:
-            self.progress(f"sweep: {self.tasks_done} of {self.tasks_total} tasks, "
-                          f"{finished_points} of {len(self.models)} points done")
+            self.progress(f"sweep, {self.stage}: {self.tasks_done} of {self.tasks_total} "
+                          f"tasks so far; {finished_points} of {len(self.models)} points "
+                          "finished")
 
     def run(self) -> list[PointOutcome]:
         todo = [Task(i, analyze_point, (m,)) for i, m in enumerate(self.models)
@@ -306,7 +308,10 @@ class _Sweep:
         need = dict.fromkeys(random, self.first_round)
         warmups: dict[int, int] = {}
         finished = len(self.models) - len(random)
+        rounds = 0
         while need:
+            rounds += 1
+            self.stage = f"round {rounds} of replications"
             self._round(need, have, plans, finished)
             nxt = {}
             for i in sorted(need):
