@@ -319,7 +319,8 @@ def make_grid(model: Model, vary: Mapping[str, Any] | Sequence[Any]) -> Grid:
         :data:`MAX_POINTS` points.
     """
     pairs: list[tuple[str, Any]] = []
-    items = vary.items() if isinstance(vary, Mapping) else vary
+    items = vary.items() if isinstance(vary, Mapping) else [vary] if isinstance(vary, str) \
+        else vary
     for entry in items:
         if isinstance(entry, str):
             if "=" not in entry:
