@@ -51,7 +51,9 @@ def throughput_figure(target: str, series: Sequence[tuple[str, Sequence[Mapping[
         ax = fig.add_subplot()
         handles = []
         for i, (label, points) in enumerate(series[:MAX_SERIES]):
-            live = [p for p in points if p.get("cycle_time") is not None]
+            # a cycle time of 0 has no finite throughput to draw
+            live = [p for p in points if p.get("throughput") is not None
+                    and p.get("cycle_time") is not None]
             xs = [p["values"][target] for p in live]
             ys = [p["throughput"] for p in live]
             low = [(p.get("throughput_ci") or [None, None])[0] for p in live]
