@@ -36,6 +36,7 @@ REQUIRED_SECTIONS = {
     "analyze": ("analysis",),
     "simulate": ("simulation",),
     "trace": ("verdict",),
+    "sweep": ("vary", "points"),
 }
 
 
@@ -323,6 +324,43 @@ JUDGEMENT = {"verdict": one_of("agrees", "disagrees"), "reasons": list_of(scalar
              "notes": list_of(scalar)}
 
 
+def _sweep(document: Mapping[str, Any], ids: set[str]) -> None:
+    """A sweep: its targets, and one point per combination of their values, in order."""
+    transition = member(ids, "must name a transition of model.transitions")
+    vary = document["vary"]
+    list_of(fields({"target": text, "values": list_of(finite, nonempty=True)},
+                   required=("target", "values")), nonempty=True)(vary, "vary")
+    targets = [v["target"] for v in vary]
+    count = math.prod(len(v["values"]) for v in vary)
+    number_pair = list_of(number, length=2)
+    point = fields({
+        "point": integer(0), "values": mapping_of(finite),
+        "status": one_of("exact", "estimated", "not live"), "exact": boolean,
+        "cycle_time": finite, "cycle_time_ci": number_pair, "throughput": finite,
+        "throughput_ci": list_of(nullable(number), length=2),
+        "critical_circuit": list_of(transition), "critical_circuits": list_of(list_of(transition)),
+        "deadlock": list_of(transition), "bounds": fields({"lower": number, "upper": number}),
+        "relative_half_width": number, "replications": integer(0),
+        "busiest": fields({"transition": transition, "utilization": finite},
+                          required=("transition", "utilization")),
+        "differences": mapping_of(fields({"from_point": index_below(count, "must be the "
+                                                                           "index of a point"),
+                                          "cycle_time_difference": finite,
+                                          "ci": number_pair})),
+    }, required=("values", "status"))
+    points = document["points"]
+    list_of(point, length=count)(points, "points")
+    for i, p in enumerate(points):
+        item = f"points[{i}]"
+        if p.get("point", i) != i:
+            raise ReportError(f"{item}.point", f"must be {i}: points are listed in order")
+        if sorted(p["values"]) != sorted(targets):
+            raise ReportError(f"{item}.values", "must hold one value for each target of vary "
+                              f"({', '.join(targets)})")
+        if p["status"] != "not live" and p.get("cycle_time") is None:
+            raise ReportError(f"{item}.cycle_time", "is required at a live point")
+
+
 def _structure(document: Any) -> None:
     """The rules without which nothing can be looked up: kind, version, model, ids."""
     if not isinstance(document, Mapping):
@@ -430,6 +468,8 @@ def check_document(document: Any) -> None:
         for key, check in JUDGEMENT.items():
             if document.get(key) is not None:
                 check(document[key], key)
+    elif command == "sweep":
+        _sweep(document, {str(t["id"]) for t in model["transitions"]})
     elif not document.get("analysis") and not document.get("simulation"):
         raise ReportError("analysis", "a document needs an analysis or a simulation section")
     ids = {str(t["id"]) for t in model["transitions"]}

@@ -25,7 +25,8 @@ def _masthead(document: Mapping[str, Any]) -> str:
     model = document["model"]
     command = get(document, "command")
     kind = {"check": "simulation checked against max-plus theory",
-            "analyze": "max-plus analysis", "simulate": "simulation"}.get(
+            "analyze": "max-plus analysis", "simulate": "simulation",
+            "sweep": "parameter sweep"}.get(
         command, f"result of “{e(str(command))}”" if command else "result")
     description = model.get("description")
     parts = [f'<p class="kicker">cyclecheck review page · {kind}</p>',

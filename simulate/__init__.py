@@ -2,7 +2,7 @@
 
 Everything the command line does, in Python, with the options named as on the command line::
 
-    from cyclecheck.simulate import load_model, analyze, simulate, check, trace
+    from cyclecheck.simulate import load_model, analyze, simulate, check, trace, sweep
 
     doc = check("models/packaging_cell.toml", report="page.html")
     doc["comparison"]["verdict"]            # 'agrees'
@@ -30,10 +30,12 @@ __all__ = [
     "check",
     "load_document",
     "load_model",
+    "points_frame",
     "report",
     "save_document",
     "save_page",
     "simulate",
+    "sweep",
     "trace",
 ]
 
@@ -47,16 +49,28 @@ _HOMES = {
     "check": ".api",
     "load_document": ".files",
     "load_model": ".modelfile",
+    "points_frame": ".api",
     "report": ".api",
     "save_document": ".api",
     "save_page": ".api",
     "simulate": ".api",
+    "sweep": ".api",
     "trace": ".api",
 }
 
 if TYPE_CHECKING:  # pragma: no cover
     from ..algebra.exceptions import CycleCheckError
-    from .api import analyze, check, report, save_document, save_page, simulate, trace
+    from .api import (
+        analyze,
+        check,
+        points_frame,
+        report,
+        save_document,
+        save_page,
+        simulate,
+        sweep,
+        trace,
+    )
     from .errors import ModelError
     from .files import load_document
     from .modelfile import Model, load_model

@@ -21,7 +21,8 @@ from __future__ import annotations
 
 import contextlib
 import os
-from collections.abc import Iterator, Mapping
+import sys
+from collections.abc import Iterator, Mapping, Sequence
 from pathlib import Path
 from typing import Any
 
@@ -36,10 +37,12 @@ __all__ = [
     "check",
     "load_document",
     "load_model",
+    "points_frame",
     "report",
     "save_document",
     "save_page",
     "simulate",
+    "sweep",
     "trace",
 ]
 
@@ -78,10 +81,11 @@ def _progress_line(settings: RunSettings, target: float | None
 
 
 def _outputs(report: PathLike | None = None, save: PathLike | None = None,
-             trace_log: PathLike | None = None, *, force: bool) -> list[Output]:
+             trace_log: PathLike | None = None, *, force: bool,
+             table: PathLike | None = None) -> list[Output]:
     """The outputs a command was asked for, checked before any work."""
     wanted = [(report, "page", "--report"), (save, "result", "--save"),
-              (trace_log, "log", "--trace")]
+              (trace_log, "log", "--trace"), (table, "table", "--csv")]
     outputs = [Output(path, kind, option=option) for value, kind, option in wanted
                if (path := _optional_path(value, option)) is not None]
     check_outputs(outputs, force=force)
@@ -104,6 +108,8 @@ def _finish(doc: dict[str, Any], outputs: list[Output], *, force: bool,
             out.content = dumps(doc) + "\n"
         elif out.kind == "log":
             out.content = log_text or ""
+        elif out.kind == "table":
+            out.content = _table_text(doc)
     write_outputs(outputs, force=force)
     return doc
 
@@ -296,6 +302,126 @@ def trace(model: ModelLike, log: PathLike, *, tolerance: float = 1e-6,
     loaded = _model(model)
     doc = trace_document(loaded, judge_log(loaded, log, tolerance=tolerance))
     return _finish(doc, outputs, force=force)
+
+
+def sweep(model: ModelLike, *, vary: Mapping[str, Any] | Sequence[Any],
+          seed: int | None = DEFAULT_SEED, precision: float | None = None,
+          replications: int | None = None, firings: int | None = None,
+          workers: int | None = None, scheduler: str | None = None, quiet: bool = False,
+          csv: PathLike | None = None, report: PathLike | None = None,
+          save: PathLike | None = None, resume: PathLike | None = None,
+          force: bool = False) -> dict[str, Any]:
+    """Run a model at every point of a grid of parameter values, in parallel.
+
+    Parameters
+    ----------
+    model : str, path-like or Model
+    vary : mapping or sequence
+        What to vary, as ``--vary`` takes it: ``{"press.mean": "10:14:5"}``,
+        ``["kanban cards.tokens=1:6", "press.cv=0.2,0.5"]`` or ``[("press.mean", [10, 12])]``.
+        Targets: ``TRANSITION.duration``, ``TRANSITION.PARAM`` (a parameter of its law),
+        ``FROM->TO.tokens``, ``FROM->TO.hold`` (a place's label may stand for ``FROM->TO``);
+        values ``a:b`` (integers), ``a:b:n`` (n evenly spaced) or ``v1,v2,...``. Several
+        targets make a grid.
+    seed, precision, replications, firings, workers, scheduler, quiet
+        As for :func:`analyze`: every random point runs replications until its interval's
+        relative half-width is at most ``precision`` (default 0.01); ``replications`` is the
+        first round of every point (default 10). The numbers do not depend on ``workers`` or
+        ``scheduler``.
+    csv, report, save : str or path-like, optional
+        Also write the points as CSV (``point,...``), the review page, the document.
+    resume : str or path-like, optional
+        A state file: finished tasks are saved there as they finish; a later run of the same
+        sweep with the same file skips them and gives the same document.
+    force : bool
+        Replace files that are not earlier outputs of the same kind; start a state file of
+        another sweep afresh.
+
+    Returns
+    -------
+    dict
+        The document ``cyclecheck sweep --json`` prints: ``vary``, ``points`` (one per point:
+        ``values``, ``cycle_time``, ``cycle_time_ci``, ``throughput``, ``critical_circuit``,
+        ``differences``, ...). :func:`points_frame` makes a DataFrame of the points.
+
+    Examples
+    --------
+    >>> doc = sweep("models/kanban_loop.toml", vary=["kanban cards.tokens=1:6"], quiet=True)
+    >>> [round(p["cycle_time"], 3) for p in doc["points"]]
+    [20.0, 10.0, 6.667, 6.0, 6.0, 6.0]
+    """
+    from .experiment import DEFAULT_PRECISION
+    from .grid import make_grid
+    from .result import sweep_document
+    from .sweep import run_sweep
+
+    settings = RunSettings.resolve(seed=seed, precision=precision, replications=replications,
+                                   firings=firings, workers=workers, scheduler=scheduler,
+                                   progress=not quiet)
+    outputs = _outputs(report, save, force=force, table=csv)
+    state = _optional_path(resume, "--resume")
+    if state is not None:
+        check_outputs([*outputs, Output(state, "state", option="--resume")], force=force)
+    loaded = _model(model)
+    grid = make_grid(loaded, vary)
+    settings = settings.replace(precision=settings.precision or DEFAULT_PRECISION)
+    notes: list[str] = []
+
+    def note(text: str) -> None:
+        if not quiet:
+            print(f"cyclecheck: {text}", file=sys.stderr)
+
+    with _progress_line(settings, None) as line:
+        outcomes, resumed = run_sweep(loaded, grid, settings, state_path=state, force=force,
+                                      progress=None if line is None else line.show, note=note)
+    if resumed:
+        note(f"{resumed} finished tasks were taken from {state}")
+    for target in grid.targets:
+        law = (loaded.durations if target.element == "transition"
+               else loaded.holds)[target.index]
+        if target.field in ("duration", "hold") and law.is_random:
+            notes.append(f"{target.text} sets a fixed {target.field}, replacing "
+                         f"{law.describe()}; to keep the law, vary one of its parameters")
+    doc = sweep_document(loaded, grid, outcomes, settings, notes)
+    return _finish(doc, outputs, force=force)
+
+
+def points_frame(document: Mapping[str, Any]) -> Any:
+    """The points of a sweep document as a pandas DataFrame (the columns of ``--csv``, one
+    row per point, indexed by ``point``).
+
+    Examples
+    --------
+    >>> frame = points_frame(sweep("models/kanban_loop.toml", vary={"kanban cards.tokens": "1:3"},
+    ...                            quiet=True))
+    >>> frame["cycle_time"].round(3).tolist()
+    [20.0, 10.0, 6.667]
+    """
+    import pandas as pd
+
+    from .result import sweep_rows
+
+    if document.get("command") != "sweep":
+        raise ArgumentError("points_frame takes the document of a sweep, got one of "
+                            f"{document.get('command')!r}")
+    columns, rows = sweep_rows(document)
+    return pd.DataFrame(rows, columns=columns).set_index("point")
+
+
+def _table_text(document: Mapping[str, Any]) -> str:
+    """The ``--csv`` table of a sweep document."""
+    import csv
+    import io
+
+    from .result import sweep_rows
+
+    columns, rows = sweep_rows(document)
+    buffer = io.StringIO()
+    writer = csv.writer(buffer, lineterminator="\n")
+    writer.writerow(columns)
+    writer.writerows([["" if v is None else repr(v) if isinstance(v, float) else v
+                       for v in row] for row in rows])
+    return buffer.getvalue()
 
 
 def report(result: Mapping[str, Any] | PathLike, output: PathLike, *,

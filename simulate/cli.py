@@ -249,6 +249,44 @@ def trace(model: Path, log: Path, as_json: bool, tolerance: float, report_path: 
     sys.exit(EXIT_AGREES if doc["verdict"] == "agrees" else EXIT_DISAGREES)
 
 
+@main.command(short_help="A grid of parameter values, in parallel.", epilog=EXIT_CODES)
+@click.argument("model", type=click.Path(path_type=Path))
+@click.option("--vary", "vary", multiple=True, required=True, metavar="TARGET=VALUES",
+              help="What to vary and its values (repeat for a grid). TARGET: TRANSITION.duration,"
+                   " TRANSITION.PARAM (a parameter of its law, e.g. press.mean, press.cv), "
+                   "FROM->TO.tokens, FROM->TO.hold (a place's label may stand for FROM->TO). "
+                   "VALUES: a:b (the integers a to b), a:b:n (n evenly spaced) or v1,v2,...")
+@RUN
+@click.option("--csv", "csv_path", type=click.Path(path_type=Path), default=None,
+              metavar="FILE", help="Also write the points as a CSV table (first column point).")
+@REPORT
+@SAVE
+@click.option("--resume", "resume_path", type=click.Path(path_type=Path), default=None,
+              metavar="STATE", help="Keep finished tasks in this state file as they finish; run "
+                                    "again with the same file to go on from there.")
+@FORCE
+@_guarded
+def sweep(model: Path, vary: tuple[str, ...], as_json: bool, seed: int,
+          precision: float | None, replications: int | None, firings: int | None,
+          workers: int | None, scheduler: str | None, quiet: bool, csv_path: Path | None,
+          report_path: Path | None, save_path: Path | None, resume_path: Path | None,
+          force: bool) -> None:
+    """Run MODEL at every point of a grid of parameter values (--vary), in parallel.
+
+    Fixed durations give the exact cycle time and critical circuit of every point; random
+    ones the estimate, its 95 % interval and bounds, on common random numbers across points.
+    """
+    from . import api, summary
+
+    doc = api.sweep(model, vary=list(vary), **_run_options(seed, precision, replications,
+                                                          firings, workers, scheduler, quiet,
+                                                          as_json),
+                    csv=csv_path, report=report_path, save=save_path, resume=resume_path,
+                    force=force)
+    _emit(doc, as_json, summary.sweep_text)
+    _wrote([csv_path, report_path, save_path], quiet)
+
+
 def _emit(doc: dict[str, Any], as_json: bool, text: Callable[[dict[str, Any]], str]) -> None:
     from .result import dumps
 

@@ -291,12 +291,21 @@ def _run_chunk(engine: str, model: Model, seed: int, replications: Sequence[int]
     return _simpy_batch(model, seed, replications, firings, block, record)
 
 
-def open_executor(workers: int = 1,
-                  scheduler: str | None = None) -> tuple[Executor | None, Callable]:
+def _ignore_interrupts() -> None:
+    """In a worker process: leave Ctrl-C to the main process, which stops the workers."""
+    import signal
+
+    signal.signal(signal.SIGINT, signal.SIG_IGN)
+
+
+def open_executor(workers: int = 1, scheduler: str | None = None, *,
+                  ignore_interrupts: bool = False) -> tuple[Executor | None, Callable]:
     """An executor for replications and a function that closes it.
 
     ``scheduler`` is the address of a Dask scheduler (``tcp://host:port``); else ``workers > 1``
-    gives a local process pool; else ``None`` (run in this process).
+    gives a local process pool; else ``None`` (run in this process). ``ignore_interrupts``:
+    local worker processes ignore Ctrl-C (the caller stops them; see
+    :mod:`cyclecheck.simulate.tasks`).
     """
     if scheduler:
         try:
@@ -311,7 +320,8 @@ def open_executor(workers: int = 1,
                              item="--scheduler") from err
         return client.get_executor(pure=False), client.close
     if workers > 1:
-        pool = ProcessPoolExecutor(max_workers=workers)
+        pool = ProcessPoolExecutor(max_workers=workers,
+                                   initializer=_ignore_interrupts if ignore_interrupts else None)
         return pool, pool.shutdown
     return None, lambda: None
 

@@ -13,6 +13,8 @@ result     JSON whose top object holds ``"document": "cyclecheck-result"``
 page       HTML whose second line is the page marker (:data:`cyclecheck.reports.MARKER`)
 log        CSV whose first line is exactly :data:`LOG_HEADER` (``simulate --trace``)
 table      CSV whose first line starts with :data:`TABLE_HEADER_START` (``sweep --csv``)
+state      JSON whose top object holds ``"document": "cyclecheck-sweep-state"``
+           (``sweep --resume``)
 ========== ============================================================================
 
 A new file whose name ends in the suffix of another kind (a page named ``x.json``, a result
@@ -48,6 +50,7 @@ from .errors import ArgumentError, ModelError
 __all__ = [
     "KINDS",
     "LOG_HEADER",
+    "STATE_DOCUMENT",
     "TABLE_HEADER_START",
     "Output",
     "check_output",
@@ -59,14 +62,17 @@ __all__ = [
 
 #: The kinds of output and the words messages use for them.
 KINDS = {"result": "a cyclecheck result document", "page": "a cyclecheck review page",
-         "log": "a cyclecheck event log", "table": "a cyclecheck sweep table"}
+         "log": "a cyclecheck event log", "table": "a cyclecheck sweep table",
+         "state": "a cyclecheck sweep state file"}
 #: File-name suffixes that announce each kind (a new file named for another kind is refused).
 SUFFIXES = {"result": (".json",), "page": (".html", ".htm"), "log": (".csv", ".parquet"),
-            "table": (".csv",)}
+            "table": (".csv",), "state": (".json",)}
 #: First line of the event logs cyclecheck writes.
 LOG_HEADER = "transition,firing,start,time"
 #: Start of the first line of the sweep tables cyclecheck writes.
 TABLE_HEADER_START = "point,"
+#: The value of ``"document"`` in the state files of resumable sweeps.
+STATE_DOCUMENT = "cyclecheck-sweep-state"
 
 PathLike = str | os.PathLike[str]
 
@@ -149,6 +155,8 @@ def kind_of(path: PathLike) -> str | None:
         return "page"
     if text.lstrip().startswith("{") and f'"document": "{DOCUMENT_KIND}"' in text:
         return "result"
+    if text.lstrip().startswith("{") and f'"document": "{STATE_DOCUMENT}"' in text:
+        return "state"
     if first.rstrip("\r") == LOG_HEADER:
         return "log"
     if first.startswith(TABLE_HEADER_START):

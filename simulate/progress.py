@@ -54,6 +54,12 @@ class ProgressLine:
             text += f" ±{100 * half / abs(mean):.2g} %"
             if self.target:
                 text += f" (target {100 * self.target:.2g} %)"
+        self.show(text)
+
+    def show(self, text: str) -> None:
+        """Replace the line by ``text`` (after the first second of the run)."""
+        if time.monotonic() - self.started < DELAY:
+            return
         self.stream.write("\r\033[K" + text)
         self.stream.flush()
         self.shown = True

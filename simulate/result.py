@@ -42,8 +42,10 @@ from .sensitivity import (
 from .settings import RunSettings
 from .stability import fixed_unbounded, random_unbounded
 
-if TYPE_CHECKING:  # compare.py imports the SimPy engine; the documents need only its types
+if TYPE_CHECKING:  # the runners' own types: the documents import no engine and no runner
     from .compare import Comparison, FixedRun
+    from .grid import Grid
+    from .sweep import PointOutcome
 
 __all__ = [
     "DOCUMENT_KIND",
@@ -61,6 +63,8 @@ __all__ = [
     "settings_section",
     "simulation_document",
     "stability_section",
+    "sweep_document",
+    "sweep_rows",
     "trace_document",
     "utilization_section",
 ]
@@ -529,6 +533,117 @@ def trace_document(model: Model, judgement: Mapping[str, Any]) -> dict[str, Any]
     doc = _base(model, "trace")
     doc.update(judgement)
     return doc
+
+
+#: How a sweep's points share their random draws, and how their differences are estimated.
+CRN_TEXT = ("common random numbers: replication r of every point draws from the same streams "
+            "(SeedSequence(seed, spawn_key=(r, kind, element, block))); a difference between "
+            "neighbouring points is a paired Student-t interval over the replications they "
+            "share")
+
+
+def _sweep_point(out: PointOutcome, grid: Grid) -> dict[str, Any]:
+    """One row of a sweep: the point's values, its cycle time and what sets it."""
+    model = out.model
+    ids = model.transition_ids
+    point: dict[str, Any] = {
+        "point": out.index,
+        "values": {t.text: v for t, v in zip(grid.targets, out.values, strict=True)},
+        "status": out.status,
+        "exact": out.status == "exact",
+    }
+    if out.status == "not live":
+        point.update(cycle_time=None, cycle_time_ci=None, throughput=0.0, throughput_ci=None,
+                     bounds=None, critical_circuits=[], critical_circuit=[],
+                     deadlock=[ids[t] for t in out.deadlock or []],
+                     reason="a circuit holds no token: deadlock, the line never fires",
+                     differences={})
+        return point
+    lam = float(out.cycle_time)  # type: ignore[arg-type]
+    iv = out.interval
+    low, high = (lam, lam) if iv is None else (iv.low, iv.high)
+    circuits = [[ids[t] for t in c] for c in out.circuits]
+    point.update(
+        cycle_time=lam, cycle_time_ci=[low, high], throughput=_throughput(lam),
+        throughput_ci=[_throughput(high), _throughput(low) if low > 0 else None],
+        critical_circuits=circuits, critical_circuit=circuits[0] if circuits else [],
+        critical_circuits_basis="mean durations" if iv is not None else "point",
+        deadlock=None,
+    )
+    if iv is None:
+        if model.n_transitions <= MAX_LISTED and out.by_transition is not None:
+            point["cycle_time_by_transition"] = dict(zip(ids, out.by_transition, strict=True))
+        point.update(bounds=None, firings_simulated=0, replications=0)
+    else:
+        util = out.utilization
+        top = None if util is None or np.all(np.isnan(util)) else int(np.nanargmax(util))
+        point.update(
+            bounds={"lower": out.lower, "upper": out.upper},
+            relative_half_width=finite_or_none(iv.relative_half_width),
+            precision_met=out.target_met, replications=out.replications,
+            firings_per_replication=out.firings, warmup_firings=out.warmup,
+            firings_simulated=out.firings * out.replications * model.n_transitions,
+            busiest=None if top is None else
+            {"transition": ids[top], "utilization": float(util[top])},  # type: ignore[index]
+            per_replication=[float(v) for v in out.per_replication],  # type: ignore[union-attr]
+        )
+    point["differences"] = out.differences
+    return point
+
+
+def sweep_document(model: Model, grid: Grid, outcomes: list[PointOutcome],
+                   settings: RunSettings, notes: list[str] | None = None) -> dict[str, Any]:
+    """The document of ``sweep``: the grid and one row per point (``points``), in point order
+    (the last target varying fastest)."""
+    doc = _base(model, "sweep")
+    points = [_sweep_point(out, grid) for out in outcomes]
+    live = [p for p in points if p["cycle_time"] is not None]
+    random = any(p["status"] == "estimated" for p in points)
+    doc.update(
+        time_unit=model.time_unit,
+        vary=grid.describe(),
+        shape=list(grid.shape),
+        points=points,
+        best_point=min(live, key=lambda p: (p["cycle_time"], p["point"]))["point"]
+        if live else None,
+        firings_simulated=sum(p.get("firings_simulated") or 0 for p in points),
+        common_random_numbers=CRN_TEXT if random else None,
+        notes=list(notes or []),
+    )
+    firings = max((p.get("firings_per_replication") or 0 for p in points), default=0)
+    doc["settings"] = settings_section(settings, settings.precision if random else None,
+                                       settings.replications if random else None,
+                                       firings or None)
+    return doc
+
+
+def sweep_rows(document: Mapping[str, Any]) -> tuple[list[str], list[list[Any]]]:
+    """The points of a sweep document as a table: the columns of ``sweep --csv`` (``point``
+    first) and one row per point."""
+    targets = [v["target"] for v in document["vary"]]
+    columns = ["point", *targets, "status", "cycle_time", "cycle_time_low", "cycle_time_high",
+               "throughput", "throughput_low", "throughput_high", "relative_half_width",
+               "replications", "lower_bound", "upper_bound", "critical_circuit",
+               "busiest", "busiest_utilization"]
+    for t in targets:
+        columns += [f"difference_{t}", f"difference_{t}_low", f"difference_{t}_high"]
+    rows = []
+    for p in document["points"]:
+        ci = p.get("cycle_time_ci") or [None, None]
+        tci = p.get("throughput_ci") or [None, None]
+        bounds = p.get("bounds") or {}
+        top = p.get("busiest") or {}
+        row = [p["point"], *(p["values"][t] for t in targets), p["status"], p["cycle_time"],
+               ci[0], ci[1], p["throughput"], tci[0], tci[1], p.get("relative_half_width"),
+               p.get("replications"), bounds.get("lower"), bounds.get("upper"),
+               " -> ".join(p.get("critical_circuit") or p.get("deadlock") or []),
+               top.get("transition"), top.get("utilization")]
+        for t in targets:
+            diff = (p.get("differences") or {}).get(t) or {}
+            low, high = diff.get("ci") or [None, None]
+            row += [diff.get("cycle_time_difference"), low, high]
+        rows.append(row)
+    return columns, rows
 
 
 def _corner_matches(analysis: GraphAnalysis) -> bool | None:

@@ -5,7 +5,7 @@ from __future__ import annotations
 import math
 from typing import Any
 
-__all__ = ["analysis_text", "check_text", "simulation_text", "trace_text"]
+__all__ = ["analysis_text", "check_text", "simulation_text", "sweep_text", "trace_text"]
 
 #: Rows of a list shown in a summary (the smallest slacks, the largest derivatives, ...); the
 #: rest is counted ("and N more").
@@ -235,4 +235,55 @@ def trace_text(doc: dict[str, Any]) -> str:
         which = "lower bound" if basis.startswith("lower") else "model"
         lines.append(f"cycle time in log {_num(est)}{_unit(doc)}; {which} {model_value}"
                      f"{_unit(doc)}")
+    return "\n".join(lines)
+
+
+#: Points of a sweep printed on the terminal (the rest are in --json, --csv and the page).
+SWEEP_ROWS = 200
+
+
+def _circuit_or_dash(circuit: list[str] | None) -> str:
+    return _circuit_text(circuit) if circuit else "-"
+
+
+def sweep_text(doc: dict[str, Any]) -> str:
+    """Summary of ``cyclecheck sweep``: one line per point."""
+    unit = _unit(doc)
+    targets = [v["target"] for v in doc["vary"]]
+    points = doc["points"]
+    header = ["point", *targets, f"cycle time ({unit.strip()})" if unit else "cycle time",
+              "95 % CI", f"throughput per{unit or ' time unit'}",
+              "critical circuit" + (" (random: of the mean durations; busiest server)"
+                                    if any(p["status"] == "estimated" for p in points) else "")]
+    rows = []
+    for p in points[:SWEEP_ROWS]:
+        values = [f"{p['values'][t]:g}" for t in targets]
+        if p["cycle_time"] is None:
+            rows.append([str(p["point"]), *values, "not live", "",
+                         "0", "deadlock: " + _circuit_or_dash(p.get("deadlock"))])
+            continue
+        low, high = p["cycle_time_ci"]
+        ci = "exact" if p["exact"] else f"[{_num(low, 5)}, {_num(high, 5)}]"
+        top = p.get("busiest")
+        where = _circuit_or_dash(p.get("critical_circuit"))
+        if top:
+            where += f"; busiest {top['transition']} ({100 * top['utilization']:.0f} % busy)"
+        rows.append([str(p["point"]), *values, _num(p["cycle_time"]), ci,
+                     _num(p["throughput"], 4), where])
+    widths = [max(len(r[i]) for r in [header, *rows]) for i in range(len(header))]
+    lines = [f"{doc['model']['name']}: sweep of {len(points)} points"]
+    lines += ["  ".join(cell.ljust(w) for cell, w in zip(row, widths, strict=True)).rstrip()
+              for row in [header, *rows]]
+    if len(points) > SWEEP_ROWS:
+        lines.append(f"... {len(points) - SWEEP_ROWS} more points (--json, --csv, --report)")
+    best = doc.get("best_point")
+    if best is not None:
+        p = points[best]
+        values = ", ".join(f"{t} = {p['values'][t]:g}" for t in targets)
+        lines.append(f"shortest cycle time {_num(p['cycle_time'])}{unit} at point {best} "
+                     f"({values})")
+    if doc.get("common_random_numbers"):
+        lines.append("random points share their draws (common random numbers): differences "
+                     "between neighbours are in --json under \"differences\"")
+    lines += [f"note: {n}" for n in doc.get("notes") or []]
     return "\n".join(lines)
