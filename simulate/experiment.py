@@ -49,6 +49,7 @@ from .modelfile import Model
 __all__ = [
     "Batch",
     "Estimate",
+    "component_growth",
     "estimate_cycle_time",
     "estimate_with_executor",
     "open_executor",
@@ -472,6 +473,13 @@ def estimate_cycle_time(model: Model, engine: str = "recursion", *, seed: int = 
                     components.headline(growth), state["warmup"], batch.firings,
                     len(batch.replications), upper, utilization, crit, history, target_met,
                     batch, bool(state["at_limit"]))
+
+
+def component_growth(model: Model, est: Estimate) -> tuple[np.ndarray, np.ndarray]:
+    """Each transition's strongly connected component, and each replication's growth rate
+    after the warm-up averaged over each component: shape (replications, components)."""
+    components = _Components(model)
+    return components.labels, components.means(_growth(est.batch, est.warmup_firings))
 
 
 def default_firings(model: Model, engine: str) -> int:
