@@ -148,12 +148,16 @@ def check_model(model: Model, *, seed: int = 1, precision: float | None = None,
     return doc
 
 
-def judge_trace(model: Model, log: Path, *, tolerance: float = 1e-6) -> dict[str, Any]:
-    """Judge an event log of any simulator against the model's equations."""
-    from .tracecheck import judge_log
+def judge_trace(model: Model, log: Any, *, tolerance: float = 1e-6, progress: bool = False,
+                **options: Any) -> dict[str, Any]:
+    """Judge an event log (a CSV or Parquet path, or a pandas table) of any simulator against
+    the model; ``options`` as :func:`cyclecheck.simulate.judge.judge_log` (``alpha``,
+    ``partial``, ``columns``, ``rename``, ``time_scale``, ``seed``, ``precision``, ...)."""
+    from .judge import judge_log
 
     doc = _base(model, "trace")
-    doc.update(judge_log(model, log, tolerance=tolerance))
+    with _progress_line(progress, None) as line:
+        doc.update(judge_log(model, log, tolerance=tolerance, progress=line, **options))
     return doc
 
 
