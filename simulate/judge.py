@@ -39,15 +39,15 @@ from .logcycle import (
     MAX_COMPONENTS,
     LogCycleTime,
     ModelCycleTime,
+    circuit_components,
     log_cycle_times,
     model_cycle_time,
     model_precision,
-    circuit_components,
 )
 from .logformat import log_format
 from .logstats import Finding, Judged, figure_data, judge_durations, judge_holds
 from .modelfile import Model
-from .tracecheck import MAX_LISTED, ExactCheck, check_events
+from .tracecheck import MAX_LISTED, ExactCheck, check_events, check_tolerance
 
 if TYPE_CHECKING:
     import pandas as pd
@@ -95,7 +95,8 @@ def judge_log(model: Model, log: str | os.PathLike[str] | pd.DataFrame, *,
     """
     import pandas as pd
 
-    _alpha(options.get("alpha", DEFAULT_ALPHA))
+    _alpha(options.get("alpha", DEFAULT_ALPHA))  # bad options fail before a long read
+    check_tolerance(options.get("tolerance", 1e-6))
     fmt = log_format(model.transition_ids, columns=columns, rename=rename,
                      time_scale=time_scale)
     progress = options.get("progress")
@@ -138,7 +139,8 @@ def judge_events(model: Model, log: EventLog, *, alpha: float = DEFAULT_ALPHA,
             not_judged += [{"element": "transition", "id": a, "what": "everything",
                             "reason": "no row in the log"} for a in absent]
         else:
-            reasons.append(f"{len(absent)} transitions of the model have no row in the log: "
+            reasons.append(f"{_count(len(absent), 'transition')} of the model "
+                           f"{'has' if len(absent) == 1 else 'have'} no row in the log: "
                            f"{shown} (pass --partial to judge the others)")
 
     stage("testing durations and holds")
@@ -198,6 +200,10 @@ def judge_events(model: Model, log: EventLog, *, alpha: float = DEFAULT_ALPHA,
         "certain_disagreements": certain,
     })
     return doc
+
+
+def _count(n: int, noun: str) -> str:
+    return f"{n} {noun}" + ("" if n == 1 else "s")
 
 
 def _agreement(model: Model, exact: ExactCheck, findings: list[Finding],

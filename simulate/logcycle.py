@@ -42,9 +42,17 @@ from .estimate import batch_means, choose_batch_count, mser
 from .eventlog import KEY_LIMIT, EventLog
 from .modelfile import Model
 
-__all__ = ["MAX_COMPONENTS", "MIN_BATCH_VALUES", "ComponentCycleTime", "LogCycleTime",
-           "ModelCycleTime", "log_cycle_times", "model_cycle_time", "model_precision",
-           "circuit_components"]
+__all__ = [
+    "MAX_COMPONENTS",
+    "MIN_BATCH_VALUES",
+    "ComponentCycleTime",
+    "LogCycleTime",
+    "ModelCycleTime",
+    "circuit_components",
+    "log_cycle_times",
+    "model_cycle_time",
+    "model_precision",
+]
 
 MIN_BATCH_VALUES = 100
 """Fewest increments after the warm-up for batch means in one run (the correlation check of

@@ -1,7 +1,8 @@
-r"""Judge an event log of any simulator against the model's max-plus equations.
+r"""The exact part of the judge: an event log against the model's max-plus equations.
 
-An event log (see :mod:`.eventlog`) lists completed firings. Firing ``k`` of ``t`` is judged
-*locally*, from the logged completion times of the firings it waits for: with
+(The statistics of random models and the verdict are :mod:`.judge`.) An event log (see
+:mod:`.eventlog`) lists completed firings. Firing ``k`` of ``t`` is judged *locally*, from the
+logged completion times of the firings it waits for: with
 :math:`\operatorname{term}_p(k) = 0` for :math:`k \le m_p`, else :math:`x_u(k - m_p) + h_p(k)`,
 
 .. math::  s_t(k) = \max_{p = (u \to t)} \operatorname{term}_p(k), \qquad x_t(k) = s_t(k) + d_t(k).
@@ -45,7 +46,7 @@ from .eventlog import MAX_FIRING, EventLog, _fmt, _sort_key, read_log
 from .modelfile import Model
 
 __all__ = ["MAX_FIRING", "MAX_LISTED", "MIN_RATE_FIRINGS", "RATE_NOTE_TOLERANCE", "EventLog",
-           "ExactCheck", "check_events", "read_log", "support_bounds"]
+           "ExactCheck", "check_events", "check_tolerance", "read_log", "support_bounds"]
 
 MAX_LISTED = 20
 """Violations spelled out in ``reasons`` and ``first_violations``; the rest are counted."""
@@ -140,7 +141,8 @@ class _Index:
         return found, pos
 
 
-def _tolerance(tolerance: float) -> float:
+def check_tolerance(tolerance: float) -> float:
+    """The tolerance as a float; a ModelError (item ``tolerance``) unless finite and >= 0."""
     if (isinstance(tolerance, bool) or not isinstance(tolerance, (int, float, np.floating))
             or not math.isfinite(tolerance) or tolerance < 0):
         raise ModelError(f"must be a finite number >= 0, got {tolerance!r}", item="tolerance")
@@ -256,13 +258,20 @@ class ExactCheck:
         return int(self.judged.sum())
 
     def absent(self, model: Model) -> list[str]:
-        """Transitions with no row in the log (in some replication: named with it)."""
+        """Transitions with no row in the log; one absent from some replications only is
+        named with them, e.g. ``pack (replications "2", "5")``."""
         log, n = self.log, model.n_transitions
-        missing = np.flatnonzero(~self.present)
-        if log.n_replications == 1:
-            return [model.transition_ids[u] for u in missing]
-        return [f'{model.transition_ids[u % n]} (replication "{log.replication_labels[u // n]}")'
-                for u in missing]
+        grid = ~self.present.reshape(log.n_replications, n)
+        out = []
+        for t in np.flatnonzero(grid.any(axis=0)).tolist():
+            reps = np.flatnonzero(grid[:, t])
+            if reps.size == log.n_replications:
+                out.append(model.transition_ids[t])
+            else:
+                labels = ", ".join(f'"{log.replication_labels[r]}"' for r in reps[:5])
+                more = " ..." if reps.size > 5 else ""
+                out.append(f"{model.transition_ids[t]} (replications {labels}{more})")
+        return out
 
     def section(self, model: Model) -> dict[str, Any]:
         """The keys of the judgement document that come from the exact part."""
@@ -298,7 +307,7 @@ class ExactCheck:
 def check_events(model: Model, log: EventLog, *, tolerance: float = 1e-6,
                  max_listed: int = MAX_LISTED) -> ExactCheck:
     """The exact part of the judge on a checked :class:`EventLog` (see the module doc)."""
-    tol = _tolerance(tolerance)
+    tol = check_tolerance(tolerance)
     ids = model.transition_ids
     hold_lo, hold_hi = _bounds(model.holds)
     dur_lo, dur_hi = _bounds(model.durations)
@@ -322,9 +331,10 @@ def check_events(model: Model, log: EventLog, *, tolerance: float = 1e-6,
                    (4, s + dhi, x, x, s + dlo)] if s is not None else
                   [(5, x, low + dlo, x, low + dlo), (6, high + dhi, x, x, low + dlo)])
         for code, a, b, value, lower in checks:  # the first violation found is kept
-            hit = _below(a, b, tol) & judged & (kind == 0)
-            kind[hit], expected[hit] = code, (b if code % 2 else a)[hit]
-            when[hit] = np.minimum(value, lower)[hit]
+            hit = np.flatnonzero(_below(a, b, tol) & judged & (kind == 0))
+            if hit.size:
+                kind[hit], expected[hit] = code, (b if code % 2 else a)[hit]
+                when[hit] = np.minimum(value[hit], lower[hit])
 
     first = np.r_[True, u[1:] != u[:-1]]
     gap, hole_count, needed_by, from_one = _holes(model, log, pairs, first)

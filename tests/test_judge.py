@@ -174,7 +174,8 @@ def test_missing_transition_disagrees_unless_partial(press):
     frame = frame[frame["transition"] != "pack"]
     doc = judge_log(model, frame, model_estimate=estimate)
     assert doc["verdict"] == "disagrees" and doc["absent_transitions"] == ["pack"]
-    assert any('have no row in the log: "pack"' in r for r in doc["reasons"])
+    assert any('1 transition of the model has no row in the log: "pack"' in r
+               for r in doc["reasons"])
     doc = judge_log(model, frame, model_estimate=estimate, partial=True)
     assert doc["verdict"] == "agrees", doc["reasons"]
     assert {"element": "transition", "id": "pack", "what": "everything",
@@ -247,6 +248,10 @@ def test_replications_are_judged_one_by_one(press):
     first = doc["first_violations"][0]
     assert first["replication"] == "r3" and first["rule"] == "duration"
     assert 'firing 30 of "pack" in replication "r3" took 1.7' in first["message"]
+    gap = frame[(frame["replication"] != "r2") | (frame["transition"] != "pack")]
+    doc = judge_log(model, gap, model_estimate=estimate)
+    assert doc["verdict"] == "disagrees"
+    assert doc["absent_transitions"] == ['pack (replications "r2")']
     twice = pd.concat([frame, frame.iloc[[5]]], ignore_index=True)
     with pytest.raises(ModelError, match=r'in replication "r1" is logged twice'):
         judge_log(model, twice, model_estimate=estimate)

@@ -171,3 +171,15 @@ def test_repeated_firing_and_unknown_transition_name_the_line(setup):
     result = _invoke(path, log)
     assert result.exit_code == 2 and 'unknown transition "packer"; did you mean "pack"?' \
         in result.stderr and "--rename" in result.stderr
+
+
+def test_partial_through_the_command_line(setup):
+    """A transition with no row: exit 1 naming it; with --partial, exit 0 and it is listed."""
+    _model, path, tmp, ours, _ = setup
+    log = tmp / "no_pack.csv"
+    ours[ours["transition"] != "pack"].to_csv(log, index=False)
+    result = _invoke(path, log, "--precision", "0.02")
+    assert result.exit_code == 1 and 'has no row in the log: "pack" (pass' in result.stdout
+    result = _invoke(path, log, "--precision", "0.02", "--partial", "--json")
+    assert result.exit_code == 0, result.output
+    assert json.loads(result.stdout)["absent_transitions"] == ["pack"]

@@ -11,13 +11,15 @@ Each round runs, in alternating order, two child processes timed from spawn to e
   firing, the tests of durations and cycle time, the model's own estimate (to 1 %, a fixed
   cost independent of the log) and the JSON document.
 
-The table gives medians and minima of wall and CPU time and the peak memory; the ratio is
-trace against the baseline in the same round. In-process, one run also splits trace into its
-stages (reading, the judgement with a precomputed model estimate, the model estimate). The
-verdict of every run is checked to be "agrees" (the log follows the model).
+The table gives medians and minima of wall and CPU time and the peak memory of the child; the
+ratio is trace against the baseline in the same round. After all the child processes, one run
+in this process splits trace into its stages (reading, the judgement with a precomputed model
+estimate, the model estimate): last, because a child forked from a large parent inherits its
+peak memory figure. The verdict of every run is checked to be "agrees" (the log follows the
+model).
 
-Run with ``python tests/bench/bench_trace.py [--repeat R] [--keep DIR]``: about 3 minutes,
-of which a minute writes the logs (kept in DIR with ``--keep`` for later runs).
+Run with ``python tests/bench/bench_trace.py [--repeat R] [--keep DIR] [--sizes 1e7,1e6]``:
+about 5 minutes, of which half a minute writes the logs (kept in DIR with ``--keep``).
 """
 
 from __future__ import annotations
@@ -37,7 +39,8 @@ from _graphs import CYCLECHECK, PYTHON, median_min, run_measured
 
 ROOT = Path(__file__).resolve().parents[2]
 MODEL = ROOT / "models" / "closed_line_exponential.toml"
-SIZES = {"1e7 rows, 100 replications": (100, 20_000), "1e6 rows, one run": (1, 200_000)}
+SIZES = {"1e7": ("1e7 rows, 100 replications", 100, 20_000),
+         "1e6": ("1e6 rows, one run", 1, 200_000)}
 
 
 def write_log(path: Path, replications: int, firings: int, seed: int = 7) -> int:
@@ -93,10 +96,12 @@ def main() -> None:
     parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     parser.add_argument("--repeat", type=int, default=3, help="rounds")
     parser.add_argument("--keep", type=Path, default=None, help="folder to keep the logs in")
+    parser.add_argument("--sizes", default="1e7,1e6", help="which logs: 1e7, 1e6 or both")
     args = parser.parse_args()
     folder = args.keep or Path(tempfile.mkdtemp(prefix="bench_trace_"))
     folder.mkdir(parents=True, exist_ok=True)
-    for label, (reps, firings) in SIZES.items():
+    logs = []
+    for label, reps, firings in (SIZES[s] for s in args.sizes.split(",")):
         log = folder / f"log_{reps}x{firings}.csv"
         if not log.exists():
             t0 = time.perf_counter()
@@ -126,9 +131,11 @@ def main() -> None:
         cpu_ratio = [t.cpu / b.cpu for t, b in zip(runs["cyclecheck trace"],
                                                     runs["pandas.read_csv"], strict=True)]
         print(f"trace / read_csv: wall {median_min(ratio)[0]:.2f}x, CPU "
-              f"{median_min(cpu_ratio)[0]:.2f}x (medians of the per-round ratios)")
-        print("stages in process (CPU s): " + ", ".join(f"{k} {v:.2f}" for k, v in
-                                                        stages(log).items()), flush=True)
+              f"{median_min(cpu_ratio)[0]:.2f}x (medians of the per-round ratios)", flush=True)
+        logs.append((label, log))
+    for label, log in logs:
+        print(f"{label}, stages in this process (CPU s): " + ", ".join(
+            f"{k} {v:.2f}" for k, v in stages(log).items()), flush=True)
     if args.keep is None:
         for p in folder.iterdir():
             p.unlink()
