@@ -16,7 +16,7 @@ from cyclecheck.simulate.judge import judge_log
 from cyclecheck.simulate.logformat import LogFormat, log_format, parse_columns
 from cyclecheck.simulate.modelfile import load_model
 
-from tests.test_judge import CONVEYOR, PRESS_LINE
+from tests.judge_models import CONVEYOR, PRESS_LINE
 
 NAMES = {"arrive": "Arrival", "press": "Press #1", "pack": "Case packer"}
 
