@@ -198,6 +198,8 @@ def welch_t(a: float, se_a: float, df_a: float, b: float, se_b: float,
     :math:`(s_a^2 + s_b^2)^2 / (s_a^4 / \nu_a + s_b^4 / \nu_b)`."""
     from scipy.stats import t as student
 
+    unit = max(abs(a), abs(b), se_a, se_b) or 1.0  # scale-free: no overflow of the squares
+    a, b, se_a, se_b = a / unit, b / unit, se_a / unit, se_b / unit
     var = se_a**2 + se_b**2
     if var == 0:
         same = a == b

@@ -199,7 +199,21 @@ def judge_events(model: Model, log: EventLog, *, alpha: float = DEFAULT_ALPHA,
         "absent_transitions": absent,
         "certain_disagreements": certain,
     })
-    return doc
+    return _json_ready(doc)
+
+
+def _json_ready(value: Any) -> Any:
+    """The document with every number JSON can hold: NaN and infinities become None (a log
+    with absurd times still gets a judgement, not a crash when it is printed)."""
+    if isinstance(value, dict):
+        return {k: _json_ready(v) for k, v in value.items()}
+    if isinstance(value, list | tuple):
+        return [_json_ready(v) for v in value]
+    if isinstance(value, float | np.floating):
+        return float(value) if math.isfinite(value) else None
+    if isinstance(value, np.integer):
+        return int(value)
+    return value
 
 
 def _count(n: int, noun: str) -> str:
@@ -337,7 +351,7 @@ def _cycle_time(model: Model, log: EventLog, exact: ExactCheck, *, precision: fl
         entry.update(log=e.estimate, log_ci=[e.low, e.high], log_method=e.method,
                      warmup_firings=e.warmup_firings, firings=e.firings, note=e.note,
                      statistic=stat, df=df, p_value=p,
-                     combined_se=math.sqrt(e.se**2 + lam_se**2))
+                     combined_se=math.hypot(e.se, lam_se))
         summary = (f"the log's cycle time {e.estimate:.6g}{unit} (95 % interval "
                    f"[{e.low:.6g}, {e.high:.6g}], {e.method}) against the model's "
                    f"{lam:.6g}{unit} ([{lam - lam_half:.6g}, {lam + lam_half:.6g}]), "

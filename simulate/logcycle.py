@@ -15,7 +15,7 @@ logged transitions of their completion times :math:`x_t(k)`:
   is Student's over the replications (Law & Kelton, ch. 9.4.1).
 
 The model's value comes from independent replications of the recursion
-(:func:`~.experiment.estimate_with_executor`) to a relative precision several times tighter
+(:func:`~.experiment.estimate_cycle_time`) to a relative precision several times tighter
 than the log's interval. The two are compared by Welch's two-sided t test with both standard
 errors (:func:`~.gof.welch_t`). Only components that have a circuit and whose cycle time is
 random are tested: a deterministic one is judged exactly, firing by firing.
@@ -32,7 +32,7 @@ from __future__ import annotations
 import itertools
 import math
 from collections.abc import Callable
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
 from typing import Any
 
 import numpy as np
@@ -101,11 +101,21 @@ def model_cycle_time(model: Model, *, precision: float = 0.005, seed: int = 1, w
                      ) -> ModelCycleTime:
     """The Lyapunov exponent of each component, by replications of the recursion run until the
     95 % interval of the slowest component has the relative half-width ``precision``."""
-    from .experiment import component_growth, estimate_with_executor
+    from .experiment import (
+        component_growth,
+        default_firings,
+        estimate_cycle_time,
+        open_executor,
+    )
 
-    est = estimate_with_executor(model, "recursion", seed=seed, precision=precision,
-                                 replications=None, firings=None, workers=workers,
-                                 scheduler=scheduler, progress=progress)
+    executor, close = open_executor(workers, scheduler)
+    try:
+        est = estimate_cycle_time(model, "recursion", seed=seed, precision=precision,
+                                  firings=default_firings(model, "recursion"),
+                                  executor=executor, chunks=max(workers, 1) if executor else 1,
+                                  progress=progress)
+    finally:
+        close()
     labels, growth = component_growth(model, est)  # (R, C)
     r = growth.shape[0]
     sd = growth.std(axis=0, ddof=1)
@@ -149,10 +159,11 @@ class LogCycleTime:
     not_judged: dict[int, str]
 
 
-def _series(log: EventLog, labels: np.ndarray, wanted: np.ndarray,
-            present: np.ndarray) -> list[tuple[int, int, np.ndarray, np.ndarray]]:
+def _series(log: EventLog, labels: np.ndarray, wanted: np.ndarray, present: np.ndarray,
+            scale: float = 1.0) -> list[tuple[int, int, np.ndarray, np.ndarray]]:
     """``(replication, component, firing numbers, y)`` per series: the mean completion time over
-    the component's logged transitions, where all of them have that firing logged."""
+    the component's logged transitions, where all of them have that firing logged, in units
+    of ``scale``."""
     n_comp = int(labels.max()) + 1
     use = np.zeros(n_comp, dtype=bool)
     use[wanted] = True
@@ -174,11 +185,11 @@ def _series(log: EventLog, labels: np.ndarray, wanted: np.ndarray,
     if size <= 4 * rows.size + 1024:  # dense: two bincounts instead of a sort
         counts = np.bincount(key, minlength=size)
         cells = np.flatnonzero(counts)
-        sums = np.bincount(key, weights=log.time[rows], minlength=size)[cells]
+        sums = np.bincount(key, weights=log.time[rows] / scale, minlength=size)[cells]
         counts = counts[cells]
     else:
         cells, inverse, counts = np.unique(key, return_inverse=True, return_counts=True)
-        sums = np.bincount(inverse, weights=log.time[rows], minlength=cells.size)
+        sums = np.bincount(inverse, weights=log.time[rows] / scale, minlength=cells.size)
     cell_series, cell_k = cells // width, cells % width
     full = counts == members.ravel()[cell_series]
     out = []
@@ -200,8 +211,10 @@ def log_cycle_times(log: EventLog, labels: np.ndarray, wanted: np.ndarray,
     """The log's cycle time of each wanted component (see the module doc)."""
     from scipy.stats import t as student
 
+    # in units of the latest time: sums and squares cannot overflow, whatever the time unit
+    scale = float(log.time.max()) or 1.0
     by_comp: dict[int, list[tuple[np.ndarray, np.ndarray]]] = {int(c): [] for c in wanted}
-    for _, c, ks, ys in _series(log, labels, wanted, present):
+    for _, c, ks, ys in _series(log, labels, wanted, present, scale):
         by_comp[c].append((ks, ys))
     estimates: dict[int, ComponentCycleTime] = {}
     skipped: dict[int, str] = {}
@@ -217,7 +230,9 @@ def log_cycle_times(log: EventLog, labels: np.ndarray, wanted: np.ndarray,
         if isinstance(result, str):
             skipped[c] = result
         else:
-            estimates[c] = result
+            estimates[c] = replace(result, estimate=result.estimate * scale,
+                                   se=result.se * scale, low=result.low * scale,
+                                   high=result.high * scale)
     return LogCycleTime(estimates, skipped)
 
 

@@ -152,8 +152,9 @@ def judge_durations(model: Model, exact: ExactCheck, *, seed: int = 1) -> Judged
     not_judged: list[dict[str, str]] = []
     certain: list[str] = []
     counts = np.bincount(t, minlength=model.n_transitions)
-    sums = np.bincount(t, weights=d, minlength=model.n_transitions)
-    squares = np.bincount(t, weights=d * d, minlength=model.n_transitions)
+    unit = float(d.max()) if d.size and d.max() > 0 else 1.0  # moments without overflow
+    sums = np.bincount(t, weights=d / unit, minlength=model.n_transitions) * unit
+    squares = np.bincount(t, weights=(d / unit) ** 2, minlength=model.n_transitions)
     u = _pit(table, t, d)
     continuous = np.array([law.is_continuous for law in table.laws] + [True])[table.codes]
     ks = ks_grouped(np.where(continuous[t], u, 0.0), t, model.n_transitions)
@@ -174,7 +175,8 @@ def judge_durations(model: Model, exact: ExactCheck, *, seed: int = 1) -> Judged
                                "reason": why})
             continue
         mean = sums[e] / n
-        sd = math.sqrt(max(squares[e] / n - mean * mean, 0.0) * n / (n - 1))
+        m1 = mean / unit
+        sd = unit * math.sqrt(max(squares[e] / n - m1 * m1, 0.0) * n / (n - 1))
         from scipy.stats import t as student
 
         half = float(student.ppf(0.975, n - 1)) * sd / math.sqrt(n)
@@ -332,10 +334,15 @@ def judge_holds(model: Model, exact: ExactCheck) -> Judged:
                                   f"of {law.describe()} shown exactly")
         findings.append(row["fit_test"])
         if min(expect[j], n_used[j] - expect[j]) >= 5:
-            z = (n_cens[j] - expect[j]) / math.sqrt(var[j])
+            gap = n_cens[j] - expect[j]
+            if var[j] > 0:
+                z = gap / math.sqrt(var[j])
+                p = float(2.0 * ndtr(-abs(z)))
+            else:  # every chance is 0 or 1: the count is certain under the model
+                z, p = (0.0, 1.0) if abs(gap) < 0.5 else (math.copysign(math.inf, gap), 0.0)
             row["censoring_test"] = Finding(
                 "place", name, "hold censoring", "z test of the count of holds hidden by a "
-                "later token", float(z), float(2.0 * ndtr(-abs(z))), int(n_used[j]),
+                "later token", float(z), p, int(n_used[j]),
                 f"{int(n_cens[j])} of {int(n_used[j])} holds hidden by a later token, "
                 f"{expect[j]:.4g} expected")
             findings.append(row["censoring_test"])

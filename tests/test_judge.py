@@ -387,3 +387,17 @@ def test_cycle_time_series_matches_a_pandas_twin(press):
         k0 = e.warmup_firings
         plain = (ys[-1] - ys[k0]) / (ks[-1] - ks[k0])
         assert e.low <= plain <= e.high or abs(plain - e.estimate) < 0.01 * e.estimate
+
+
+@pytest.mark.parametrize("factor", [1e250, 1e-250])
+def test_absurd_time_units_give_a_judgement(press, factor):
+    """A log in absurd units (a forgotten --time-scale gone wild): the statistics are computed
+    in units of the largest time, so no sum of squares overflows; the durations are far off
+    the model's laws and the document prints as JSON."""
+    model, estimate = press
+    frame = engine_log(model, 400, seed=3)
+    frame[["start", "time"]] *= factor
+    doc = judge_log(model, frame, model_estimate=estimate)
+    assert doc["verdict"] == "disagrees"
+    assert any(t["rejected"] for t in doc["tests"] if t["kind"] == "duration mean")
+    dumps(doc)
