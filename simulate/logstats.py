@@ -143,6 +143,8 @@ def _observed_durations(model: Model, exact: ExactCheck) -> tuple[np.ndarray, np
 
 def judge_durations(model: Model, exact: ExactCheck, *, seed: int = 1) -> Judged:
     """Tests of the durations of every transition with a random law (see the module doc)."""
+    from scipy.stats import t as student
+
     log = exact.log
     rows, d, source = _observed_durations(model, exact)
     t = log.transition[rows]
@@ -177,8 +179,6 @@ def judge_durations(model: Model, exact: ExactCheck, *, seed: int = 1) -> Judged
         mean = sums[e] / n
         m1 = mean / unit
         sd = unit * math.sqrt(max(squares[e] / n - m1 * m1, 0.0) * n / (n - 1))
-        from scipy.stats import t as student
-
         half = float(student.ppf(0.975, n - 1)) * sd / math.sqrt(n)
         row.update(observed_mean=mean, observed_sd=sd, observed_mean_ci=[mean - half,
                                                                          mean + half])
@@ -203,9 +203,10 @@ def judge_durations(model: Model, exact: ExactCheck, *, seed: int = 1) -> Judged
                                       fit["statistic"], fit["p_value"], n, fit["summary"])
             row["counts"] = fit["counts"]
             if off:
-                certain.append(f'{off} durations of "{tid}" are not among the values of '
+                certain.append(f'{off} duration{"s" if off > 1 else ""} of "{tid}" '
+                               f'{"are" if off > 1 else "is"} not among the values of '
                                f"{law.describe()} (for example {_fmt(fit['example'])}): a "
-                               "resampled list cannot give them")
+                               "resampled list cannot give it")
         findings += [row["fit_test"], row["mean_test"]]
     samples = Samples("duration", np.arange(model.n_transitions), d, u, t)
     return Judged(findings, out_rows, samples, certain, not_judged)

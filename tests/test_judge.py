@@ -232,7 +232,7 @@ def test_resampled_durations_are_judged_by_counts(tmp_path):
     frame.loc[frame["firing"] > k, ["start", "time"]] += 0.25
     doc = judge_log(model, frame, precision=0.01)
     assert doc["verdict"] == "disagrees" and doc["violations"] == 0
-    assert doc["certain_disagreements"][0].startswith('1 durations of "sort" are not among')
+    assert doc["certain_disagreements"][0].startswith('1 duration of "sort" is not among')
 
 
 # --------------------------------------------------------------------------------- holds
