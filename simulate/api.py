@@ -267,25 +267,53 @@ def check(model: ModelLike, *, seed: int | None = DEFAULT_SEED,
     return _finish(doc, outputs, force=force)
 
 
-def trace(model: ModelLike, log: PathLike, *, tolerance: float = 1e-6,
-          report: PathLike | None = None, save: PathLike | None = None,
-          force: bool = False) -> dict[str, Any]:
+def trace(model: ModelLike, log: PathLike | Any, *, alpha: float = 0.05,
+          partial: bool = False, columns: str | Mapping[str, str] | None = None,
+          rename: str | list[str] | Mapping[str, str] | None = None, time_scale: float = 1.0,
+          tolerance: float = 1e-6, seed: int | None = DEFAULT_SEED,
+          precision: float | None = None, workers: int | None = None,
+          scheduler: str | None = None, quiet: bool = False, report: PathLike | None = None,
+          save: PathLike | None = None, force: bool = False,
+          model_estimate: Any = None) -> dict[str, Any]:
     """Judge an event log of any simulator against the model.
+
+    Fixed durations are judged exactly, firing by firing; random ones statistically (the fit
+    and mean of the durations, the holds the log shows, the cycle time of each strongly
+    connected component against the model's Lyapunov exponent), all tests in one Holm family
+    at ``alpha``.
 
     Parameters
     ----------
     model : str, path-like or Model
-    log : str or path-like
-        The event log (CSV ``transition,firing,time[,start]``).
+    log : str, path-like or pandas.DataFrame
+        The event log: CSV or Parquet with the columns ``transition,firing,time`` and
+        optionally ``start`` and ``replication``, or a table in memory.
+    alpha : float
+        Family-wise error rate of the statistical tests.
+    partial : bool
+        Judge the logged transitions only and list the others (else a transition without a
+        row makes the verdict "disagrees").
+    columns, rename, time_scale
+        How to read a log of another simulator: ``"transition=Activity,time=End"``, a
+        two-column CSV file or ``"LOGNAME=ID"`` texts (or a dict), and the factor that turns
+        the log's times into model time units.
     tolerance : float
         Relative tolerance on firing times.
+    seed, precision, workers, scheduler, quiet
+        For the model's cycle-time estimate (``precision`` default: several times tighter
+        than the log's interval), as on the command line.
     report, save, force
         As for :func:`analyze`.
+    model_estimate : ModelCycleTime, optional
+        Python only: the model's cycle-time estimate computed once
+        (:func:`cyclecheck.simulate.logcycle.model_cycle_time`), for judging many logs of one
+        model.
 
     Returns
     -------
     dict
-        The judgement document ``cyclecheck trace --json`` prints (``verdict``, ``reasons``).
+        The judgement document ``cyclecheck trace --json`` prints (``verdict``, ``reasons``
+        and the keys listed in the README).
 
     Examples
     --------
@@ -295,12 +323,23 @@ def trace(model: ModelLike, log: PathLike, *, tolerance: float = 1e-6,
     >>> trace("models/packaging_cell.toml", log)["verdict"]
     'agrees'
     """
+    from .judge import judge_log
     from .result import trace_document
-    from .tracecheck import judge_log
 
+    settings = RunSettings.resolve(seed=seed, precision=precision, workers=workers,
+                                   scheduler=scheduler, progress=not quiet)
     outputs = _outputs(report, save, force=force)
     loaded = _model(model)
-    doc = trace_document(loaded, judge_log(loaded, log, tolerance=tolerance))
+    if isinstance(rename, str):
+        rename = [rename]
+    with _progress_line(settings, None) as line:
+        judgement = judge_log(loaded, log, columns=columns, rename=rename,
+                              time_scale=time_scale, alpha=alpha, partial=partial,
+                              tolerance=tolerance, seed=settings.seed,
+                              precision=settings.precision, workers=settings.workers,
+                              scheduler=settings.scheduler, model_estimate=model_estimate,
+                              progress=line)
+    doc = trace_document(loaded, judgement, settings)
     return _finish(doc, outputs, force=force)
 
 

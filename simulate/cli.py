@@ -227,23 +227,51 @@ def report(result: Path, output: Path, force: bool) -> None:
 @click.argument("model", type=click.Path(path_type=Path))
 @click.argument("log", type=click.Path(path_type=Path))
 @JSON
+@click.option("--alpha", type=float, default=0.05, show_default=True,
+              help="Family-wise error rate of the statistical tests (Holm).")
+@click.option("--partial", is_flag=True,
+              help="Judge the transitions that are logged; list the others as not judged.")
+@click.option("--columns", default=None, metavar="OURS=THEIRS,...",
+              help="Column names of the log, e.g. transition=Activity,time=End,start=Begin,"
+                   "replication=Run.")
+@click.option("--rename", multiple=True, metavar="FILE|LOGNAME=ID",
+              help="Map the log's transition names to model ids: a two-column CSV file or "
+                   "LOGNAME=ID (repeat the option).")
+@click.option("--time-scale", type=float, default=1.0, show_default=True,
+              help="Factor turning the log's times into model time units.")
 @click.option("--tolerance", type=float, default=1e-6, show_default=True,
               help="Relative tolerance on firing times.")
+@click.option("--seed", type=int, default=1, show_default=True,
+              help="Seed of the model's cycle-time estimate (and of Monte Carlo p-values).")
+@click.option("--precision", type=float, default=None,
+              help="Relative half-width asked of the model's cycle-time estimate.  [default: "
+                   "three times tighter than the log's]")
+@click.option("--workers", type=int, default=None,
+              help="Local worker processes for the model's estimate.  [default: all cores]")
+@click.option("--scheduler", default=None, metavar="ADDRESS",
+              help="Address of a Dask scheduler for the model's estimate.")
 @REPORT
 @SAVE
 @FORCE
 @QUIET
 @_guarded
-def trace(model: Path, log: Path, as_json: bool, tolerance: float, report_path: Path | None,
-          save_path: Path | None, force: bool, quiet: bool) -> None:
-    """Judge an event log of any simulator (CSV: transition,firing,time[,start]) against MODEL.
+def trace(model: Path, log: Path, as_json: bool, alpha: float, partial: bool,
+          columns: str | None, rename: tuple[str, ...], time_scale: float, tolerance: float,
+          seed: int, precision: float | None, workers: int | None, scheduler: str | None,
+          report_path: Path | None, save_path: Path | None, force: bool, quiet: bool) -> None:
+    """Judge an event log of any simulator (CSV or Parquet: transition,firing,time[,start]
+    [,replication]) against MODEL.
 
-    Exit 0 when the log is consistent with the model, 1 when it is not.
+    Fixed durations are judged exactly; random ones statistically (fit and mean of the
+    durations, the holds the log shows, the cycle time against the model's), at a family-wise
+    error rate --alpha. Exit 0 when the log is consistent with the model, 1 when not.
     """
     from . import api, summary
 
-    doc = api.trace(model, log, tolerance=tolerance, report=report_path, save=save_path,
-                    force=force)
+    doc = api.trace(model, log, alpha=alpha, partial=partial, columns=columns,
+                    rename=list(rename) or None, time_scale=time_scale, tolerance=tolerance,
+                    seed=seed, precision=precision, workers=workers, scheduler=scheduler,
+                    quiet=quiet or as_json, report=report_path, save=save_path, force=force)
     _emit(doc, as_json, summary.trace_text)
     _wrote([report_path, save_path], quiet)
     sys.exit(EXIT_AGREES if doc["verdict"] == "agrees" else EXIT_DISAGREES)

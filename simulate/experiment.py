@@ -53,6 +53,7 @@ from .settings import RunSettings
 __all__ = [
     "Batch",
     "Estimate",
+    "component_growth",
     "estimate_cycle_time",
     "estimate_with_executor",
     "open_executor",
@@ -566,6 +567,13 @@ def utilization_per_server(graph: Any, busy: np.ndarray,
         per_server = np.minimum(busy_servers / servers, 1.0)  # rounding only
     per_server = np.where(servers > 0, per_server, np.nan).mean(axis=0)
     return per_server, busy_servers.mean(axis=0)
+
+
+def component_growth(model: Model, est: Estimate) -> tuple[np.ndarray, np.ndarray]:
+    """Each transition's strongly connected component, and each replication's growth rate
+    after the warm-up averaged over each component: shape (replications, components)."""
+    components = _Components(model)
+    return components.labels, components.means(_growth(est.batch, est.warmup_firings))
 
 
 def default_firings(model: Model, engine: str) -> int:

@@ -39,6 +39,7 @@ from functools import cached_property
 from typing import Any, ClassVar
 
 import numpy as np
+from numpy.typing import ArrayLike
 
 from .errors import shown
 
@@ -120,6 +121,18 @@ class Distribution:
         """The parameters as written in a model file."""
         raise NotImplementedError
 
+    #: False for laws with atoms (a fixed value, a resampled list): their fit is judged by
+    #: counts, not by a continuous distribution function.
+    is_continuous: ClassVar[bool] = True
+
+    def cdf(self, x: ArrayLike) -> np.ndarray:
+        """Distribution function ``P(X <= x)``, elementwise (0 below the support)."""
+        raise NotImplementedError
+
+    def ppf(self, q: ArrayLike) -> np.ndarray:
+        """Quantile function: the smallest ``x`` with ``cdf(x) >= q``, for ``q`` in [0, 1]."""
+        raise NotImplementedError
+
     def to_dict(self) -> dict[str, Any]:
         """The TOML table of this law; ``parse_spec(d.to_dict()) == d``."""
         return {"dist": self.name, **self.params()}
@@ -155,8 +168,16 @@ class Fixed(Distribution):
     def variance(self) -> float:
         return 0.0
 
+    is_continuous: ClassVar[bool] = False
+
     def params(self) -> dict[str, Any]:
         return {"value": self.value}
+
+    def cdf(self, x: ArrayLike) -> np.ndarray:
+        return (np.asarray(x, dtype=np.float64) >= self.value).astype(np.float64)
+
+    def ppf(self, q: ArrayLike) -> np.ndarray:
+        return np.full(np.shape(q), float(self.value))
 
     def to_text(self) -> str:
         return repr(float(self.value))
@@ -179,6 +200,12 @@ class Exponential(Distribution):
 
     def _draw(self, rng: np.random.Generator, size: int) -> np.ndarray:
         return rng.exponential(self.mean, size)
+
+    def cdf(self, x: ArrayLike) -> np.ndarray:
+        return -np.expm1(-np.maximum(np.asarray(x, dtype=np.float64), 0.0) / self.mean)
+
+    def ppf(self, q: ArrayLike) -> np.ndarray:
+        return -self.mean * np.log1p(-np.asarray(q, dtype=np.float64))
 
     def params(self) -> dict[str, Any]:
         return {"mean": self.mean}
@@ -204,6 +231,12 @@ class Gamma(Distribution):
     def _draw(self, rng: np.random.Generator, size: int) -> np.ndarray:
         return rng.gamma(1.0 / self.cv_**2, self.mean * self.cv_**2, size)
 
+    def cdf(self, x: ArrayLike) -> np.ndarray:
+        return _gamma_cdf(x, 1.0 / self.cv_**2, self.mean * self.cv_**2)
+
+    def ppf(self, q: ArrayLike) -> np.ndarray:
+        return _gamma_ppf(q, 1.0 / self.cv_**2, self.mean * self.cv_**2)
+
     def params(self) -> dict[str, Any]:
         return {"mean": self.mean, "cv": self.cv_}
 
@@ -223,6 +256,12 @@ class Erlang(Distribution):
 
     def _draw(self, rng: np.random.Generator, size: int) -> np.ndarray:
         return rng.gamma(float(self.k), self.mean / self.k, size)
+
+    def cdf(self, x: ArrayLike) -> np.ndarray:
+        return _gamma_cdf(x, float(self.k), self.mean / self.k)
+
+    def ppf(self, q: ArrayLike) -> np.ndarray:
+        return _gamma_ppf(q, float(self.k), self.mean / self.k)
 
     def params(self) -> dict[str, Any]:
         return {"mean": self.mean, "k": self.k}
@@ -249,6 +288,25 @@ class Lognormal(Distribution):
         s2 = math.log1p(self.cv_**2)
         return rng.lognormal(math.log(self.mean) - s2 / 2, math.sqrt(s2), size)
 
+    @property
+    def _mu_sigma(self) -> tuple[float, float]:
+        s2 = math.log1p(self.cv_**2)
+        return math.log(self.mean) - s2 / 2, math.sqrt(s2)
+
+    def cdf(self, x: ArrayLike) -> np.ndarray:
+        from scipy.special import ndtr
+
+        mu, sigma = self._mu_sigma
+        x = np.asarray(x, dtype=np.float64)
+        with np.errstate(divide="ignore"):
+            return np.where(x > 0, ndtr((np.log(np.maximum(x, 0.0)) - mu) / sigma), 0.0)
+
+    def ppf(self, q: ArrayLike) -> np.ndarray:
+        from scipy.special import ndtri
+
+        mu, sigma = self._mu_sigma
+        return np.exp(mu + sigma * ndtri(np.asarray(q, dtype=np.float64)))
+
     def params(self) -> dict[str, Any]:
         return {"mean": self.mean, "cv": self.cv_}
 
@@ -273,6 +331,13 @@ class Weibull(Distribution):
 
     def _draw(self, rng: np.random.Generator, size: int) -> np.ndarray:
         return self.scale * rng.weibull(self.shape, size)
+
+    def cdf(self, x: ArrayLike) -> np.ndarray:
+        z = np.maximum(np.asarray(x, dtype=np.float64), 0.0) / self.scale
+        return -np.expm1(-(z**self.shape))
+
+    def ppf(self, q: ArrayLike) -> np.ndarray:
+        return self.scale * (-np.log1p(-np.asarray(q, dtype=np.float64))) ** (1.0 / self.shape)
 
     def params(self) -> dict[str, Any]:
         if self.by_mean:
@@ -318,6 +383,20 @@ class Normal(Distribution):
         v = tail * (1.0 - rng.random(size))  # uniform on (0, tail]
         return np.maximum(self.loc - self.sd_ * ndtri(v), 0.0)
 
+    def cdf(self, x: ArrayLike) -> np.ndarray:
+        from scipy.special import ndtr
+
+        below = float(ndtr(-self.loc / self.sd_))  # P(N(loc, sd²) < 0), cut away
+        x = np.maximum(np.asarray(x, dtype=np.float64), 0.0)
+        return np.clip((ndtr((x - self.loc) / self.sd_) - below) / (1.0 - below), 0.0, 1.0)
+
+    def ppf(self, q: ArrayLike) -> np.ndarray:
+        from scipy.special import ndtr, ndtri
+
+        below = float(ndtr(-self.loc / self.sd_))
+        q = np.asarray(q, dtype=np.float64)
+        return np.maximum(self.loc + self.sd_ * ndtri(below + q * (1.0 - below)), 0.0)
+
     def params(self) -> dict[str, Any]:
         return {"mean": self.loc, "sd": self.sd_, "truncate": True}
 
@@ -345,6 +424,15 @@ class Uniform(Distribution):
     def _draw(self, rng: np.random.Generator, size: int) -> np.ndarray:
         return rng.uniform(self.low, self.high, size)
 
+    def cdf(self, x: ArrayLike) -> np.ndarray:
+        x = np.asarray(x, dtype=np.float64)
+        if self.high == self.low:
+            return (x >= self.low).astype(np.float64)
+        return np.clip((x - self.low) / (self.high - self.low), 0.0, 1.0)
+
+    def ppf(self, q: ArrayLike) -> np.ndarray:
+        return self.low + np.asarray(q, dtype=np.float64) * (self.high - self.low)
+
     def params(self) -> dict[str, Any]:
         return {"low": self.low, "high": self.high}
 
@@ -370,6 +458,24 @@ class Triangular(Distribution):
 
     def _draw(self, rng: np.random.Generator, size: int) -> np.ndarray:
         return rng.triangular(self.low, self.mode, self.high, size)
+
+    def cdf(self, x: ArrayLike) -> np.ndarray:
+        a, c, b = self.low, self.mode, self.high
+        x = np.clip(np.asarray(x, dtype=np.float64), a, b)
+        out = np.ones_like(x)
+        if b == a:
+            return out
+        left = x <= c
+        out[left] = (x[left] - a) ** 2 / ((b - a) * (c - a)) if c > a else 0.0
+        out[~left] = 1.0 - (b - x[~left]) ** 2 / ((b - a) * (b - c))  # x > c implies b > c
+        return out
+
+    def ppf(self, q: ArrayLike) -> np.ndarray:
+        a, c, b = self.low, self.mode, self.high
+        q = np.asarray(q, dtype=np.float64)
+        split = (c - a) / (b - a) if b > a else 1.0
+        return np.where(q <= split, a + np.sqrt(q * (b - a) * (c - a)),
+                        b - np.sqrt(np.maximum(1.0 - q, 0.0) * (b - a) * (b - c)))
 
     def params(self) -> dict[str, Any]:
         return {"low": self.low, "mode": self.mode, "high": self.high}
@@ -398,11 +504,43 @@ class Empirical(Distribution):
     def _draw(self, rng: np.random.Generator, size: int) -> np.ndarray:
         return self._array[rng.integers(0, len(self.values), size)]
 
+    is_continuous: ClassVar[bool] = False
+
+    @cached_property
+    def support(self) -> tuple[np.ndarray, np.ndarray]:
+        """The distinct values, sorted, and the probability of each."""
+        values, counts = np.unique(self._array, return_counts=True)
+        return values, counts / counts.sum()
+
+    def cdf(self, x: ArrayLike) -> np.ndarray:
+        values, prob = self.support
+        cum = np.r_[0.0, np.cumsum(prob)]
+        return np.minimum(cum[np.searchsorted(values, np.asarray(x, np.float64), "right")], 1.0)
+
+    def ppf(self, q: ArrayLike) -> np.ndarray:
+        values, prob = self.support
+        cum = np.cumsum(prob)
+        cum[-1] = 1.0
+        pos = np.searchsorted(cum, np.asarray(q, dtype=np.float64) - 1e-12, "left")
+        return values[np.minimum(pos, values.size - 1)]
+
     def params(self) -> dict[str, Any]:
         return {"values": list(self.values)}
 
     def describe(self) -> str:
         return f"empirical(n={len(self.values)}, mean={_short(self.mean)})"
+
+
+def _gamma_cdf(x: ArrayLike, shape: float, scale: float) -> np.ndarray:
+    from scipy.special import gammainc
+
+    return gammainc(shape, np.maximum(np.asarray(x, dtype=np.float64), 0.0) / scale)
+
+
+def _gamma_ppf(q: ArrayLike, shape: float, scale: float) -> np.ndarray:
+    from scipy.special import gammaincinv
+
+    return scale * gammaincinv(shape, np.asarray(q, dtype=np.float64))
 
 
 DISTRIBUTIONS: dict[str, type[Distribution]] = {

@@ -64,6 +64,15 @@ class ProgressLine:
         self.stream.flush()
         self.shown = True
 
+    def stage(self, text: str, *, now: bool = False) -> None:
+        """Show what a long job is doing (``now``: even within its first second, for a step
+        known to be long, such as reading a large file)."""
+        if not now and time.monotonic() - self.started < DELAY:
+            return
+        self.stream.write("\r\033[K" + text)
+        self.stream.flush()
+        self.shown = True
+
     def close(self) -> None:
         """Clear the line."""
         if self.shown:

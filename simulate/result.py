@@ -528,10 +528,13 @@ def comparison_document(model: Model, comparison: Comparison,
     return doc
 
 
-def trace_document(model: Model, judgement: Mapping[str, Any]) -> dict[str, Any]:
-    """The document of ``trace``: the judgement of an event log against the model."""
+def trace_document(model: Model, judgement: Mapping[str, Any],
+                   settings: RunSettings) -> dict[str, Any]:
+    """The document of ``trace``: the judgement of an event log against the model (built by
+    :mod:`cyclecheck.simulate.judge`), with the settings of the model's estimate."""
     doc = _base(model, "trace")
     doc.update(judgement)
+    doc["settings"] = settings_section(settings, settings.precision)
     return doc
 
 

@@ -224,17 +224,43 @@ def check_text(doc: dict[str, Any]) -> str:
 
 
 def trace_text(doc: dict[str, Any]) -> str:
-    """Summary of ``cyclecheck trace``."""
+    """Summary of ``cyclecheck trace``: the verdict and its reasons, then the figures."""
+    unit = _unit(doc)
     lines = [f"verdict        {doc['verdict'].upper()}"]
     lines += [f"  - {r}" for r in doc.get("reasons", [])]
     lines += [f"  note: {n}" for n in doc.get("notes", [])]
+    cycle = doc.get("cycle_time_test") or {}
+    for comp in cycle.get("components", []):
+        if "log" not in comp:
+            continue
+        lo, hi = comp["log_ci"]
+        mlo, mhi = comp["model_ci"]
+        change = comp.get("detectable_change")
+        lines.append(f"cycle time     {_num(comp['log'])}{unit} [{_num(lo)}, {_num(hi)}] in the "
+                     f"log, {_num(comp['model'])}{unit} [{_num(mlo)}, {_num(mhi)}] in the model"
+                     f" ({comp['component']}; p = {comp['p_value']:.3g}"
+                     + (f"; would catch a {100 * change:.2g} % change" if change else "") + ")")
     est = doc.get("cycle_time_from_log")
-    if est is not None and math.isfinite(est):
-        model_value = _num(doc.get("cycle_time"))
+    if not cycle.get("components") and est is not None and math.isfinite(est):
         basis = doc.get("cycle_time_basis") or ""
         which = "lower bound" if basis.startswith("lower") else "model"
-        lines.append(f"cycle time in log {_num(est)}{_unit(doc)}; {which} {model_value}"
-                     f"{_unit(doc)}")
+        lines.append(f"cycle time in log {_num(est)}{unit}; {which} {_num(doc.get('cycle_time'))}"
+                     f"{unit}")
+    rows = [r for r in doc.get("transitions", []) if "mean_test" in r]
+    if rows:
+        lines.append(f"{'durations':<14} {'observed mean':>14} {'model':>9} {'fit p':>8} "
+                     f"{'mean p':>8} {'would catch':>12}")
+        for r in rows:
+            change = r.get("detectable_change")
+            lines.append(f"  {r['id']:<12} {_num(r['observed_mean'], 5):>14} "
+                         f"{_num(r['model_mean'], 5):>9} {r['fit_test']['p_value']:>8.3g} "
+                         f"{r['mean_test']['p_value']:>8.3g} "
+                         f"{'-' if change is None else f'{100 * change:.2g} % slower':>12}")
+    skipped = doc.get("not_judged", [])
+    if skipped:
+        lines.append(f"not judged     {len(skipped)}: " + "; ".join(
+            f"{n['id']} ({n['what']}: {n['reason']})" for n in skipped[:5])
+            + (" ..." if len(skipped) > 5 else ""))
     return "\n".join(lines)
 
 

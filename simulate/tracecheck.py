@@ -1,7 +1,8 @@
-r"""Judge an event log of any simulator against the model's max-plus equations.
+r"""The exact part of the judge: an event log against the model's max-plus equations.
 
-An event log (see :mod:`.eventlog`) lists completed firings. Firing ``k`` of ``t`` is judged
-*locally*, from the logged completion times of the firings it waits for: with
+(The statistics of random models and the verdict are :mod:`.judge`.) An event log (see
+:mod:`.eventlog`) lists completed firings. Firing ``k`` of ``t`` is judged *locally*, from the
+logged completion times of the firings it waits for: with
 :math:`\operatorname{term}_p(k) = 0` for :math:`k \le m_p`, else :math:`x_u(k - m_p) + h_p(k)`,
 
 .. math::  s_t(k) = \max_{p = (u \to t)} \operatorname{term}_p(k), \qquad x_t(k) = s_t(k) + d_t(k).
@@ -33,7 +34,6 @@ durations is a lower bound of the cycle time of a stochastic event graph).
 from __future__ import annotations
 
 import math
-import os
 from dataclasses import dataclass
 from typing import Any
 
@@ -46,7 +46,7 @@ from .eventlog import MAX_FIRING, EventLog, _fmt, _sort_key, read_log
 from .modelfile import Model
 
 __all__ = ["MAX_FIRING", "MAX_LISTED", "MIN_RATE_FIRINGS", "RATE_NOTE_TOLERANCE", "EventLog",
-           "judge_events", "judge_log", "read_log", "support_bounds"]
+           "ExactCheck", "check_events", "check_tolerance", "read_log", "support_bounds"]
 
 MAX_LISTED = 20
 """Violations spelled out in ``reasons`` and ``first_violations``; the rest are counted."""
@@ -97,21 +97,23 @@ def _bounds(table: SpecTable) -> tuple[np.ndarray, np.ndarray]:
 
 
 class _Index:
-    """Find logged firings ``(u, j)`` in a log sorted by (transition, firing), vectorized.
+    """Find logged firings ``(u, j)`` in a log sorted by (unit, firing), vectorized; a unit is
+    a (replication, transition) pair, :attr:`EventLog.unit`.
 
     A complete log fills most cells of the table ``u · W + j`` (``W`` = largest firing + 1),
     looked up directly. A sparse log (or huge firing numbers) uses binary search over sorted
     keys in which each firing number is replaced by its rank among the logged ones.
     """
 
-    def __init__(self, log: EventLog, n_transitions: int) -> None:
-        t, k, self.n = log.transition, log.firing, log.n_firings
-        key = _sort_key(t, k, n_transitions)
+    def __init__(self, log: EventLog) -> None:
+        t, k, self.n = log.unit, log.firing, log.n_firings
+        units = log.n_units
+        key = _sort_key(t, k, units)
         self.table = None
         self.numbers: np.ndarray | None = None
-        if key is not None and (int(k.max()) + 1) * n_transitions <= DENSE_FACTOR * self.n:
+        if key is not None and (int(k.max()) + 1) * units <= DENSE_FACTOR * self.n:
             self.width = np.int64(k.max() + 1)
-            self.table = np.full(int(self.width) * n_transitions, -1, dtype=np.int64)
+            self.table = np.full(int(self.width) * units, -1, dtype=np.int64)
             self.table[key] = np.arange(self.n)
         else:
             self.numbers = np.unique(k)
@@ -139,7 +141,8 @@ class _Index:
         return found, pos
 
 
-def _tolerance(tolerance: float) -> float:
+def check_tolerance(tolerance: float) -> float:
+    """The tolerance as a float; a ModelError (item ``tolerance``) unless finite and >= 0."""
     if (isinstance(tolerance, bool) or not isinstance(tolerance, (int, float, np.floating))
             or not math.isfinite(tolerance) or tolerance < 0):
         raise ModelError(f"must be a finite number >= 0, got {tolerance!r}", item="tolerance")
@@ -147,10 +150,13 @@ def _tolerance(tolerance: float) -> float:
 
 
 def _below(a: np.ndarray, b: np.ndarray, tol: float) -> np.ndarray:
-    """``a`` lies below ``b`` by more than the tolerance (never where either is infinite)."""
+    """``a`` lies below ``b`` by more than the tolerance (never where either is infinite).
+
+    Times and their bounds are >= 0 here, so ``max(1, a, b)`` is the scale; an infinite one
+    makes ``b - a`` infinite or NaN and the scale infinite, and the comparison False.
+    """
     with np.errstate(invalid="ignore"):
-        scale = np.maximum(np.maximum(np.abs(a), np.abs(b)), 1.0)
-        return np.isfinite(a) & np.isfinite(b) & (b - a > tol * scale)
+        return b - a > tol * np.maximum(np.maximum(a, b), 1.0)
 
 
 @dataclass
@@ -166,6 +172,7 @@ class _Pairs:
     pos: np.ndarray    # its position in the log (see _Index.find); -1 where not needed
     low: np.ndarray    # earliest availability of the token (0 for an initial token)
     high: np.ndarray   # latest availability (inf when the hold is unbounded)
+    src: np.ndarray    # the unit (replication, transition) of the predecessor firing
 
 
 def _pairs(model: Model, log: EventLog, index: _Index, hold_lo: np.ndarray,
@@ -179,15 +186,18 @@ def _pairs(model: Model, log: EventLog, index: _Index, hold_lo: np.ndarray,
     place = porder[pstart[t][row_of] + np.arange(row_of.size) - offsets[row_of]]
     pred = log.firing[row_of] - model.tokens[place]
     need = pred >= 1
-    found = np.zeros(row_of.size, dtype=bool)
-    pos = np.full(row_of.size, -1, dtype=np.int64)
-    low, high = np.zeros(row_of.size), np.zeros(row_of.size)
-    sel = np.flatnonzero(need)
-    found[sel], pos[sel] = index.find(model.source[place[sel]], pred[sel])
-    ok = sel[found[sel]]
-    low[ok] = log.time[pos[ok]] + hold_lo[place[ok]]
-    high[ok] = log.time[pos[ok]] + hold_hi[place[ok]]
-    return _Pairs(place, offsets, need, pred, found, pos, low, high)
+    src = model.source[place]
+    if log.replication is not None:  # the predecessor is in the same replication
+        src = src + (log.unit - t)[row_of]
+    # every pair at once (no gather of the needed ones): pred < 1 is looked up as firing 1
+    found, pos = index.find(src, np.maximum(pred, 1))
+    found &= need
+    pos[~need] = -1
+    taken = log.time[np.where(found, pos, 0)]
+    low = np.where(found, taken + hold_lo[place], 0.0)
+    same = np.array_equal(hold_lo, hold_hi)
+    high = low if same else np.where(found, taken + hold_hi[place], 0.0)
+    return _Pairs(place, offsets, need, pred, found, pos, low, high, src)
 
 
 def _holes(model: Model, log: EventLog, pairs: _Pairs, first: np.ndarray) -> tuple[Any, ...]:
@@ -197,7 +207,7 @@ def _holes(model: Model, log: EventLog, pairs: _Pairs, first: np.ndarray) -> tup
     that are violations), ``needed_by`` (a logged firing that needed one of them, or -1) and
     whether every logged transition has its firing 1.
     """
-    t, k, n = log.transition, log.firing, log.n_firings
+    t, k, n = log.unit, log.firing, log.n_firings
     gap = np.r_[0, k[1:] - k[:-1] - 1]
     gap[first] = 0
     from_one = bool(np.all(k[first] == 1))
@@ -208,7 +218,7 @@ def _holes(model: Model, log: EventLog, pairs: _Pairs, first: np.ndarray) -> tup
     elif from_one and gap.any():
         miss = np.flatnonzero(pairs.need & ~pairs.found)
         pc = np.minimum(pairs.pos[miss], n - 1)
-        inside = ((pairs.pos[miss] < n) & (t[pc] == model.source[pairs.place[miss]])
+        inside = ((pairs.pos[miss] < n) & (t[pc] == pairs.src[miss])
                   & ~first[pc])  # pc is the logged firing right after the hole
         miss, pc = miss[inside], pc[inside]
         if miss.size:
@@ -219,16 +229,92 @@ def _holes(model: Model, log: EventLog, pairs: _Pairs, first: np.ndarray) -> tup
     return gap, count, needed_by, from_one
 
 
-def judge_events(model: Model, log: EventLog, *, tolerance: float = 1e-6,
-                 max_listed: int = MAX_LISTED) -> dict[str, Any]:
-    """Judge a checked :class:`EventLog` against the model; see :func:`judge_log`."""
-    tol = _tolerance(tolerance)
+@dataclass
+class ExactCheck:
+    """What the exact part of the judge found: each firing against the bounds of its draws.
+
+    Arrays are aligned with the firings of :attr:`log` (sorted order). ``ready_low`` and
+    ``ready_high`` bound the start of each firing from the logged completions it waits for
+    (equal where every input hold is fixed: the start is then known exactly, log column or not);
+    ``judged`` is False where a firing it waits for is not logged.
+    """
+
+    log: EventLog
+    pairs: _Pairs
+    judged: np.ndarray
+    ready_low: np.ndarray
+    ready_high: np.ndarray
+    tolerance: float
+    violations: int
+    first_violations: list[dict[str, Any]]
+    notes: list[str]
+    firings_missing: int
+    from_one: bool
+    present: np.ndarray  # (units,) each (replication, transition) has a logged firing
+    cycle_time_from_log: float | None
+
+    @property
+    def firings_checked(self) -> int:
+        return int(self.judged.sum())
+
+    def absent(self, model: Model) -> list[str]:
+        """Transitions with no row in the log; one absent from some replications only is
+        named with them, e.g. ``pack (replications "2", "5")``."""
+        log, n = self.log, model.n_transitions
+        grid = ~self.present.reshape(log.n_replications, n)
+        out = []
+        for t in np.flatnonzero(grid.any(axis=0)).tolist():
+            reps = np.flatnonzero(grid[:, t])
+            if reps.size == log.n_replications:
+                out.append(model.transition_ids[t])
+            else:
+                labels = ", ".join(f'"{log.replication_labels[r]}"' for r in reps[:5])
+                more = " ..." if reps.size > 5 else ""
+                out.append(f"{model.transition_ids[t]} (replications {labels}{more})")
+        return out
+
+    def section(self, model: Model) -> dict[str, Any]:
+        """The keys of the judgement document that come from the exact part."""
+        lam = float(howard(model.graph()).max_cycle_time)
+        log = self.log
+        return {
+            "log": None if log.path is None else str(log.path),
+            "tolerance": self.tolerance,
+            "checks": "bounds" if model.is_random else "exact",
+            "firings_logged": log.n_firings,
+            "firings_checked": self.firings_checked,
+            "firings_unjudged": log.n_firings - self.firings_checked,
+            "firings_missing": self.firings_missing,
+            "violations": self.violations,
+            "first_violations": self.first_violations,
+            "complete": bool(self.present.all() and self.from_one
+                             and not self.firings_missing),
+            "cycle_time_from_log": self.cycle_time_from_log,
+            "cycle_time": lam,
+            "cycle_time_basis": ("lower bound: the cycle time of the mean durations (Baccelli "
+                                 "et al. 1992, ch. 8)" if model.is_random else "exact"),
+            "time_unit": model.time_unit,
+        }
+
+    def reasons(self) -> list[str]:
+        """The violations as sentences (the first ones, then a count)."""
+        out = [v["message"] for v in self.first_violations]
+        if self.violations > len(out):
+            out.append(f"... and {self.violations - len(out)} more violations")
+        return out
+
+
+def check_events(model: Model, log: EventLog, *, tolerance: float = 1e-6,
+                 max_listed: int = MAX_LISTED) -> ExactCheck:
+    """The exact part of the judge on a checked :class:`EventLog` (see the module doc)."""
+    tol = check_tolerance(tolerance)
     ids = model.transition_ids
     hold_lo, hold_hi = _bounds(model.holds)
     dur_lo, dur_hi = _bounds(model.durations)
-    index = _Index(log, model.n_transitions)
+    index = _Index(log)
     pairs = _pairs(model, log, index, hold_lo, hold_hi)
     t, k, x, s = log.transition, log.firing, log.time, log.start
+    u = log.unit
     n_rows = log.n_firings
 
     judged = np.add.reduceat((pairs.need & ~pairs.found).astype(np.int64), pairs.offsets) == 0
@@ -245,18 +331,19 @@ def judge_events(model: Model, log: EventLog, *, tolerance: float = 1e-6,
                    (4, s + dhi, x, x, s + dlo)] if s is not None else
                   [(5, x, low + dlo, x, low + dlo), (6, high + dhi, x, x, low + dlo)])
         for code, a, b, value, lower in checks:  # the first violation found is kept
-            hit = _below(a, b, tol) & judged & (kind == 0)
-            kind[hit], expected[hit] = code, (b if code % 2 else a)[hit]
-            when[hit] = np.minimum(value, lower)[hit]
+            hit = np.flatnonzero(_below(a, b, tol) & judged & (kind == 0))
+            if hit.size:
+                kind[hit], expected[hit] = code, (b if code % 2 else a)[hit]
+                when[hit] = np.minimum(value[hit], lower[hit])
 
-    first = np.r_[True, t[1:] != t[:-1]]
+    first = np.r_[True, u[1:] != u[:-1]]
     gap, hole_count, needed_by, from_one = _holes(model, log, pairs, first)
     violating, hole_rows = np.flatnonzero(kind), np.flatnonzero(hole_count)
     n_violations = int(violating.size + hole_count.sum())
-    entries = [(when[i], t[i], k[i], i, True)
-               for i in _earliest(violating, when, t, k, max_listed)]
-    entries += [(x[i], t[i], k[i] - gap[i], i, False)
-                for i in _earliest(hole_rows, x, t, k - gap, max_listed)]
+    entries = [(when[i], u[i], k[i], i, True)
+               for i in _earliest(violating, when, u, k, max_listed)]
+    entries += [(x[i], u[i], k[i] - gap[i], i, False)
+                for i in _earliest(hole_rows, x, u, k - gap, max_listed)]
     first_violations = [
         _violation(model, log, pairs, i, int(kind[i]), float(expected[i]), dur_lo, dur_hi)
         if timing else _hole(model, log, i, int(gap[i]), int(hole_count[i]), int(needed_by[i]))
@@ -276,60 +363,23 @@ def judge_events(model: Model, log: EventLog, *, tolerance: float = 1e-6,
         i = int(excused[0])
         notes.append(f"{_many(int((gap - hole_count).sum()), 'firing')} missing inside the "
                      f'logged range of its transition (for example firing {k[i] - gap[i]} of '
-                     f'"{ids[t[i]]}" while firing {k[i]} is logged); with random durations '
-                     "firings may end out of order, so they may still have been in progress "
-                     "where the log ends" + ("" if from_one else
-                                             ", or the log was cut at its beginning"))
-    present = np.zeros(model.n_transitions, dtype=bool)
-    present[t] = True
-    if not present.all():
-        absent = [f'"{ids[i]}"' for i in np.flatnonzero(~present)[:10]]
-        more = int((~present).sum()) - len(absent)
-        notes.append("transitions never logged: " + ", ".join(absent)
-                     + (f" and {more} more" if more else ""))
+                     f'"{ids[t[i]]}"{log.in_replication(i)} while firing {k[i]} is logged); '
+                     "with random durations firings may end out of order, so they may still "
+                     "have been in progress where the log ends"
+                     + ("" if from_one else ", or the log was cut at its beginning"))
+    present = np.zeros(log.n_units, dtype=bool)
+    present[u] = True
 
-    lam = float(howard(model.graph()).max_cycle_time)
     from_log = _log_cycle_time(log, index, first)
-    if from_log is not None:
+    lam = float(howard(model.graph()).max_cycle_time)
+    if from_log is not None and not model.is_random:
         rel = (from_log - lam) / lam if lam > 0 else 0.0
-        if model.is_random and rel < -RATE_NOTE_TOLERANCE:
-            notes.append(f"the log's cycle time {_fmt(from_log)} is below the lower bound "
-                         f"{_fmt(lam)} given by the mean durations: over a short log this can "
-                         "happen by chance, over a long one it suggests draws shorter than the "
-                         "model's distributions")
-        elif not model.is_random and abs(rel) > RATE_NOTE_TOLERANCE:
+        if abs(rel) > RATE_NOTE_TOLERANCE:
             notes.append(f"the log's cycle time {_fmt(from_log)} differs from the model's "
                          f"{_fmt(lam)} by {100 * rel:+.3g} %: over few firings or a long "
                          "transient the growth rate of the log has not settled")
-
-    reasons = [v["message"] for v in first_violations]
-    if n_violations > len(reasons):
-        reasons.append(f"... and {n_violations - len(reasons)} more violations")
-    if n_violations == 0:
-        what = ("every bound the model's distributions allow" if model.is_random else
-                "the model's equations")
-        reasons.append(f"all {n_checked} judged firings obey {what} within a relative tolerance "
-                       f"of {tol:g}" + (f" ({n_unjudged} not judged)" if n_unjudged else ""))
-    return {
-        "verdict": "agrees" if n_violations == 0 else "disagrees",
-        "reasons": reasons,
-        "notes": notes,
-        "log": None if log.path is None else str(log.path),
-        "tolerance": tol,
-        "checks": "bounds" if model.is_random else "exact",
-        "firings_logged": n_rows,
-        "firings_checked": n_checked,
-        "firings_unjudged": n_unjudged,
-        "firings_missing": int(gap.sum()),
-        "violations": n_violations,
-        "first_violations": first_violations,
-        "complete": bool(present.all() and from_one and not gap.any()),
-        "cycle_time_from_log": from_log,
-        "cycle_time": lam,
-        "cycle_time_basis": ("lower bound: the cycle time of the mean durations (Baccelli et al. "
-                             "1992, ch. 8)" if model.is_random else "exact"),
-        "time_unit": model.time_unit,
-    }
+    return ExactCheck(log, pairs, judged, low, high, tol, n_violations, first_violations, notes,
+                      int(gap.sum()), from_one, present, from_log)
 
 
 def _earliest(rows: np.ndarray, when: np.ndarray, t: np.ndarray, k: np.ndarray,
@@ -347,7 +397,7 @@ def _violation(model: Model, log: EventLog, pairs: _Pairs, i: int, kind: int, ex
     t, k, x = int(log.transition[i]), int(log.firing[i]), float(log.time[i])
     s = None if log.start is None else float(log.start[i])
     rule, early = _KINDS[kind]
-    name = f'firing {k} of "{model.transition_ids[t]}"'
+    name = f'firing {k} of "{model.transition_ids[t]}"{log.in_replication(i)}'
     lo, hi, law = float(dur_lo[t]), float(dur_hi[t]), model.durations[t].describe()
     a = int(pairs.offsets[i])
     span = slice(a, a + int(model.graph().in_degree[t]))
@@ -387,24 +437,35 @@ def _violation(model: Model, log: EventLog, pairs: _Pairs, i: int, kind: int, ex
         text = (f"{name} took {_fmt(x - s)} (from {_fmt(s)} to {_fmt(x)}), "
                 + (f"less than the shortest duration {_fmt(lo)}" if early else
                    f"more than the longest duration {_fmt(hi)}") + f" of {law}")
+    where = log.item(i)
     out: dict[str, Any] = {"transition": model.transition_ids[t], "firing": k, "time": x,
-                           "expected": expected, "rule": rule, "message": text}
+                           "expected": expected, "rule": rule,
+                           "message": f"{text} [log {where}]", "where": where}
     if s is not None:
         out["start"] = s
+    if log.n_replications > 1:
+        out["replication"] = log.replication_labels[int(log.replication[i])]
     return out
 
 
 def _hole(model: Model, log: EventLog, i: int, gap: int, count: int,
           needed_by: int) -> dict[str, Any]:
     tid, k = model.transition_ids[int(log.transition[i])], int(log.firing[i])
-    text = (f'firing {k - 1} of "{tid}" is' if gap == 1 else
-            f'firings {k - gap} to {k - 1} of "{tid}" are') + f" missing while firing {k} is logged"
+    rep = log.in_replication(i)
+    text = (f'firing {k - 1} of "{tid}"{rep} is' if gap == 1 else
+            f'firings {k - gap} to {k - 1} of "{tid}"{rep} are') + (
+        f" missing while firing {k} is logged")
     if needed_by >= 0:
         text += (f' (firing {log.firing[needed_by]} of '
                  f'"{model.transition_ids[log.transition[needed_by]]}", logged, needed '
                  + ("it)" if gap == 1 else f"{count} of them)"))
-    return {"transition": tid, "firing": k - gap, "time": None, "expected": None,
-            "rule": "missing", "message": text, "missing": count, "next_logged": k}
+    where = log.item(i)
+    out = {"transition": tid, "firing": k - gap, "time": None, "expected": None,
+           "rule": "missing", "message": f"{text} [log {where}: firing {k}]", "where": where,
+           "missing": count, "next_logged": k}
+    if log.n_replications > 1:
+        out["replication"] = log.replication_labels[int(log.replication[i])]
+    return out
 
 
 def _log_cycle_time(log: EventLog, index: _Index, first: np.ndarray) -> float | None:
@@ -415,47 +476,9 @@ def _log_cycle_time(log: EventLog, index: _Index, first: np.ndarray) -> float | 
     """
     last = np.r_[np.flatnonzero(first)[1:] - 1, log.n_firings - 1]
     last = last[log.firing[last] >= MIN_RATE_FIRINGS]
-    found, pos = index.find(log.transition[last], log.firing[last] // 2)
+    found, pos = index.find(log.unit[last], log.firing[last] // 2)
     if not found.any():
         return None
     last, pos = last[found], pos[found]
     kk = log.firing[last]
     return float(((log.time[last] - log.time[pos]) / (kk - kk // 2)).max())
-
-
-def judge_log(model: Model, log_path: str | os.PathLike[str], *, tolerance: float = 1e-6,
-              max_listed: int = MAX_LISTED) -> dict[str, Any]:
-    """Judge an event log of any simulator against the model's max-plus equations.
-
-    Parameters
-    ----------
-    model : Model
-        The model the log claims to follow.
-    log_path : str or path-like
-        CSV with the columns ``transition,firing,time`` and optionally ``start``.
-    tolerance : float, default 1e-6
-        Relative tolerance on times: ``|a − b| <= tolerance · max(1, |a|, |b|)``.
-    max_listed : int, default MAX_LISTED
-        Violations spelled out in ``reasons`` and ``first_violations``.
-
-    Returns
-    -------
-    dict
-        ``verdict`` (``"agrees"`` or ``"disagrees"``), ``reasons`` (plain sentences),
-        ``notes``, ``violations`` (count), ``first_violations`` (dicts with ``transition``,
-        ``firing``, ``time``, ``expected``, ``rule`` in ``"start"``, ``"duration"``,
-        ``"completion"``, ``"missing"``, and ``message``), ``firings_logged``,
-        ``firings_checked``, ``firings_unjudged``, ``firings_missing``, ``complete`` (every
-        transition logged with firings 1..K and no gap), ``cycle_time_from_log`` (None when no
-        transition has :data:`MIN_RATE_FIRINGS` firings), ``cycle_time`` and
-        ``cycle_time_basis`` (``"exact"``, or the lower bound of the mean durations for random
-        models), ``checks`` (``"exact"`` or ``"bounds"``), ``tolerance``, ``log``, ``time_unit``.
-
-    Raises
-    ------
-    ModelError
-        For a bad log (see :func:`read_log`), a bad tolerance, or a log of which no firing can
-        be judged.
-    """
-    tol = _tolerance(tolerance)
-    return judge_events(model, read_log(model, log_path), tolerance=tol, max_listed=max_listed)

@@ -24,6 +24,8 @@ HAND_WORKED = {
     "shuttle_loop.toml": (227.5, ["depart_A", "depart_B", "depart_C"]),
     "image_pipeline.toml": (30.5 / 3, ["ingest", "decode", "denoise", "segment", "fuse", "encode"]),
     "batch_plant.toml": (270.0, ["react_A", "clean_A", "react_B", "clean_B"]),
+    # random durations: the cycle time of the mean durations (the arrivals' 4 min)
+    "probe_line.toml": (4.0, ["arrive"]),
 }
 
 

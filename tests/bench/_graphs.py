@@ -102,8 +102,9 @@ class Measured:
 
 
 def run_measured(cmd: Sequence[str], *, stdout: int | None = subprocess.DEVNULL,
-                 cwd: Path | None = None) -> Measured:
-    """Run ``cmd`` to completion; wall clock from spawn to exit, the child's own rusage."""
+                 cwd: Path | None = None, accept: Sequence[int] = (0,)) -> Measured:
+    """Run ``cmd`` to completion; wall clock from spawn to exit, the child's own rusage.
+    An exit code outside ``accept`` raises."""
     t0 = time.perf_counter()
     proc = subprocess.Popen(list(cmd), stdout=stdout, stderr=subprocess.PIPE, cwd=cwd)
     assert proc.stderr is not None
@@ -112,7 +113,7 @@ def run_measured(cmd: Sequence[str], *, stdout: int | None = subprocess.DEVNULL,
     wall = time.perf_counter() - t0
     proc.returncode = os.waitstatus_to_exitcode(status)  # tell Popen the child is reaped
     proc.stderr.close()
-    if proc.returncode != 0:
+    if proc.returncode not in accept:
         raise RuntimeError(f"{' '.join(cmd)} exited {proc.returncode}: "
                            f"{err.decode(errors='replace')[-2000:]}")
     return Measured(wall, usage.ru_utime + usage.ru_stime, usage.ru_stime,
