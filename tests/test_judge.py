@@ -93,7 +93,8 @@ def test_slower_press_is_named_with_the_test_and_the_figures(press, tmp_path):
     assert "against the model's 1.6" in first
     row = next(r for r in doc["transitions"] if r["id"] == "press")
     assert row["mean_test"]["rejected"] and row["observed_mean"] == pytest.approx(2.08, rel=0.06)
-    assert doc["figures"]["distributions"][0]["id"] == "press" and doc["figures"]["distributions"][0]["rejected"]
+    first = doc["figures"]["distributions"][0]
+    assert first["id"] == "press" and first["rejected"]
 
 
 def test_power_of_each_transition_follows_the_formula(press):
