@@ -132,13 +132,14 @@ def render_page(document: Mapping[str, Any]) -> str:
         When the document is not a result document of a supported version, or a value has
         the wrong type (the error names the key).
     """
-    from . import sections, sweep  # import matplotlib; kept out of the CLI's start-up
+    from . import sections, sweep, trace  # import matplotlib; kept out of the CLI's start-up
 
     check_document(document)
     document = as_sections(document)
     model = document["model"]
     try:
-        body = (sweep.body if document.get("command") == "sweep" else sections.body)(document)
+        body = {"sweep": sweep.body, "trace": trace.body}.get(
+            document.get("command"), sections.body)(document)
     # check_document lets through only what the sections can draw; this is the last guard,
     # so that a document never ends in anything but a ReportError.
     except (AttributeError, TypeError, ValueError, KeyError, IndexError,

@@ -319,9 +319,45 @@ MODEL = fields({
 })
 
 
+def _distribution(value: Any, item: str) -> None:
+    """The figure data of one element: x, ecdf and model_cdf of one length (finite), and the
+    model's quantiles beside them (null where the law has none)."""
+    fields({"x": list_of(finite), "ecdf": list_of(finite), "model_cdf": list_of(finite),
+            "model_quantile": list_of(nullable(finite)), "n": integer(0), "id": scalar,
+            "law": scalar, "kind": one_of("duration", "hold"), "rejected": boolean,
+            "adjusted_p": number}, required=("x", "ecdf", "model_cdf"))(value, item)
+    length = len(value["x"])
+    for key in ("ecdf", "model_cdf", "model_quantile"):
+        if value.get(key) is not None and len(value[key]) != length:
+            raise ReportError(f"{item}.{key}", f"must have as many values as {item}.x "
+                              f"({length}), not {len(value[key])}")
+
+
+_INTERVAL = list_of(nullable(number), length=2)
+_TEST = fields({"p_value": number, "adjusted_p": number, "rejected": boolean,
+                "summary": scalar, "test": scalar})
 #: The judgement of an event log (``trace``): checked at the top level of its document.
-JUDGEMENT = {"verdict": one_of("agrees", "disagrees"), "reasons": list_of(scalar),
-             "notes": list_of(scalar)}
+JUDGEMENT = {
+    "verdict": one_of("agrees", "disagrees"), "reasons": list_of(scalar),
+    "notes": list_of(scalar), "violations": integer(0), "firings_checked": integer(0),
+    "firings_logged": integer(0), "replications": integer(1),
+    "first_violations": list_of(fields({"transition": scalar, "firing": integer(0),
+                                        "rule": scalar, "message": scalar})),
+    "family": fields({"tests": integer(0), "alpha": number}),
+    "power": fields({"probability": number, "method": scalar}),
+    "transitions": list_of(fields({
+        "id": scalar, "law": scalar, "observed": integer(0), "observed_mean": number,
+        "observed_mean_ci": _INTERVAL, "model_mean": number, "fit_test": _TEST,
+        "mean_test": _TEST, "detectable_change": number}, required=("id",))),
+    "places": list_of(fields({"index": integer(0), "id": scalar, "law": scalar,
+                              "exact": integer(0), "censored": integer(0),
+                              "fit_test": _TEST, "censoring_test": _TEST})),
+    "cycle_time_test": fields({"components": list_of(fields({
+        "component": scalar, "log": number, "log_ci": _INTERVAL, "model": number,
+        "model_ci": _INTERVAL, "test": _TEST, "detectable_change": number}))}),
+    "figures": fields({"distributions": list_of(_distribution)}),
+    "not_judged": list_of(fields({"id": scalar, "what": scalar, "reason": scalar})),
+}
 
 
 def _sweep(document: Mapping[str, Any], ids: set[str]) -> None:

@@ -26,7 +26,7 @@ def _masthead(document: Mapping[str, Any]) -> str:
     command = get(document, "command")
     kind = {"check": "simulation checked against max-plus theory",
             "analyze": "max-plus analysis", "simulate": "simulation",
-            "sweep": "parameter sweep"}.get(
+            "sweep": "parameter sweep", "trace": "event log judged against the model"}.get(
         command, f"result of “{e(str(command))}”" if command else "result")
     description = model.get("description")
     parts = [f'<p class="kicker">cyclecheck review page · {kind}</p>',
