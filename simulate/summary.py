@@ -65,12 +65,15 @@ def _sensitivity_lines(doc: dict[str, Any], unit: str) -> list[str]:
     head = "exact" if exact else "95 % CI"
     lines.append(f"sensitivity of the cycle time to each mean (dλ/dθ, {head}"
                  + ("" if exact else "; share of firings on the critical path") + "):")
-    for e in entries[:TOP_SLACKS]:
+    shown = entries[:TOP_SLACKS]
+    width = max([20, *(len(_element(e, doc)) for e in shown)])
+    for e in shown:
         lo, hi = e["ci"]
         crit = e.get("path_criticality")
         tail = f"  {100 * crit:5.1f} %" if crit is not None and not exact else ""
-        lines.append(f"  {_element(e, doc):<28} {_num(e['derivative'], 3):>8}  "
-                     f"[{_num(lo, 3)}, {_num(hi, 3)}]{tail}")
+        ci = f"[{_num(lo, 3)}, {_num(hi, 3)}]"
+        lines.append(f"  {_element(e, doc):<{width}} {_num(e['derivative'], 3):>8}  "
+                     f"{ci:<16}{tail}".rstrip())
     lines += _more(len(entries) + int(doc.get("sensitivity_omitted") or 0), TOP_SLACKS)
     return lines
 
