@@ -190,7 +190,7 @@ def _number(word: str, text: str) -> int | float:
     return x
 
 
-def parse_values(spec: str | Iterable[float], label: str = "") -> list[int | float]:
+def parse_values(spec: str | float | Iterable[float], label: str = "") -> list[int | float]:
     """The values of ``a:b``, ``a:b:n``, ``v1,v2,...`` or of a sequence of numbers.
 
     Examples
@@ -200,6 +200,8 @@ def parse_values(spec: str | Iterable[float], label: str = "") -> list[int | flo
     """
     text = f"{label}={spec}" if label else str(spec)
     item = f"--vary {text}"
+    if isinstance(spec, int | float) and not isinstance(spec, bool):
+        spec = [spec]  # one number is a list of one
     if not isinstance(spec, str):
         values = [_number(str(v), text) for v in spec]
     elif ":" in spec:
@@ -342,6 +344,18 @@ def make_grid(model: Model, vary: Mapping[str, Any] | Sequence[Any]) -> Grid:
             raise ModelError(f"{target.name} {target.field} is varied twice (also as "
                              f"{seen[key]})", file=model.path, item=f"--vary {text}")
         seen[key] = text
+        # A fixed value and a parameter of the law on one element cannot both hold at a
+        # point: the fixed value would replace the law (the labels would lie), or the
+        # parameter would find no law to change.
+        whole = {"duration", "hold"}
+        for (element, index, field), other in seen.items():
+            if (element, index) == (target.element, target.index) and (
+                    (field in whole) != (target.field in whole)) and not target.is_tokens \
+                    and field != "tokens":
+                fixed, param = (other, text) if field in whole else (text, other)
+                raise ModelError(f"{target.name}: {fixed.split('=')[0]} sets a fixed value "
+                                 f"and {param.split('=')[0]} a parameter of its law; vary "
+                                 "one or the other", file=model.path, item=f"--vary {text}")
         targets.append(target)
         values.append(tuple(_checked(target, v, model) for v in parse_values(spec, text)))
     grid = Grid(tuple(targets), tuple(values))
@@ -376,7 +390,7 @@ def point_model(model: Model, grid: Grid, values: Sequence[int | float]) -> Mode
             tokens[target.index] = int(value)
             tokens.setflags(write=False)
         elif target.element == "transition":
-            # each point starts from the base law, so targets of one element combine
+            # targets of one element combine: each changes the law the previous ones left
             law = _law(durations, target, value, model)
             durations = _with_spec(durations, target.index, law)
         else:

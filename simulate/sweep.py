@@ -67,6 +67,7 @@ from typing import Any
 
 import numpy as np
 
+from ..algebra.eventgraph import self_loop_servers
 from .errors import ModelError
 from .estimate import Interval, replication_interval
 from .experiment import DEFAULT_PRECISION, MAX_REPLICATIONS, _aligned, _Components, default_firings
@@ -118,11 +119,11 @@ def replicate_point(model: Model, seed: int, first: int, count: int, firings: in
     from .experiment import run_replications
 
     batch = run_replications(model, "recursion", seed, range(first, first + count), firings,
-                             block=block)
+                             block=block, lineage=False)  # a sweep reports no derivatives
     means = _Components(model).means(batch.x)  # (J + 1, R, C)
-    horizon = batch.x[-1]
+    # busy servers over the span their busy time lies in, as analyze measures them
     with np.errstate(divide="ignore", invalid="ignore"):
-        busy = np.where(horizon > 0, batch.busy / horizon, 0.0)  # (R, n) busy servers
+        busy = np.where(batch.horizon > 0, batch.busy / batch.horizon, 0.0)  # (R, n)
     return {
         "checkpoints": batch.checkpoints.tolist(),
         "series": [means[:, i, :] for i in range(count)],
@@ -428,18 +429,18 @@ class _Sweep:
         if all(run["clearing"] is not None for run in runs):
             clearing = np.array([run["clearing"] for run in runs]) / out.firings
             out.upper = max(out.lower or 0.0, replication_interval(clearing).high)
-        out.utilization = np.mean([run["busy"] for run in runs], axis=0) / servers(model)
+        out.utilization = _per_server(model, np.array([run["busy"] for run in runs]))
         return out
 
 
-def servers(model: Model) -> np.ndarray:
-    """Servers of each transition: the tokens of its self-loop (the fewest, if it has
-    several); NaN for a transition without one (its firings may overlap without limit)."""
-    out = np.full(model.n_transitions, np.inf)
-    loops = np.flatnonzero(model.source == model.target)
-    np.minimum.at(out, model.source[loops], model.tokens[loops].astype(np.float64))
-    out[~np.isfinite(out)] = np.nan
-    return out
+def _per_server(model: Model, busy_servers: np.ndarray) -> np.ndarray:
+    """Busy servers / servers of every replication (shape (R, n)), at most 1, averaged over
+    the replications: analyze's utilization. NaN for a transition without a self-loop (no
+    server limit)."""
+    servers = self_loop_servers(model.graph()).astype(np.float64)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        per_server = np.minimum(busy_servers / servers, 1.0).mean(axis=0)
+    return np.where(servers > 0, per_server, np.nan)
 
 
 def _ranges(items: list[int]) -> list[tuple[int, int]]:

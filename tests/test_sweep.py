@@ -245,12 +245,42 @@ def test_a_point_equals_analyze_of_its_model(line_sweep: dict) -> None:
     assert point["cycle_time_ci"] == pytest.approx(doc["cycle_time_ci"], rel=1e-12)
     assert point["per_replication"] == pytest.approx(doc["per_replication"], rel=1e-12)
     assert point["warmup_firings"] == doc["warmup_firings"]
+    # the busiest server's utilization is analyze's, per server and at most 1
+    busiest = point["busiest"]
+    assert 0 < busiest["utilization"] <= 1
+    assert busiest["utilization"] == pytest.approx(doc["utilization"][busiest["transition"]],
+                                                   rel=1e-12)
 
 
 def test_the_numbers_do_not_depend_on_the_workers(line_sweep: dict) -> None:
     """One process and two give the same document points, bit for bit."""
     one = sweep(LINE, vary=["s5.mean=0.5:2:4"], seed=11, workers=1, quiet=True)
     assert one["points"] == line_sweep["points"]
+
+
+def test_a_round_split_over_workers_gives_the_same_numbers() -> None:
+    """One point on two workers: its round is split into two tasks (workers would idle
+    otherwise), and the numbers are those of one task, bit for bit."""
+    options = {"vary": ["s5.mean=1.5"], "seed": 4, "firings": 600, "replications": 6,
+               "precision": 0.2, "quiet": True}
+    one, two = sweep(LINE, workers=1, **options), sweep(LINE, workers=2, **options)
+    assert one["points"] == two["points"]
+    assert two["points"][0]["replications"] >= 6
+
+
+def test_a_fixed_value_and_a_law_parameter_of_one_element_are_refused() -> None:
+    """`s5.mean` and `s5.duration` at once: the fixed value would replace the law and the
+    labels of the points would lie; refused naming both, in either order."""
+    for vary in (["s5.mean=1,2", "s5.duration=3"], ["s5.duration=3", "s5.mean=1,2"]):
+        with pytest.raises(ModelError, match=r"s5\.duration sets a fixed value and s5\.mean "
+                                             r"a parameter of its law"):
+            sweep(LINE, vary=vary, quiet=True)
+
+
+def test_one_number_is_a_list_of_one() -> None:
+    """A value given as a number (Python) is a list of one value."""
+    doc = sweep(KANBAN, vary={"kanban cards.tokens": 3}, quiet=True)
+    assert [p["values"]["kanban cards.tokens"] for p in doc["points"]] == [3]
 
 
 # --- outputs --------------------------------------------------------------------------------
