@@ -484,15 +484,16 @@ def estimate_cycle_time(model: Model, engine: str = "recursion", *, seed: int = 
                         executor: Executor | None = None, chunks: int = 1,
                         record: bool = False, first_replication: int = 0,
                         cyclicity_of_mean: int | None = None,
-                        progress: Callable[[str, int, np.ndarray], None] | None = None
-                        ) -> Estimate:
+                        progress: Callable[[str, int, np.ndarray], None] | None = None,
+                        lineage: bool = True) -> Estimate:
     """Estimate the cycle time of a model by independent replications.
 
     With ``precision`` the sequential procedure adds replications until the 95 % interval's
     relative half-width is at most ``precision`` (or ``max_replications`` are used).
     Replications are numbered from ``first_replication`` (another range gives independent
     draws). ``cyclicity_of_mean``, the cyclicity of the mean-duration graph, is computed when
-    not given.
+    not given. ``lineage``: also sum along the critical paths, for the derivatives of the
+    cycle time (about doubles the recursion's time: off where no derivative is reported).
     """
     firings, block = _aligned(model, firings, cyclicity_of_mean)
     components = _Components(model)
@@ -504,7 +505,8 @@ def estimate_cycle_time(model: Model, engine: str = "recursion", *, seed: int = 
         reps = range(state["next"], state["next"] + count)
         state["next"] += count
         batch = run_replications(model, engine, seed, reps, firings, block=block,
-                                 executor=executor, chunks=chunks, record=record)
+                                 executor=executor, chunks=chunks, record=record,
+                                 lineage=lineage)
         if state["warmup"] < 0:
             state["warmup"], at_limit = _warmup(batch, components)
             state["at_limit"] = int(at_limit)

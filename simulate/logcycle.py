@@ -113,7 +113,7 @@ def model_cycle_time(model: Model, *, precision: float = 0.005, seed: int = 1, w
         est = estimate_cycle_time(model, "recursion", seed=seed, precision=precision,
                                   firings=default_firings(model, "recursion"),
                                   executor=executor, chunks=max(workers, 1) if executor else 1,
-                                  progress=progress)
+                                  progress=progress, lineage=False)  # no derivatives needed
     finally:
         close()
     labels, growth = component_growth(model, est)  # (R, C)

@@ -35,9 +35,10 @@ from .experiment import Estimate
 from .modelfile import Model
 from .sensitivity import (
     SensitivityEstimate,
-    bottleneck_index,
+    distinguishable,
     element_entry,
     fixed_model_sensitivity,
+    ranked_candidates,
 )
 from .settings import RunSettings
 from .stability import fixed_unbounded, random_unbounded
@@ -304,10 +305,21 @@ def sensitivity_section(model: Model, sens: SensitivityEstimate, critical_ids: s
     out: dict[str, Any] = {"sensitivity": entries, "sensitivity_method": sens.method,
                            "sensitivity_exact": sens.exact,
                            "sensitivity_omitted": max(0, d.size - MAX_LISTED)}
-    best = bottleneck_index(sens, means)
+    ranked = ranked_candidates(sens, means)
+    best = int(ranked[0]) if ranked.size else None
     bottleneck = None
     if best is not None:
         bottleneck = element_entry(model, best, sens)
+        if ranked.size > 1:
+            # a bottleneck by a point estimate alone may be noise in a balanced line: the
+            # next element and whether the two are told apart come with it
+            second = int(ranked[1])
+            bottleneck["runner_up"] = element_entry(model, second, sens)
+            bottleneck["runner_up"]["name"] = (model.transition_ids[second] if second < n
+                                               else model.place_name(second - n))
+            bottleneck["distinguishable"] = distinguishable(sens, best, second)
+        else:
+            bottleneck["distinguishable"] = True
         theta = float(means[best])
         # a decrease is governed by the decrease derivative (the low end for fixed durations)
         slope = float(sens.low[best]) if sens.exact else float(sens.derivative[best])

@@ -42,10 +42,12 @@ __all__ = [
     "SEGMENT_MEMORY",
     "SensitivityEstimate",
     "bottleneck_index",
+    "distinguishable",
     "element_entry",
     "fixed_model_sensitivity",
     "from_paths",
     "frontiers",
+    "ranked_candidates",
     "segment_bounds",
 ]
 
@@ -174,16 +176,30 @@ def fixed_model_sensitivity(graph: EventGraph, result: HowardResult | None = Non
     return SensitivityEstimate(inc, dec, inc, None, True, 1)
 
 
+def ranked_candidates(sens: SensitivityEstimate, means: np.ndarray) -> np.ndarray:
+    """Elements of positive mean and positive derivative, largest derivative first (ties:
+    the larger effect of a 10 % change, then the smaller index)."""
+    d = np.where(np.isfinite(sens.derivative), sens.derivative, -np.inf)
+    candidates = np.flatnonzero((np.asarray(means) > 0) & (d > 0))
+    key = np.lexsort((-candidates, np.asarray(means)[candidates] * d[candidates],
+                      d[candidates]))
+    return candidates[key[::-1]]
+
+
 def bottleneck_index(sens: SensitivityEstimate, means: np.ndarray) -> int | None:
     """The element of largest derivative among those of positive mean (None if none has a
     positive derivative)."""
-    d = np.where(np.isfinite(sens.derivative), sens.derivative, -np.inf)
-    candidates = np.flatnonzero((np.asarray(means) > 0) & (d > 0))
-    if candidates.size == 0:
-        return None
-    key = np.lexsort((-candidates, np.asarray(means)[candidates] * d[candidates],
-                      d[candidates]))
-    return int(candidates[key[-1]])
+    ranked = ranked_candidates(sens, means)
+    return int(ranked[0]) if ranked.size else None
+
+
+def distinguishable(sens: SensitivityEstimate, first: int, second: int) -> bool:
+    """Whether element ``first``'s derivative is known to exceed ``second``'s: exactly, for
+    fixed durations; for random ones, when their 95 % intervals do not overlap (a
+    conservative rule: overlapping intervals may still differ)."""
+    if sens.exact:
+        return bool(sens.derivative[first] > sens.derivative[second])
+    return bool(sens.low[first] > sens.high[second])
 
 
 def element_entry(model: Any, e: int, sens: SensitivityEstimate) -> dict[str, Any]:

@@ -62,6 +62,16 @@ def _sensitivity_lines(doc: dict[str, Any], unit: str) -> list[str]:
         if not b.get("on_mean_critical_circuit"):
             lines.append("               not on the critical circuit of the mean durations: "
                          "variability moved the bottleneck")
+        runner = b.get("runner_up")
+        if runner and not b.get("distinguishable", True):
+            if exact:
+                lines.append("               other elements have the same derivative (on the "
+                             "same critical circuit): this one has the largest mean, so 10 % "
+                             "off it gains most")
+            else:
+                lines.append(f"               not told apart from {_element(runner, doc)} "
+                             f"({_num(runner['derivative'], 3)}): their 95 % intervals "
+                             "overlap; more replications would tell them apart")
     head = "exact" if exact else "95 % CI"
     lines.append(f"sensitivity of the cycle time to each mean (dλ/dθ, {head}"
                  + ("" if exact else "; share of firings on the critical path") + "):")
