@@ -128,7 +128,8 @@ class EventGraph:
     @cached_property
     def weight(self) -> np.ndarray:
         """Arc weight of each place in the cycle-ratio problem: ``hold + duration[target]``."""
-        w = self.hold + self.duration[self.target]
+        with np.errstate(over="ignore"):  # inf near the float limit: howard raises OutOfRange
+            w = self.hold + self.duration[self.target]
         w.setflags(write=False)
         return w
 
