@@ -106,7 +106,7 @@ class EventGraph:
             raise GraphStructureError(f"target must lie in 0..{n - 1}")
         if m and self.tokens.min() < 0:
             raise GraphStructureError("tokens must be >= 0")
-        names = tuple(str(s) for s in self.names) if len(self.names) else ()
+        names = tuple(map(str, self.names)) if len(self.names) else ()
         if names and len(names) != n:
             raise GraphStructureError(f"names must have {n} entries, got {len(names)}")
         set_(self, "names", names)
