@@ -33,6 +33,7 @@ checked in the tests).
 
 from __future__ import annotations
 
+import functools
 import math
 import os
 import re
@@ -453,44 +454,83 @@ def pcg64_states(seed: int, keys: np.ndarray) -> list[tuple[int, int]]:
     list of (int, int)
         The 128-bit state and increment of each generator, as ``PCG64().state["state"]``
         holds them.
+
+    Notes
+    -----
+    The words common to every key (the seed, then leading key columns of one value, such as
+    the replication and the kind) are hashed once as Python integers; the others as numpy
+    arrays over the keys, or key by key for a few keys.
     """
-    def mul(a: np.ndarray | int, b: np.ndarray | int) -> np.ndarray:
-        return (np.asarray(a, np.uint64) * np.asarray(b, np.uint64)) & np.uint64(0xFFFFFFFF)
-
-    def shift(v: np.ndarray) -> np.ndarray:
-        return v ^ (v >> np.uint64(16))
-
     keys = np.asarray(keys, dtype=np.uint64)
+    if keys.shape[0] < 32:  # numpy's per-call cost exceeds the work: one key at a time
+        return [_seed_pcg64(seed, row)[0] for row in keys.tolist()]
+    columns = [int(c[0]) if (c == c[0]).all() else c for c in keys.T]
+    return _seed_pcg64(seed, columns)
+
+
+_M32 = 0xFFFFFFFF
+
+
+def _hashmix(value: Any, hash_a: int) -> tuple[Any, int]:
+    value = value ^ hash_a
+    hash_a = (hash_a * _MULT_A) & _M32
+    value = (value * hash_a) & _M32
+    return value ^ (value >> 16), hash_a
+
+
+def _mix(x: Any, y: Any) -> Any:
+    r = (x * _MIX_L - y * _MIX_R) & _M32
+    return r ^ (r >> 16)
+
+
+@functools.lru_cache(maxsize=64)
+def _pool_after(seed: int, head: tuple[int, ...]) -> tuple[tuple[int, ...], int]:
+    """SeedSequence's pool (and hash constant) after the seed and the leading spawn-key words
+    ``head``: common to all the blocks of a replication and kind, so hashed once."""
     run = _words(seed)
     run += [0] * (_POOL - len(run))  # a spawn key follows: the seed is padded to the pool
-    entropy = [np.full(keys.shape[0], w, np.uint64) for w in run] + list(keys.T)
+    pool: list[int] = []
     hash_a = _INIT_A
-
-    def hashmix(value: np.ndarray) -> np.ndarray:
-        nonlocal hash_a
-        value = value ^ np.uint64(hash_a)
-        hash_a = (hash_a * _MULT_A) & 0xFFFFFFFF
-        return shift(mul(value, hash_a))
-
-    def mix(x: np.ndarray, y: np.ndarray) -> np.ndarray:
-        return shift((mul(x, _MIX_L) - mul(y, _MIX_R)) & np.uint64(0xFFFFFFFF))
-
-    zero = np.zeros(keys.shape[0], np.uint64)
-    pool = [hashmix(entropy[i] if i < len(entropy) else zero) for i in range(_POOL)]
+    for i in range(_POOL):
+        v, hash_a = _hashmix(run[i], hash_a)
+        pool.append(v)
     for i_src in range(_POOL):
         for i_dst in range(_POOL):
             if i_src != i_dst:
-                pool[i_dst] = mix(pool[i_dst], hashmix(pool[i_src]))
-    for i_src in range(_POOL, len(entropy)):
+                v, hash_a = _hashmix(pool[i_src], hash_a)
+                pool[i_dst] = _mix(pool[i_dst], v)
+    for word in [*run[_POOL:], *head]:
         for i_dst in range(_POOL):
-            pool[i_dst] = mix(pool[i_dst], hashmix(entropy[i_src]))
+            v, hash_a = _hashmix(word, hash_a)
+            pool[i_dst] = _mix(pool[i_dst], v)
+    return tuple(pool), hash_a
+
+
+def _seed_pcg64(seed: int, columns: list[Any]) -> list[tuple[int, int]]:
+    """SeedSequence's hashing of ``seed`` and the spawn-key ``columns`` (each an int, common to
+    every key, or an array over keys), then the seeding of PCG64."""
+    head = 0
+    while head < min(2, len(columns)) and isinstance(columns[head], int):
+        head += 1
+    start, hash_a = _pool_after(seed, tuple(columns[:head]))
+    pool: list[Any] = list(start)
+    for word in columns[head:]:
+        for i_dst in range(_POOL):
+            v, hash_a = _hashmix(word, hash_a)
+            pool[i_dst] = _mix(pool[i_dst], v)
     hash_b = _INIT_B
     words = []
     for i in range(8):  # generate_state(4, uint64): 8 words of 32 bits
-        v = pool[i % _POOL] ^ np.uint64(hash_b)
-        hash_b = (hash_b * _MULT_B) & 0xFFFFFFFF
-        words.append(shift(mul(v, hash_b)))
-    u64 = [(words[2 * j] | (words[2 * j + 1] << np.uint64(32))).tolist() for j in range(4)]
+        v = pool[i % _POOL] ^ hash_b
+        hash_b = (hash_b * _MULT_B) & _M32
+        v = (v * hash_b) & _M32
+        words.append(v ^ (v >> 16))
+    if any(isinstance(w, np.ndarray) for w in words):
+        size = max(w.size for w in words if isinstance(w, np.ndarray))
+        w64 = [np.broadcast_to(np.asarray(w, dtype=np.uint64), size) for w in words]
+        u64 = [(w64[2 * j] | (w64[2 * j + 1] << np.uint64(32))).tolist() for j in range(4)]
+    else:
+        u64 = [[words[2 * j] | (words[2 * j + 1] << 32)] for j in range(4)]
     out = []
     for s0, s1, i0, i1 in zip(*u64, strict=True):
         inc = ((((i0 << 64) | i1) << 1) | 1) & _M128
@@ -499,14 +539,13 @@ def pcg64_states(seed: int, keys: np.ndarray) -> list[tuple[int, int]]:
     return out
 
 
-
 def _count(x: object, name: str, low: int) -> int:
     if isinstance(x, bool) or not isinstance(x, (int, np.integer)) or x < low:
         raise ValueError(f"{name} must be an integer >= {low}, got {x!r}")
     return int(x)
 
 
-#: Least number of draws added to a block at a time (see ``Sampler._drawn``).
+#: Least number of draws made in a block at first (see ``Sampler._drawn``).
 _STEP = 1024
 
 
@@ -665,9 +704,9 @@ class Sampler:
                 self._gen = np.random.Generator(self._bitgen)
             assert self._bitgen is not None
             self._bitgen.state = entry.state
-            # Draw to the end of the request rounded up, so that a sequence of small requests
-            # does not pay the state switch for every one of them.
-            stop = min(BLOCK, max(upto, entry.filled + _STEP))
+            # At least double what is drawn, so that a run asking firing after firing, or chunk
+            # after chunk, switches generator states a few times per block, not every time.
+            stop = min(BLOCK, max(upto, 2 * entry.filled, _STEP))
             entry.values[entry.filled:stop] = table.laws[table.codes[e]].sample(
                 self._gen, stop - entry.filled)
             entry.filled = stop
