@@ -81,7 +81,7 @@ def _exceeds(new: float, old: float, scale: float, rtol: float) -> bool:
 
 
 @_jit
-def _evaluate(source, weight, tokens, policy, eta, bias, scale, is_root, lw, lm, mark,
+def _evaluate(source, weight, tokens, policy, eta, bias, scale, is_root, lw, lm, link,
               stack):  # type: ignore[no-untyped-def]
     """Value determination of a policy: ``eta``, ``bias`` and ``scale`` of every transition,
     and ``is_root``, one node per policy circuit (its smallest index). Returns a status.
@@ -94,24 +94,25 @@ def _evaluate(source, weight, tokens, policy, eta, bias, scale, is_root, lw, lm,
     the largest double: it only sizes tolerances).
     """
     n = policy.size
-    for t in range(n):  # the link of each transition to its predecessor
-        q = policy[t]
+    for t in range(n):  # the link of each transition to its predecessor (policy[t] is near
+        q = policy[t]   # the places of t: one pass in memory order)
         lw[t] = weight[q]
         lm[t] = tokens[q]
+        link[t, 0] = source[q]
+        link[t, 1] = -1  # -1: not seen; s: on the walk from s; n: done
         is_root[t] = False
-        mark[t] = -1  # -1: not seen; s: on the walk from s; n: done
     for s in range(n):
-        if mark[s] >= 0:
+        if link[s, 1] >= 0:
             continue
         top = 0
         u = s
-        while mark[u] < 0:
-            mark[u] = s
+        while link[u, 1] < 0:  # predecessor and mark side by side: one cache line per step
+            link[u, 1] = s
             stack[top] = u
             top += 1
-            u = source[policy[u]]
+            u = link[u, 0]
         rest = top  # stack[:rest] is unwound below, after the circuit if one was closed
-        if mark[u] == s:  # a new circuit: stack[j:top], each entry's predecessor after it
+        if link[u, 1] == s:  # a new circuit: stack[j:top], each entry's predecessor after it
             j = top - 1
             while stack[j] != u:
                 j -= 1
@@ -140,7 +141,7 @@ def _evaluate(source, weight, tokens, policy, eta, bias, scale, is_root, lw, lm,
             eta[r] = ratio
             bias[r] = 0.0
             scale[r] = 0.0
-            mark[r] = n
+            link[r, 1] = n
             # The others in successor order from the root, each after its predecessor, whose
             # values are carried along (no gather).
             e = ratio
@@ -155,7 +156,7 @@ def _evaluate(source, weight, tokens, policy, eta, bias, scale, is_root, lw, lm,
                 eta[t] = e
                 bias[t] = b
                 scale[t] = min(c, _BIG)
-                mark[t] = n
+                link[t, 1] = n
             if not np.isfinite(b):  # inf or nan stays so once reached
                 return STATUS_OVERFLOW
         if rest == 0:
@@ -171,26 +172,10 @@ def _evaluate(source, weight, tokens, policy, eta, bias, scale, is_root, lw, lm,
             eta[t] = e
             bias[t] = b
             scale[t] = min(c, _BIG)
-            mark[t] = n
+            link[t, 1] = n
         if not np.isfinite(b):
             return STATUS_OVERFLOW
     return STATUS_OK
-
-
-@_jit
-def _segment_argmax(values, starts, best, arg):  # type: ignore[no-untyped-def]
-    """Per transition, the max of ``values`` over its input places and the first attaining it."""
-    n = starts.size - 1
-    for t in range(n):
-        lo = starts[t]
-        b = values[lo]
-        a = lo
-        for p in range(lo + 1, starts[t + 1]):
-            if values[p] > b:
-                b = values[p]
-                a = p
-        best[t] = b
-        arg[t] = a
 
 
 @_jit
@@ -244,24 +229,21 @@ def howard_iterate(source, target, weight, tokens, starts, max_weight, out_start
     searches. Returns ``(status, iterations, eta, bias, scale, is_root)``.
     """
     n = policy.size
-    m = source.size
     eta = np.empty(n)
     bias = np.empty(n)
     scale = np.empty(n)
     is_root = np.zeros(n, dtype=np.bool_)
     lw = np.empty(n)
     lm = np.empty(n)
-    pred = np.empty(n, dtype=np.int64)
-    work = np.empty(n, dtype=np.int64)
+    pred = np.empty(n, dtype=policy.dtype)
+    link = np.empty((n, 2), dtype=policy.dtype)
+    work = np.empty(n, dtype=policy.dtype)
     seen = np.zeros(n, dtype=np.bool_)
-    best = np.empty(n)
-    arg = np.empty(n, dtype=np.int64)
-    value = np.empty(m)
     iterations = 0
     eta_steps = 0
     while True:
         status = _evaluate(source, weight, tokens, policy, eta, bias, scale, is_root, lw, lm,
-                           pred, work)
+                           link, work)
         if status != STATUS_OK:
             return status, iterations, eta, bias, scale, is_root
         # When every transition has the same eta (bit for bit), as soon happens in a strongly
@@ -270,13 +252,7 @@ def howard_iterate(source, target, weight, tokens, starts, max_weight, out_start
         uniform = eta.min() == eta.max()
         changed = False
         if not uniform:
-            for p in range(m):
-                value[p] = eta[source[p]]
-            _segment_argmax(value, starts, best, arg)
-            for t in range(n):
-                if _exceeds(best[t], value[policy[t]], 0.0, rtol) and arg[t] != policy[t]:
-                    policy[t] = arg[t]
-                    changed = True
+            changed = _improve_eta(source, starts, eta, policy, rtol)
         if changed:
             eta_steps += 1
             if eta_steps % spread_after == 0:
@@ -284,24 +260,64 @@ def howard_iterate(source, target, weight, tokens, starts, max_weight, out_start
                                 seen)
         else:
             eta_steps = 0
-            for p in range(m):
-                u = source[p]
-                t = target[p]
-                if not uniform and _exceeds(eta[t], eta[u], 0.0, rtol):
-                    value[p] = -np.inf
-                else:
-                    value[p] = weight[p] - eta[t] * tokens[p] + bias[u]
-            _segment_argmax(value, starts, best, arg)
-            for t in range(n):
-                if (_exceeds(best[t], value[policy[t]], max_weight[t], rtol)
-                        and arg[t] != policy[t]):
-                    policy[t] = arg[t]
-                    changed = True
-            if not changed:
+            if not _improve_value(source, weight, tokens, starts, max_weight, eta, bias, policy,
+                                  uniform, rtol):
                 return STATUS_OK, iterations, eta, bias, scale, is_root
         iterations += 1
         if iterations > limit:
             return STATUS_NOT_CONVERGED, iterations, eta, bias, scale, is_root
+
+
+@_jit
+def _improve_eta(source, starts, eta, policy, rtol):  # type: ignore[no-untyped-def]
+    """The eta step: each transition takes the first input place whose source has the largest
+    eta, if that beats its own place by more than rounding. True if a place changed."""
+    changed = False
+    for t in range(policy.size):
+        lo = starts[t]
+        best = eta[source[lo]]
+        arg = lo
+        for p in range(lo + 1, starts[t + 1]):
+            v = eta[source[p]]
+            if v > best:
+                best = v
+                arg = p
+        q = policy[t]
+        if _exceeds(best, eta[source[q]], 0.0, rtol) and arg != q:
+            policy[t] = arg
+            changed = True
+    return changed
+
+
+@_jit
+def _improve_value(source, weight, tokens, starts, max_weight, eta, bias, policy, uniform,
+                   rtol):  # type: ignore[no-untyped-def]
+    """The value step: each transition takes the first input place of largest
+    ``w - eta m + v_source`` among those whose source has its eta (all of them when
+    ``uniform``), if that beats its own place by more than rounding. True if a place changed.
+    One pass over the places, no array of values."""
+    changed = False
+    for t in range(policy.size):
+        e = eta[t]
+        q = policy[t]
+        best = -np.inf
+        arg = -1
+        current = -np.inf
+        for p in range(starts[t], starts[t + 1]):
+            u = source[p]
+            if not uniform and _exceeds(e, eta[u], 0.0, rtol):
+                v = -np.inf
+            else:
+                v = weight[p] - e * tokens[p] + bias[u]
+            if arg < 0 or v > best:
+                best = v
+                arg = p
+            if p == q:
+                current = v
+        if _exceeds(best, current, max_weight[t], rtol) and arg != q:
+            policy[t] = arg
+            changed = True
+    return changed
 
 
 @_jit
@@ -352,6 +368,6 @@ def disable_cache() -> None:
     """Compile in memory from now on (the cache location turned out not to be writable)."""
     global CACHED
     CACHED = False
-    for fn in (_exceeds, _evaluate, _segment_argmax,
+    for fn in (_exceeds, _evaluate, _improve_eta, _improve_value,
                _spread_largest, howard_iterate, policy_circuits):
         fn._cache = NullCache()

@@ -446,15 +446,21 @@ def _howard_compiled(kernels, graph: EventGraph, places: _SortedPlaces,  # type:
                      policy: np.ndarray, limit: int) -> HowardResult:
     """Howard's iteration as one compiled loop (:func:`kernels.howard_iterate`)."""
     out_starts, out_places = places.out_adjacency()
-    args = (places.source, places.target, places.weight, places.tokens,
-            np.asarray(places.starts, dtype=np.int64), places.max_weight, out_starts, out_places,
-            np.ascontiguousarray(policy, dtype=np.int64), RTOL, SPREAD_AFTER, limit)
+    # 32-bit indices where they fit: half the memory traffic of the passes over the places.
+    index = np.int32 if graph.n_places < 2**31 - 1 else np.int64
+
+    def idx(a: np.ndarray) -> np.ndarray:
+        return np.ascontiguousarray(a, dtype=index)
+
+    args = (idx(places.source), idx(places.target), places.weight, places.tokens,
+            idx(places.starts), places.max_weight, idx(out_starts), idx(out_places),
+            idx(policy), RTOL, SPREAD_AFTER, limit)
     try:
         status, iterations, eta, bias, scale, is_root = kernels.howard_iterate(*args)
     except OSError:  # the cache location accepted the kernels but cannot store them
         kernels.disable_cache()
         status, iterations, eta, bias, scale, is_root = kernels.howard_iterate(*args)
-    policy = args[8]
+    policy = args[8].astype(np.int64)
     if status == kernels.STATUS_TOKEN_FREE:
         raise MaxPlusError("a policy circuit holds no token: the graph is not live")
     if status == kernels.STATUS_OVERFLOW:
