@@ -78,6 +78,7 @@ from .tables import (
     _read_file,
     _Rows,
     cell,
+    numeric,
     write_csv_model,
 )
 
@@ -314,8 +315,7 @@ def _lookup(ids: Any, wanted: Any) -> np.ndarray:
     import pyarrow.compute as pc
 
     def index_in(values: Any) -> np.ndarray:
-        out = pc.index_in(values, value_set=ids).fill_null(-1)
-        return out.to_numpy(zero_copy_only=False).astype(np.int64)
+        return numeric(pc.index_in(values, value_set=ids), fill=-1).astype(np.int64)
 
     found = index_in(wanted)
     missing = np.flatnonzero(found < 0)
@@ -332,11 +332,12 @@ def _first_duplicate(ids: Any) -> tuple[int, int] | None:
                 return seen[t], j
             seen[t] = j
         return None
-    import pandas as pd
     import pyarrow.compute as pc
 
     if len(pc.unique(ids)) == len(ids):
         return None
+    import pandas as pd
+
     values = ids.to_numpy(zero_copy_only=False)  # a duplicate to report: the slow way is fine
     j = int(np.argmax(pd.Index(values).duplicated()))
     return int(np.flatnonzero(values == values[j])[0]), j

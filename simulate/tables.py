@@ -429,8 +429,9 @@ def _text_column(columns: dict[str, Any], name: str, rows: int, strip: bool) -> 
     import pyarrow as pa
     import pyarrow.compute as pc
 
-    if name not in columns:
-        return pa.repeat(pa.scalar("", type=pa.string()), rows)
+    if name not in columns:  # empty strings from buffers (pa.scalar would import pandas)
+        offsets = pa.py_buffer(np.zeros(rows + 1, dtype=np.int32))
+        return pa.Array.from_buffers(pa.string(), rows, [None, offsets, pa.py_buffer(b"")])
     col = columns[name]
     return pc.utf8_trim(col, " \t") if strip else pc.utf8_ltrim(col, " ")
 
@@ -458,17 +459,35 @@ def _cast(column: Any, dtype: Any) -> np.ndarray | None:
     import pyarrow as pa
     import pyarrow.compute as pc
 
+    options = pc.CastOptions.safe(dtype)
     for attempt in (column, None):
         try:
             col = attempt if attempt is not None else pc.utf8_trim(column, " \t")
-            return pc.cast(col, dtype).to_numpy(zero_copy_only=False)
+            return numeric(pc.call_function("cast", [col], options))
         except (pa.ArrowInvalid, pa.ArrowNotImplementedError):
             continue
     return None
 
 
+def numeric(array: Any, fill: float | None = None) -> np.ndarray:
+    """A numeric Arrow array as a numpy array (a copy), nulls replaced by ``fill``.
+
+    Read from its buffers: ``to_numpy``, ``np.asarray``, ``pa.scalar`` or ``fill_null`` import
+    pandas on their way (about 0.3 s of start-up), which a model without laws never needs.
+    """
+    dtype = np.dtype(array.type.to_pandas_dtype())
+    validity, data = array.buffers()[:2]
+    out = np.frombuffer(data, dtype=dtype, count=len(array),
+                        offset=array.offset * dtype.itemsize).copy()
+    if array.null_count:
+        if fill is None:
+            raise ValueError("the array has nulls and no fill value was given")
+        bits = np.unpackbits(np.frombuffer(validity, dtype=np.uint8), bitorder="little")
+        out[~bits[array.offset:array.offset + len(array)].astype(bool)] = fill
+    return out
+
+
 def _spec_column(columns: dict[str, Any], name: str, fail: Any) -> SpecTable:
-    import pandas as pd
     import pyarrow as pa
 
     col = columns[name]
@@ -477,6 +496,8 @@ def _spec_column(columns: dict[str, Any], name: str, fail: Any) -> SpecTable:
     if values is not None and not np.isnan(values).any():
         _finite_nonneg(values, name, lambda r: shown(float(values[r])), fail)
         return SpecTable(values + 0.0)
+    import pandas as pd  # cell by cell: laws, blanks, or a message to write
+
     text = pd.Series(col.to_numpy(zero_copy_only=False), dtype=object).str.strip()
     values = pd.to_numeric(text, errors="coerce").to_numpy(dtype=np.float64)
     laws = np.isnan(values) & text.str.fullmatch(r"[A-Za-z_]\w*\s*\(.*\)").to_numpy(bool)
@@ -506,7 +527,6 @@ def _spec_column(columns: dict[str, Any], name: str, fail: Any) -> SpecTable:
 
 
 def _token_column(columns: dict[str, Any], fail: Any) -> np.ndarray:
-    import pandas as pd
     import pyarrow as pa
 
     col = columns["tokens"]
@@ -517,6 +537,8 @@ def _token_column(columns: dict[str, Any], fail: Any) -> np.ndarray:
     # Numbers are shown as numbers (1.0 is accepted, -1 or 0.5 are not), anything else as text.
     values = ints.astype(np.float64) if ints is not None else _cast(col, pa.float64())
     if values is None:
+        import pandas as pd  # text: read cell by cell for the message
+
         text = pd.Series(col.to_numpy(zero_copy_only=False), dtype=object).str.strip()
         values = pd.to_numeric(text, errors="coerce").to_numpy(dtype=np.float64)
     with np.errstate(invalid="ignore"):
