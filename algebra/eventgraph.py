@@ -149,6 +149,18 @@ class EventGraph:
         return order, starts
 
     @cached_property
+    def components(self) -> tuple[int, np.ndarray]:
+        """Strongly connected components, computed once (see
+        :func:`strongly_connected_components`)."""
+        n = self.n_transitions
+        adj = csr_matrix(
+            (np.ones(self.n_places, dtype=np.int8), (self.source, self.target)), shape=(n, n)
+        )
+        count, labels = connected_components(adj, directed=True, connection="strong")
+        labels.setflags(write=False)
+        return int(count), labels
+
+    @cached_property
     def in_degree(self) -> np.ndarray:
         """Number of input places of each transition."""
         return np.bincount(self.target, minlength=self.n_transitions)
@@ -178,14 +190,9 @@ def strongly_connected_components(graph: EventGraph) -> tuple[int, np.ndarray]:
     count : int
         Number of components.
     labels : ndarray of int, shape (n,)
-        Component of each transition.
+        Component of each transition (read-only: computed once per graph).
     """
-    n = graph.n_transitions
-    adj = csr_matrix(
-        (np.ones(graph.n_places, dtype=np.int8), (graph.source, graph.target)), shape=(n, n)
-    )
-    count, labels = connected_components(adj, directed=True, connection="strong")
-    return int(count), labels
+    return graph.components
 
 
 def find_token_free_circuit(graph: EventGraph) -> list[int] | None:
