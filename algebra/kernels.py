@@ -150,13 +150,7 @@ def _evaluate(source, weight, tokens, policy, eta, bias, scale, is_root, lw, lm,
             i = jr
             for _ in range(size - 1):
                 i = i - 1 if i > j else top - 1
-                t = stack[i]
-                b = (lw[t] - e * lm[t]) + b
-                c = (lw[t] + abs(e) * lm[t]) + c
-                eta[t] = e
-                bias[t] = b
-                scale[t] = min(c, _BIG)
-                link[t, 1] = n
+                b, c = _settle(stack[i], e, b, c, lw, lm, eta, bias, scale, link)
             if not np.isfinite(b):  # inf or nan stays so once reached
                 return STATUS_OVERFLOW
         if rest == 0:
@@ -166,16 +160,23 @@ def _evaluate(source, weight, tokens, policy, eta, bias, scale, is_root, lw, lm,
         b = bias[u]
         c = scale[u]  # saturated at _BIG, where it stays: inf - inf is never formed
         for i in range(rest - 1, -1, -1):
-            t = stack[i]
-            b = (lw[t] - e * lm[t]) + b
-            c = (lw[t] + abs(e) * lm[t]) + c
-            eta[t] = e
-            bias[t] = b
-            scale[t] = min(c, _BIG)
-            link[t, 1] = n
+            b, c = _settle(stack[i], e, b, c, lw, lm, eta, bias, scale, link)
         if not np.isfinite(b):
             return STATUS_OVERFLOW
     return STATUS_OK
+
+
+@_jit
+def _settle(t, e, b, c, lw, lm, eta, bias, scale, link):  # type: ignore[no-untyped-def]
+    """Give ``t`` the values of its predecessor (``eta`` e, bias b, scale c) plus its own link,
+    mark it done; its bias and scale, for its successor."""
+    b = (lw[t] - e * lm[t]) + b
+    c = (lw[t] + abs(e) * lm[t]) + c
+    eta[t] = e
+    bias[t] = b
+    scale[t] = min(c, _BIG)
+    link[t, 1] = link.shape[0]
+    return b, c
 
 
 @_jit
@@ -368,6 +369,6 @@ def disable_cache() -> None:
     """Compile in memory from now on (the cache location turned out not to be writable)."""
     global CACHED
     CACHED = False
-    for fn in (_exceeds, _evaluate, _improve_eta, _improve_value,
+    for fn in (_exceeds, _evaluate, _settle, _improve_eta, _improve_value,
                _spread_largest, howard_iterate, policy_circuits):
         fn._cache = NullCache()
