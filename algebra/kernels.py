@@ -2,9 +2,11 @@ r"""Compiled kernels of the algebra's per-pass work on large graphs (numba).
 
 Howard's policy iteration (:func:`cyclecheck.algebra.spectral.howard`) runs here, whole, as
 one compiled loop: the value determination of a policy, the policy improvement and the
-spreading of the largest ratio. The numpy implementation in :mod:`~cyclecheck.algebra.spectral`
-stays callable (``howard(graph, kernel="numpy")``) and is the twin of this one in the tests;
-Karp, brute force over circuits and the HiGHS linear program are the independent twins of both.
+spreading of the largest ratio. The certificate (:func:`cyclecheck.algebra.critical.certify`)
+sums along the policy's paths with :func:`path_sums`, the same walk. The numpy
+implementation in :mod:`~cyclecheck.algebra.spectral` stays callable (``howard(graph,
+kernel="numpy")``) and is the twin of this one in the tests; Karp, brute force over circuits
+and the HiGHS linear program are the independent twins of both.
 
 Where the numpy version works with arrays of ``log2 n`` pointer-doubling rounds, a compiled loop
 simply walks: a policy (one input place per transition) is a functional graph, so its circuits
@@ -44,7 +46,8 @@ import numpy as np
 from numba.core.caching import NullCache
 
 __all__ = ["CACHED", "STATUS_NOT_CONVERGED", "STATUS_OK", "STATUS_OVERFLOW",
-           "STATUS_TOKEN_FREE", "howard_iterate", "policy_circuits"]
+           "STATUS_TOKEN_FREE", "disable_cache", "howard_iterate", "path_sums",
+           "policy_circuits"]
 
 _BIG = float(np.finfo(np.float64).max)  # the scales of the tolerances saturate here
 
@@ -365,10 +368,64 @@ def policy_circuits(pred, is_root):  # type: ignore[no-untyped-def]
     return nodes, offsets
 
 
+@_jit
+def path_sums(pred, link):  # type: ignore[no-untyped-def]
+    """Sums along the paths of a functional graph: ``(is_root, total)``.
+
+    ``is_root`` marks one node per circuit of ``pred`` (its smallest index); ``total[t]`` is
+    ``link[t] + total[pred[t]]``, 0 at roots, so that a circuit node sums the links around the
+    circuit back to its root (``spectral.chain_sums`` with roots as their own parents, the
+    numpy twin, which adds in another order). One walk, as in Howard's value determination.
+    """
+    n = pred.size
+    total = np.zeros(n)
+    is_root = np.zeros(n, dtype=np.bool_)
+    mark = np.full(n, -1, dtype=np.int64)
+    stack = np.empty(n, dtype=np.int64)
+    for s in range(n):
+        if mark[s] >= 0:
+            continue
+        top = 0
+        u = s
+        while mark[u] < 0:
+            mark[u] = s
+            stack[top] = u
+            top += 1
+            u = pred[u]
+        rest = top
+        if mark[u] == s:  # a new circuit, stack[j:top]
+            j = top - 1
+            while stack[j] != u:
+                j -= 1
+            rest = j
+            jr = j
+            for i in range(j + 1, top):
+                if stack[i] < stack[jr]:
+                    jr = i
+            r = stack[jr]
+            is_root[r] = True
+            mark[r] = n
+            acc = 0.0
+            i = jr
+            for _ in range(top - j - 1):  # successor order from the root
+                i = i - 1 if i > j else top - 1
+                t = stack[i]
+                acc = link[t] + acc
+                total[t] = acc
+                mark[t] = n
+        acc = total[u]
+        for i in range(rest - 1, -1, -1):
+            t = stack[i]
+            acc = link[t] + acc
+            total[t] = acc
+            mark[t] = n
+    return is_root, total
+
+
 def disable_cache() -> None:
     """Compile in memory from now on (the cache location turned out not to be writable)."""
     global CACHED
     CACHED = False
     for fn in (_exceeds, _evaluate, _settle, _improve_eta, _improve_value,
-               _spread_largest, howard_iterate, policy_circuits):
+               _spread_largest, howard_iterate, policy_circuits, path_sums):
         fn._cache = NullCache()

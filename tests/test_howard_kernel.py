@@ -25,6 +25,7 @@ from cyclecheck.algebra.eventgraph import EventGraph
 from cyclecheck.algebra.exceptions import OutOfRange
 from cyclecheck.algebra.spectral import KERNEL_MIN_PLACES, howard
 from hypothesis import HealthCheck, given, settings
+from hypothesis import strategies as st
 
 from tests.strategies import live_event_graphs
 
@@ -114,7 +115,9 @@ def test_auto_picks_by_size():
     assert np.array_equal(howard(small).bias, howard(small, kernel="numpy").bias)
     n = KERNEL_MIN_PLACES // 3 + 1
     large = _random_graph(n, 3 * n, 5)
-    assert np.array_equal(howard(large).bias, howard(large, kernel="numba").bias)
+    result = howard(large)
+    assert np.array_equal(result.bias, howard(large, kernel="numba").bias)
+    assert certify(large, result).holds  # its path sums by the compiled walk too
     with pytest.raises(ValueError, match="kernel must be one of"):
         howard(small, kernel="fortran")
 
@@ -197,3 +200,25 @@ def test_kernels_run_where_the_cache_cannot_be_written(only_cache_dir):
     if only_cache_dir:
         assert cached == "False"
     assert float(value) == 50 * 51 / 2 / 2
+
+
+@settings(max_examples=100, derandomize=True, deadline=None)
+@given(st.lists(st.integers(0, 30), min_size=1, max_size=31).flatmap(
+    lambda p: st.tuples(st.just([x % len(p) for x in p]),
+                        st.lists(st.floats(0, 100), min_size=len(p), max_size=len(p)))))
+def test_path_sums_twins(case):
+    """The compiled walk over a functional graph finds the circuits numpy's pointer doubling
+    finds (one root per circuit, its smallest node) and the same sums along the paths."""
+    from cyclecheck.algebra import kernels
+    from cyclecheck.algebra.spectral import _policy_cycles, chain_sums
+
+    pred, link = np.array(case[0], dtype=np.int64), np.array(case[1])
+    is_root, total = kernels.path_sums(pred, link)
+    expected_roots = _policy_cycles(pred)
+    _, (expected,) = chain_sums(np.where(expected_roots, np.arange(pred.size), pred), link)
+    assert np.array_equal(is_root, expected_roots)
+    np.testing.assert_allclose(total, expected, rtol=1e-12, atol=1e-12)
+    # and by the definition: total[t] = link[t] + total[pred[t]] off the roots, 0 on them
+    off = ~is_root
+    np.testing.assert_allclose(total[off], link[off] + total[pred[off]], rtol=1e-12, atol=1e-12)
+    assert np.all(total[is_root] == 0)
