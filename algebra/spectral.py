@@ -65,9 +65,11 @@ __all__ = ["KERNELS", "KERNEL_MIN_PLACES", "Circuit", "HowardResult", "chain_sum
 #: ``"numpy"`` (vectorized, its twin); ``"auto"`` picks by size.
 KERNELS = ("auto", "numba", "numpy")
 #: ``kernel="auto"`` compiles from this many places on. Below it the numpy version is done
-#: before numba is even imported (importing it and loading the cached kernels costs about
-#: 0.4 s; numpy needs about 75 ms per iteration at 10^6 places).
-KERNEL_MIN_PLACES = 100_000
+#: before numba would be ready: importing numba and loading the cached kernels costs about a
+#: second of CPU, the compiled loop is 3-4 times faster per iteration than numpy (about 20
+#: Howard iterations at 10^5 places take 0.5 s in numpy, 1.3 s with numba's start-up; 50 at
+#: 3·10^5 take 3.4 s and 1.7 s: CPU seconds on the 2-core benchmark machine, under load).
+KERNEL_MIN_PLACES = 200_000
 
 
 @dataclass(frozen=True)
