@@ -222,3 +222,28 @@ def test_path_sums_twins(case):
     off = ~is_root
     np.testing.assert_allclose(total[off], link[off] + total[pred[off]], rtol=1e-12, atol=1e-12)
     assert np.all(total[is_root] == 0)
+
+
+_IMPORTS = """
+import sys
+from cyclecheck.simulate.cli import main
+sys.argv = {argv!r}
+try:
+    main()
+except SystemExit:
+    pass
+print("numba" in sys.modules, "pyarrow" in sys.modules, file=sys.stderr)
+"""
+
+
+@pytest.mark.parametrize(("argv", "expected"), [
+    (["cyclecheck", "--help"], "False False"),
+    (["cyclecheck", "analyze", "models/packaging_cell.toml", "--json"], "False False"),
+])
+def test_small_runs_do_not_load_numba(argv, expected):
+    """``cyclecheck --help`` and the analysis of a small model import neither numba (about 0.5 s
+    of start-up, and a compilation on a first run) nor pyarrow (the CSV reader)."""
+    out = subprocess.run([sys.executable, "-c", _IMPORTS.format(argv=argv)],
+                         cwd=str(Path(__file__).resolve().parents[1]), capture_output=True,
+                         text=True, timeout=600)
+    assert out.stderr.strip().splitlines()[-1] == expected, out.stderr
