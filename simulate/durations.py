@@ -620,11 +620,13 @@ class Sampler:
         self._cache: OrderedDict[tuple[int, int], _Block] = OrderedDict()
         self._bitgen: np.random.PCG64 | None = None
         self._gen: np.random.Generator | None = None
+        self._prepared: dict[int, int] = {}  # kind -> block prepared for all its elements
 
     def __getstate__(self) -> dict[str, Any]:
         state = self.__dict__.copy()
         state["_cache"] = OrderedDict()  # blocks are cheap to redraw, costly to ship
         state["_bitgen"] = state["_gen"] = None
+        state["_prepared"] = {}
         return state
 
     def __repr__(self) -> str:
@@ -742,9 +744,13 @@ class Sampler:
         out = np.empty((_count(count, "count", 0), len(table)))
         out[:] = table.values  # fixed elements: a broadcast, no generator
         randoms = table.random_elements.tolist()
-        if count and randoms and len(randoms) <= self._max_cached:
-            # The generator states of every element's first block, derived at once.
-            self._prepare(kind, randoms, (_count(first, "first", 1) - 1) // BLOCK)
+        b = (_count(first, "first", 1) - 1) // BLOCK
+        if count and randoms and len(randoms) <= self._max_cached and \
+                self._prepared.get(kind) != b:
+            # The generator states of every element's block, derived at once (once per block:
+            # a run asks for a few firings at a time; an entry evicted since is redone alone).
+            self._prepare(kind, randoms, b)
+            self._prepared[kind] = b
         for e in randoms:
             out[:, e] = self._draws(kind, table, e, first, count)
         return out
