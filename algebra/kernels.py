@@ -116,15 +116,9 @@ def _evaluate(source, weight, tokens, policy, eta, bias, scale, is_root, lw, lm,
             u = link[u, 0]
         rest = top  # stack[:rest] is unwound below, after the circuit if one was closed
         if link[u, 1] == s:  # a new circuit: stack[j:top], each entry's predecessor after it
-            j = top - 1
-            while stack[j] != u:
-                j -= 1
+            j, jr = _closed_circuit(stack, top, u)
             rest = j
             size = top - j
-            jr = j
-            for i in range(j + 1, top):
-                if stack[i] < stack[jr]:
-                    jr = i
             r = stack[jr]
             is_root[r] = True
             # The ratio: the root's own link, then the others from the root's predecessor on
@@ -167,6 +161,20 @@ def _evaluate(source, weight, tokens, policy, eta, bias, scale, is_root, lw, lm,
         if not np.isfinite(b):
             return STATUS_OVERFLOW
     return STATUS_OK
+
+
+@_jit
+def _closed_circuit(stack, top, u):  # type: ignore[no-untyped-def]
+    """A walk ``stack[:top]`` that reached ``u`` again closed the circuit ``stack[j:top]``:
+    ``j`` and the position ``jr`` of its smallest node (the circuit's root)."""
+    j = top - 1
+    while stack[j] != u:
+        j -= 1
+    jr = j
+    for i in range(j + 1, top):
+        if stack[i] < stack[jr]:
+            jr = i
+    return j, jr
 
 
 @_jit
@@ -394,14 +402,8 @@ def path_sums(pred, link):  # type: ignore[no-untyped-def]
             u = pred[u]
         rest = top
         if mark[u] == s:  # a new circuit, stack[j:top]
-            j = top - 1
-            while stack[j] != u:
-                j -= 1
+            j, jr = _closed_circuit(stack, top, u)
             rest = j
-            jr = j
-            for i in range(j + 1, top):
-                if stack[i] < stack[jr]:
-                    jr = i
             r = stack[jr]
             is_root[r] = True
             mark[r] = n
@@ -426,6 +428,6 @@ def disable_cache() -> None:
     """Compile in memory from now on (the cache location turned out not to be writable)."""
     global CACHED
     CACHED = False
-    for fn in (_exceeds, _evaluate, _settle, _improve_eta, _improve_value,
+    for fn in (_exceeds, _evaluate, _closed_circuit, _settle, _improve_eta, _improve_value,
                _spread_largest, howard_iterate, policy_circuits, path_sums):
         fn._cache = NullCache()
