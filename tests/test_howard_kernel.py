@@ -175,7 +175,11 @@ from cyclecheck.algebra.spectral import howard
 if {only_cache_dir}:
     # numba looks beside the sources and in the user's cache folder too; keep it to
     # NUMBA_CACHE_DIR alone, so that no location is writable at all
-    caching.CacheImpl._locator_classes = [caching.UserProvidedCacheLocator]
+    # (numba 0.68 names them CacheImpl, UserProvidedCacheLocator; other versions with a _)
+    impl = getattr(caching, "CacheImpl", None) or getattr(caching, "_CacheImpl")
+    user = (getattr(caching, "UserProvidedCacheLocator", None)
+            or getattr(caching, "_UserProvidedCacheLocator"))
+    impl._locator_classes = [user]
 from cyclecheck.algebra import kernels
 n = 50
 g = EventGraph(np.arange(1.0, n + 1), np.arange(n), (np.arange(n) + 1) % n,
