@@ -23,7 +23,7 @@ from .critical import (
     slack,
 )
 from .eventgraph import EventGraph, strongly_connected_components
-from .exceptions import MaxPlusError
+from .exceptions import MaxPlusError, OutOfRange
 from .recursion import transient as measure_transient
 from .semiring import augmented_matrix
 from .spectral import HowardResult, howard
@@ -121,6 +121,11 @@ def analyze_graph(
     MaxPlusError
         If the certificate fails (a bug, never an input error).
     """
+    with np.errstate(over="ignore"):  # near the float limit: OutOfRange, or saturated scales
+        return _analyze(graph, charpoly, transient_firings)
+
+
+def _analyze(graph: EventGraph, charpoly: bool, transient_firings: int | None) -> GraphAnalysis:
     result = howard(graph)
     cert = certify(graph, result)
     if not cert.holds:
@@ -133,7 +138,11 @@ def analyze_graph(
     if transient_firings is None:
         transient_firings = int(np.clip(TRANSIENT_WORK_LIMIT // max(graph.n_places, 1), 20, 2000))
     horizon = max(transient_firings, 2 * period + 2)
-    if (graph.n_places > TRANSIENT_MAX_PLACES and not explicit) or (
+    # Firing times grow by at most the total weight per firing: beyond the largest double
+    # over the horizon, the recursion cannot be run (numbers near the float limit).
+    with np.errstate(over="ignore"):
+        reach = (horizon + 2) * (float(graph.weight.sum()) + result.max_cycle_time)
+    if (graph.n_places > TRANSIENT_MAX_PLACES and not explicit) or not np.isfinite(reach) or (
             horizon > TRANSIENT_MAX_HORIZON):
         k0, horizon = None, 0
     else:
@@ -164,5 +173,9 @@ def _charpoly(graph: EventGraph) -> tuple[CharPoly | None, str | None]:
             f"the one-step matrix has {size} states, more than {MAX_DENSE_SIZE} for the "
             "O(n^3) evaluation"
         )
-    matrix, _ = augmented_matrix(graph)
-    return essential_terms(matrix), None
+    try:
+        with np.errstate(over="ignore", invalid="ignore"):
+            matrix, _ = augmented_matrix(graph)
+        return essential_terms(matrix), None
+    except OutOfRange as exc:  # the cycle time was fine; χ needs sums beyond the double range
+        return None, f"not computed: {exc}"

@@ -58,7 +58,7 @@ from typing import Any
 import numpy as np
 from numpy.typing import ArrayLike
 
-from .exceptions import InvalidArray, MaxPlusError
+from .exceptions import InvalidArray, MaxPlusError, OutOfRange
 
 __all__ = [
     "EPS",
@@ -103,6 +103,13 @@ def _as_matrix(A: ArrayLike, name: str = "A") -> np.ndarray:
         raise InvalidArray(
             f"{name}[{i}, {j}] is {M[i, j]}: entries must be finite numbers or -inf (ε, no arc)"
         )
+    # The assignment problems work with sums of n entries and margins of about 2n times the
+    # largest one: all of them must be finite doubles.
+    vals = np.abs(M[np.isfinite(M)])
+    if vals.size and (2 * M.shape[0] + 2) * float(vals.max()) > np.finfo(np.float64).max:
+        raise OutOfRange(f"{name} has entries up to {float(vals.max()):.3g}: sums of "
+                         f"{2 * M.shape[0] + 2} of them exceed the range of floating point "
+                         "(about 1.8e308)")
     return M
 
 
@@ -157,6 +164,8 @@ def tropical_permanent(A: ArrayLike) -> float:
     ------
     InvalidArray
         If ``A`` is not square or holds NaN or ``+inf``.
+    OutOfRange
+        If sums of its entries would exceed the range of floating point.
 
     Notes
     -----
@@ -336,6 +345,8 @@ def essential_terms(A: ArrayLike) -> CharPoly:
     ------
     InvalidArray
         If ``A`` is not square or holds NaN or ``+inf``.
+    OutOfRange
+        If sums of its entries would exceed the range of floating point.
 
     Notes
     -----

@@ -32,7 +32,7 @@ from scipy.sparse import csr_matrix
 from scipy.sparse.csgraph import breadth_first_order, connected_components, dijkstra
 
 from .eventgraph import EventGraph, strongly_connected_components
-from .spectral import HowardResult, _policy_cycles, chain_sums
+from .spectral import KERNEL_MIN_PLACES, HowardResult, _kernels, _policy_cycles, chain_sums
 
 __all__ = [
     "SLACK_EXACT_LIMIT",
@@ -294,22 +294,29 @@ def _valid_policy(graph: EventGraph, result: HowardResult) -> np.ndarray | None:
     return policy
 
 
-def _path_scale(graph: EventGraph, result: HowardResult, policy: np.ndarray) -> np.ndarray:
-    """Sum of ``w + |eta| m`` along each transition's policy path, recomputed here: what the
-    rounding of its bias scales with (the claimed ``bias_scale`` is not trusted)."""
+def _path_scale(graph: EventGraph, result: HowardResult,
+                policy: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """One transition per circuit of the policy (a mask), and the sum of ``w + |eta| m`` along
+    each transition's policy path, recomputed here: what the rounding of its bias scales with
+    (the claimed ``bias_scale`` is not trusted). On large graphs the compiled walk of
+    :func:`cyclecheck.algebra.kernels.path_sums` sums them, else pointer doubling."""
     n = graph.n_transitions
     pred = graph.source[policy]
-    is_root = _policy_cycles(pred)
-    parent = np.where(is_root, np.arange(n), pred)
     link = graph.weight[policy] + np.abs(result.cycle_time) * graph.tokens[policy]
-    _, (total,) = chain_sums(parent, link)
-    return total + link  # a root's bias closes its circuit: count its own link too
+    kernels = _kernels() if graph.n_places >= KERNEL_MIN_PLACES else None
+    if kernels is not None:
+        is_root, total = kernels.path_sums(pred, link)
+    else:
+        is_root = _policy_cycles(pred)
+        _, (total,) = chain_sums(np.where(is_root, np.arange(n), pred), link)
+    return is_root, total + link  # a root's bias closes its circuit: count its own link
 
 
-def _policy_gap(graph: EventGraph, result: HowardResult) -> float:
-    """Relative ``|eta_u - eta_t|`` along the policy, or inf if the policy does not hold up."""
-    policy = _valid_policy(graph, result)
-    if policy is None:
+def _policy_gap(graph: EventGraph, result: HowardResult, policy: np.ndarray | None,
+                is_root: np.ndarray | None) -> float:
+    """Relative ``|eta_u - eta_t|`` along the (validated) policy, or inf if the policy does not
+    hold up."""
+    if policy is None or is_root is None:
         return math.inf
     reported: set[int] = set()
     for c in result.circuits:
@@ -318,7 +325,7 @@ def _policy_gap(graph: EventGraph, result: HowardResult) -> float:
             if policy[c.transitions[(i + 1) % k]] != p:
                 return math.inf
         reported.update(c.transitions)
-    roots = np.flatnonzero(_policy_cycles(graph.source[policy]))
+    roots = np.flatnonzero(is_root)
     if not set(roots.tolist()) <= reported:
         return math.inf
     eta = result.cycle_time
@@ -350,8 +357,8 @@ def certify(graph: EventGraph, result: HowardResult, tolerance: float = RTOL) ->
     monotone = _relative(eta_u - eta_t, np.abs(eta_u) + np.abs(eta_t))
     same = _same_cycle_time(graph, result)
     policy = _valid_policy(graph, result)
-    paths = (_path_scale(graph, result, policy) if policy is not None
-             else np.zeros(graph.n_transitions))
+    is_root, paths = (_path_scale(graph, result, policy) if policy is not None
+                      else (None, np.zeros(graph.n_transitions)))
     scale = (graph.weight + np.abs(eta_t) * graph.tokens + np.abs(v[graph.source])
              + np.abs(v[graph.target]) + paths[graph.source] + paths[graph.target])
     max_red = _relative(np.where(same, reduced_weights(graph, result), 0.0), scale)
@@ -361,4 +368,5 @@ def certify(graph: EventGraph, result: HowardResult, tolerance: float = RTOL) ->
     # The residual of transition t is judged against the largest term scale of its inputs.
     t_scale = np.maximum.reduceat(scale[order], starts[:-1])
     residual = _relative(np.abs(best - v), t_scale)
-    return Certificate(gap, _policy_gap(graph, result), monotone, max_red, residual, tolerance)
+    return Certificate(gap, _policy_gap(graph, result, policy, is_root), monotone, max_red,
+                       residual, tolerance)

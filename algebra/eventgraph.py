@@ -40,7 +40,6 @@ from .exceptions import GraphStructureError, NotLive, Unfed
 
 __all__ = [
     "MAX_TOKENS",
-    "MAX_VALUE",
     "EventGraph",
     "check_live",
     "find_token_free_circuit",
@@ -48,12 +47,6 @@ __all__ = [
     "strongly_connected_components",
 ]
 
-
-MAX_VALUE = 1e100
-"""Largest duration or hold accepted. Firing times are sums of up to ``n + m`` values per firing
-over up to 2^53 firings, and the statistics of an estimate square them: for a graph of 10^8
-elements, at 10^100 the sums stay below 10^125 and the squares below 10^250, far from the float
-limit 1.8·10^308, where larger values would overflow to infinity."""
 
 MAX_TOKENS = 2**53
 """Largest initial marking of a place: integers up to 2^53 are exact in a float64 (a CSV column,
@@ -80,8 +73,10 @@ class EventGraph:
     Raises
     ------
     GraphStructureError
-        If shapes disagree, an index is out of range, or a number is negative, NaN, infinite
-        or above its limit (:data:`MAX_VALUE`, :data:`MAX_TOKENS`).
+        If shapes disagree, an index is out of range, or a number is negative, NaN or infinite,
+        or a marking above :data:`MAX_TOKENS`. (Finite numbers up to the float limit are
+        accepted: the algebra raises :class:`~.exceptions.OutOfRange` where a sum would leave
+        the range of doubles; model files are held to a lower limit by the application.)
 
     Examples
     --------
@@ -123,7 +118,7 @@ class EventGraph:
             raise GraphStructureError("tokens must be >= 0")
         if m and self.tokens.max() > MAX_TOKENS:
             raise GraphStructureError(f"tokens must be at most 2^53 = {MAX_TOKENS}")
-        names = tuple(str(s) for s in self.names) if len(self.names) else ()
+        names = tuple(map(str, self.names)) if len(self.names) else ()
         if names and len(names) != n:
             raise GraphStructureError(f"names must have {n} entries, got {len(names)}")
         set_(self, "names", names)
@@ -145,7 +140,8 @@ class EventGraph:
     @cached_property
     def weight(self) -> np.ndarray:
         """Arc weight of each place in the cycle-ratio problem: ``hold + duration[target]``."""
-        w = self.hold + self.duration[self.target]
+        with np.errstate(over="ignore"):  # inf near the float limit: howard raises OutOfRange
+            w = self.hold + self.duration[self.target]
         w.setflags(write=False)
         return w
 
@@ -165,6 +161,18 @@ class EventGraph:
         return order, starts
 
     @cached_property
+    def components(self) -> tuple[int, np.ndarray]:
+        """Strongly connected components, computed once (see
+        :func:`strongly_connected_components`)."""
+        n = self.n_transitions
+        adj = csr_matrix(
+            (np.ones(self.n_places, dtype=np.int8), (self.source, self.target)), shape=(n, n)
+        )
+        count, labels = connected_components(adj, directed=True, connection="strong")
+        labels.setflags(write=False)
+        return int(count), labels
+
+    @cached_property
     def in_degree(self) -> np.ndarray:
         """Number of input places of each transition."""
         return np.bincount(self.target, minlength=self.n_transitions)
@@ -182,8 +190,6 @@ def _float_array(values: object, name: str) -> np.ndarray:
         raise GraphStructureError(f"{name} must be finite (no NaN or infinity)")
     if arr.size and arr.min() < 0:
         raise GraphStructureError(f"{name} must be >= 0")
-    if arr.size and arr.max() > MAX_VALUE:
-        raise GraphStructureError(f"{name} must be at most {MAX_VALUE:g}")
     arr.setflags(write=False)
     return arr
 
@@ -196,14 +202,9 @@ def strongly_connected_components(graph: EventGraph) -> tuple[int, np.ndarray]:
     count : int
         Number of components.
     labels : ndarray of int, shape (n,)
-        Component of each transition.
+        Component of each transition (read-only: computed once per graph).
     """
-    n = graph.n_transitions
-    adj = csr_matrix(
-        (np.ones(graph.n_places, dtype=np.int8), (graph.source, graph.target)), shape=(n, n)
-    )
-    count, labels = connected_components(adj, directed=True, connection="strong")
-    return int(count), labels
+    return graph.components
 
 
 def self_loop_servers(graph: EventGraph) -> np.ndarray:

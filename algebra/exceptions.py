@@ -17,6 +17,7 @@ __all__ = [
     "InvalidArray",
     "MaxPlusError",
     "NotLive",
+    "OutOfRange",
     "PositiveCircuit",
     "Unfed",
 ]
@@ -96,3 +97,12 @@ class PositiveCircuit(MaxPlusError):
             message
             or f"nodes {self.nodes} lie on a circuit of positive weight: the Kleene star diverges"
         )
+
+
+class OutOfRange(MaxPlusError):
+    """A number, or a sum the answer needs, lies beyond the range of floating point.
+
+    The weight of a circuit (its durations and holds added up) must stay below about 1.8e308,
+    the largest double; so must the biases, sums of ``w - eta m`` along paths. Rescale the
+    time unit (seconds to hours) when this is raised.
+    """

@@ -45,7 +45,7 @@ from scipy.sparse import csr_matrix
 from scipy.sparse.csgraph import connected_components
 
 from .eventgraph import EventGraph, find_token_free_circuit
-from .exceptions import InvalidArray, NotLive, PositiveCircuit
+from .exceptions import InvalidArray, NotLive, OutOfRange, PositiveCircuit
 
 __all__ = [
     "EPS",
@@ -511,4 +511,7 @@ def augmented_matrix(graph: EventGraph) -> tuple[np.ndarray, int]:
         A[:n, (j - 1) * n : j * n] = otimes(star, mats[j])
     for j in range(1, M):
         A[j * n : (j + 1) * n, (j - 1) * n : j * n] = identity(n)
+    if np.isposinf(A).any():  # path weights added up beyond the largest double
+        raise OutOfRange("the one-step matrix has path weights beyond the range of floating "
+                         "point (about 1.8e308)")
     return A, n

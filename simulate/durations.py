@@ -20,6 +20,15 @@ transition duration, kind 1 a place hold. Firings come in blocks of :data:`BLOCK
 draw of an element is therefore the same number whatever the order of the requests, the
 process or the machine. Changing :data:`BLOCK` or a distribution's sampling code changes the
 numbers.
+
+How the numbers are made, without changing them: building a SeedSequence and a PCG64 costs
+about 40 µs, as much as drawing a few thousand values. The sampler instead derives the PCG64
+states of many blocks at once (:func:`~cyclecheck.simulate.streams.pcg64_states`, the hashing
+of SeedSequence and the seeding of PCG64 written out, checked against numpy in the tests) and sets
+them on one reused generator (about 3 µs). A block is drawn only as far as firings are asked
+for and continued later from the saved generator state: every law draws its values one after
+the other from the stream, so a block drawn in pieces equals the block drawn at once (also
+checked in the tests).
 """
 
 from __future__ import annotations
@@ -34,7 +43,6 @@ from typing import Any
 
 import numpy as np
 
-from ..algebra.eventgraph import MAX_VALUE
 from .errors import ArgumentError, ModelError, did_you_mean, shown
 from .laws import (
     DISTRIBUTIONS,
@@ -50,12 +58,14 @@ from .laws import (
     Uniform,
     Weibull,
 )
+from .streams import BlockStream, pcg64_states, state_of
 
 __all__ = [  # the law classes are re-exported from .laws, where they live
     "BLOCK",
     "CACHE_BYTES",
     "DISTRIBUTIONS",
     "MAX_CV",
+    "MAX_VALUE",
     "Distribution",
     "Empirical",
     "Erlang",
@@ -70,13 +80,20 @@ __all__ = [  # the law classes are re-exported from .laws, where they live
     "Uniform",
     "Weibull",
     "parse_spec",
-]
+    "pcg64_states",
+]  # pcg64_states is re-exported from .streams
 
 BLOCK = 8192
 """Firings per block of draws. Setting up a block's generator (SeedSequence and PCG64, about
 35 µs) costs as much as 2000 exponential draws: at 8192 it adds about 4 ns per draw, where 1024
 added 35 ns and capped the vectorized recursion at about 13 million firings per second. A cached
 block costs 64 KiB per element."""
+
+MAX_VALUE = 1e100
+"""Largest duration or hold a model may hold (and largest mean of a law). Firing times are sums
+of up to ``n + m`` values per firing over up to 2^53 firings, and the statistics of an estimate
+square them: for a graph of 10^8 elements, at 10^100 the sums stay below 10^125 and the squares
+below 10^250, far from the float limit 1.8·10^308, where larger values would overflow."""
 
 MAX_CV = 100.0
 """Largest coefficient of variation of a law given by its mean and cv (gamma, log-normal)."""
@@ -428,11 +445,14 @@ class SpecTable:
 
 TRANSITION, PLACE = 0, 1  # the "kind" of the spawn key
 
-
 def _count(x: object, name: str, low: int) -> int:
     if isinstance(x, bool) or not isinstance(x, (int, np.integer)) or x < low:
         raise ArgumentError(f"{name} must be an integer >= {low}, got {x!r}")
     return int(x)
+
+
+#: Least number of draws made in a block at first (see ``Sampler._drawn``).
+_STEP = 1024
 
 
 class Sampler:
@@ -482,11 +502,17 @@ class Sampler:
                      else _count(seed, "seed", 0))
         self.replication = _count(replication, "replication", 0)
         self._max_cached = max(1, _count(cache_bytes, "cache_bytes", 0) // (BLOCK * 8))
-        self._cache: OrderedDict[tuple[int, int], tuple[int, np.ndarray]] = OrderedDict()
+        # (kind, element) -> _Block; least recently used first
+        self._cache: OrderedDict[tuple[int, int], BlockStream] = OrderedDict()
+        self._bitgen: np.random.PCG64 | None = None
+        self._gen: np.random.Generator | None = None
+        self._prepared: dict[int, int] = {}  # kind -> block prepared for all its elements
 
     def __getstate__(self) -> dict[str, Any]:
         state = self.__dict__.copy()
         state["_cache"] = OrderedDict()  # blocks are cheap to redraw, costly to ship
+        state["_bitgen"] = state["_gen"] = None
+        state["_prepared"] = {}
         return state
 
     def __repr__(self) -> str:
@@ -517,20 +543,63 @@ class Sampler:
         ``kind`` is 0 for a transition duration, 1 for a place hold; firing ``k`` is entry
         ``(k - 1) % BLOCK`` of block ``(k - 1) // BLOCK``.
         """
-        key = (kind, element)
-        hit = self._cache.get(key)
-        if hit is not None and hit[0] == b:
-            self._cache.move_to_end(key)
-            return hit[1]
         table = self.durations if kind == TRANSITION else self.holds
-        ss = np.random.SeedSequence(self.seed, spawn_key=(self.replication, kind, element, b))
-        arr = table[element].sample(np.random.Generator(np.random.PCG64(ss)), BLOCK)
+        if not table[element].is_random:
+            arr = np.full(BLOCK, table.values[element])
+        else:
+            arr = self._drawn(kind, table, element, b, BLOCK).copy()
         arr.setflags(write=False)
-        self._cache[key] = (b, arr)
-        self._cache.move_to_end(key)
-        if len(self._cache) > self._max_cached:
-            self._cache.popitem(last=False)
         return arr
+
+    def _prepare(self, kind: int, elements: Sequence[int], b: int) -> None:
+        """Cache entries for block ``b`` of ``elements``, their generator states derived at
+        once; entries already there are kept (and marked as recently used)."""
+        missing = []
+        for e in elements:
+            hit = self._cache.get((kind, e))
+            if hit is not None and hit.b == b:
+                self._cache.move_to_end((kind, e))
+            else:
+                missing.append(e)
+        if not missing:
+            return
+        big = max(self.replication, max(missing), b) >= 2**32
+        if big:  # keys beyond 32 bits: numpy's own SeedSequence (never in practice)
+            states = [state_of(np.random.PCG64(np.random.SeedSequence(
+                self.seed, spawn_key=(self.replication, kind, e, b)))) for e in missing]
+        else:
+            keys = np.empty((len(missing), 4), dtype=np.uint64)
+            keys[:, 0], keys[:, 1], keys[:, 2], keys[:, 3] = self.replication, kind, missing, b
+            states = pcg64_states(self.seed, keys)
+        for e, st in zip(missing, states, strict=True):
+            self._cache[(kind, e)] = BlockStream(b, st, BLOCK)
+            self._cache.move_to_end((kind, e))
+        while len(self._cache) > self._max_cached:
+            self._cache.popitem(last=False)
+
+    def _drawn(self, kind: int, table: SpecTable, e: int, b: int, upto: int) -> np.ndarray:
+        """Block ``b`` of element ``e`` drawn at least up to entry ``upto`` (a view of the
+        cached buffer, valid until the next request)."""
+        entry = self._cache.get((kind, e))
+        if entry is None or entry.b != b:
+            self._prepare(kind, [e], b)
+            entry = self._cache[(kind, e)]
+        else:
+            self._cache.move_to_end((kind, e))
+        if entry.filled < upto:
+            if self._gen is None:
+                self._bitgen = np.random.PCG64(0)
+                self._gen = np.random.Generator(self._bitgen)
+            assert self._bitgen is not None
+            self._bitgen.state = entry.state
+            # At least double what is drawn, so that a run asking firing after firing, or chunk
+            # after chunk, switches generator states a few times per block, not every time.
+            stop = min(BLOCK, max(upto, 2 * entry.filled, _STEP))
+            entry.values[entry.filled:stop] = table.laws[table.codes[e]].sample(
+                self._gen, stop - entry.filled)
+            entry.filled = stop
+            entry.state = self._bitgen.state
+        return entry.values
 
     def _draws(self, kind: int, table: SpecTable, e: int, first: int, count: int) -> np.ndarray:
         if not 0 <= e < len(table):
@@ -545,7 +614,7 @@ class Sampler:
         while pos < count:
             b, off = divmod(k0 + pos, BLOCK)
             n = min(BLOCK - off, count - pos)
-            out[pos : pos + n] = self.block(kind, e, b)[off : off + n]
+            out[pos : pos + n] = self._drawn(kind, table, e, b, off + n)[off : off + n]
             pos += n
         return out
 
@@ -560,7 +629,15 @@ class Sampler:
     def _all(self, kind: int, table: SpecTable, first: int, count: int) -> np.ndarray:
         out = np.empty((_count(count, "count", 0), len(table)))
         out[:] = table.values  # fixed elements: a broadcast, no generator
-        for e in table.random_elements.tolist():
+        randoms = table.random_elements.tolist()
+        b = (_count(first, "first", 1) - 1) // BLOCK
+        if count and randoms and len(randoms) <= self._max_cached and \
+                self._prepared.get(kind) != b:
+            # The generator states of every element's block, derived at once (once per block:
+            # a run asks for a few firings at a time; an entry evicted since is redone alone).
+            self._prepare(kind, randoms, b)
+            self._prepared[kind] = b
+        for e in randoms:
             out[:, e] = self._draws(kind, table, e, first, count)
         return out
 

@@ -38,8 +38,8 @@ from typing import Any
 
 import numpy as np
 
-from ..algebra.eventgraph import MAX_TOKENS, MAX_VALUE
-from .durations import SpecTable, parse_spec
+from ..algebra.eventgraph import MAX_TOKENS
+from .durations import MAX_VALUE, SpecTable, parse_spec
 from .errors import ModelError, did_you_mean
 from .laws import Distribution, Fixed
 from .modelfile import Model

@@ -48,7 +48,8 @@ columns (with the closest known name, case ignored), CSV lines with more or fewe
 the header, missing or duplicate ids (with where the id was first defined), places naming unknown
 transitions, numbers that are negative, NaN, infinite or (tokens) not integers, bad
 distributions, a model without transitions, a transition without an input place, and a circuit
-without a token. The CSV path is vectorized with pandas, so 10^6 places load in about a second.
+without a token. The CSV path is vectorized with pyarrow (see
+:mod:`cyclecheck.simulate.tables`): no Python loop runs per row.
 """
 
 from __future__ import annotations
@@ -70,7 +71,15 @@ from ..algebra.eventgraph import MAX_TOKENS, EventGraph, check_live
 from ..algebra.exceptions import NotLive, Unfed
 from .durations import Sampler, SpecTable, parse_spec
 from .errors import ArgumentError, ModelError, did_you_mean, shown
-from .tables import _csv_places, _csv_transitions, _read_file, _Rows, write_csv_model
+from .tables import (
+    _csv_places,
+    _csv_transitions,
+    _read_file,
+    _Rows,
+    cell,
+    numeric,
+    write_csv_model,
+)
 
 __all__ = ["Model", "load_model", "write_csv_model"]  # write_csv_model lives in .tables
 
@@ -291,41 +300,68 @@ def _circuit_text(ids: Sequence[str]) -> str:
     return " -> ".join(walk)
 
 
-def _lookup(ids: np.ndarray, wanted: np.ndarray, vectorized: bool) -> np.ndarray:
+def _lookup(ids: Any, wanted: Any) -> np.ndarray:
     """Index of each wanted id in ``ids`` (unique), -1 where unknown.
 
-    CSV cells keep trailing blanks (stripping 10^6 cells costs more than the rest of the
-    check), so the cells not found are stripped and looked up once more.
+    Numpy object arrays (TOML models) go through a dict; Arrow string arrays (CSV tables)
+    through one hashing pass in Arrow (``index_in``). CSV cells keep trailing blanks (stripping
+    10^6 cells costs more than the rest of the check), so the cells not found are stripped
+    and looked up once more.
     """
-    if not vectorized:
+    if isinstance(ids, np.ndarray):
         index = {t: i for i, t in enumerate(ids.tolist())}
         return np.array([index.get(t, -1) for t in wanted.tolist()], dtype=np.int64)
-    import pandas as pd
+    import pyarrow.compute as pc
 
-    table = pd.Index(ids)
-    found = table.get_indexer(wanted).astype(np.int64)
+    def index_in(values: Any) -> np.ndarray:
+        return numeric(pc.index_in(values, value_set=ids), fill=-1).astype(np.int64)
+
+    found = index_in(wanted)
     missing = np.flatnonzero(found < 0)
     if missing.size:
-        stripped = pd.Series(wanted[missing], dtype=object).str.strip()
-        found[missing] = table.get_indexer(stripped)
+        found[missing] = index_in(pc.utf8_trim_whitespace(wanted.take(missing)))
     return found
 
 
-def _first_duplicate(ids: np.ndarray, vectorized: bool) -> tuple[int, int] | None:
-    if vectorized:
-        import pandas as pd
+def _first_duplicate(ids: Any) -> tuple[int, int] | None:
+    if isinstance(ids, np.ndarray):
+        seen: dict[str, int] = {}
+        for j, t in enumerate(ids.tolist()):
+            if t in seen:
+                return seen[t], j
+            seen[t] = j
+        return None
+    import pyarrow.compute as pc
 
-        dup = pd.Index(ids).duplicated()
-        if not dup.any():
-            return None
-        j = int(np.argmax(dup))
-        return int(np.flatnonzero(ids == ids[j])[0]), j
-    seen: dict[str, int] = {}
-    for j, t in enumerate(ids.tolist()):
-        if t in seen:
-            return seen[t], j
-        seen[t] = j
-    return None
+    if len(pc.unique(ids)) == len(ids):
+        return None
+    import pandas as pd
+
+    values = ids.to_numpy(zero_copy_only=False)  # a duplicate to report: the slow way is fine
+    j = int(np.argmax(pd.Index(values).duplicated()))
+    return int(np.flatnonzero(values == values[j])[0]), j
+
+
+def _joined_text(parts: list[Any], arrow: bool) -> Any:
+    """Text columns of several parts one after the other: an Arrow array when ``arrow``."""
+    if not arrow:
+        return np.concatenate(parts) if parts else np.zeros(0, dtype=object)
+    import pyarrow as pa
+
+    arrays = [p if isinstance(p, pa.Array) else pa.array(p.tolist(), type=pa.string())
+              for p in parts]
+    return pa.concat_arrays(arrays) if arrays else pa.array([], type=pa.string())
+
+
+def _strings(column: Any) -> tuple[str, ...]:
+    """A text column as a tuple of str (a column of empty labels without a loop)."""
+    if isinstance(column, np.ndarray):
+        return tuple(column.tolist())
+    import pyarrow.compute as pc
+
+    if len(column) == 0 or pc.max(pc.utf8_length(column)).as_py() == 0:
+        return ("",) * len(column)
+    return tuple(column.to_pylist())
 
 
 def load_model(path: str | os.PathLike[str]) -> Model:
@@ -376,33 +412,35 @@ def load_model(path: str | os.PathLike[str]) -> Model:
     if field["places_csv"]:
         prows.append(_csv_places(path.parent / field["places_csv"], path,
                                  first=sum(len(r.ids) for r in prows)))
-    vectorized = any(r.line is not None for r in trows + prows)  # pandas is loaded anyway
+    arrow = any(r.line is not None for r in trows + prows)  # pyarrow is loaded anyway
 
     def joined(name: str, parts: list[_Rows], dtype: Any = object) -> np.ndarray:
         arrays = [getattr(r, name) for r in parts]
         return np.concatenate(arrays) if arrays else np.zeros(0, dtype=dtype)
 
-    ids = joined("ids", trows)
-    if ids.size == 0:
+    ids = _joined_text([r.ids for r in trows], arrow)
+    if len(ids) == 0:
         raise error("the model has no transitions: add [[transitions]] entries or name a "
                     "transitions_csv in [model]")
-    dup = _first_duplicate(ids, vectorized)
+    dup = _first_duplicate(ids)
     if dup is not None:
         (rows_a, a), (rows_b, b) = _part(trows, dup[0]), _part(trows, dup[1])
         where = "the file" if rows_a.file == rows_b.file else str(rows_a.file)
         again = f", again {rows_b.position(b)}" if rows_b.line is None else ""
-        raise _locate(trows, dup[1], f'duplicate transition id "{ids[dup[1]]}": first defined '
-                                     f"{rows_a.position(a)} of {where}{again}")
+        raise _locate(trows, dup[1], f'duplicate transition id "{cell(ids, dup[1])}": first '
+                                     f"defined {rows_a.position(a)} of {where}{again}")
     ends = []
     for key, name in (("from", "ids"), ("to", "dst")):
-        wanted = joined(name, prows)
-        found = _lookup(ids, wanted, vectorized)
+        wanted = _joined_text([getattr(r, name) for r in prows], arrow)
+        found = _lookup(ids, wanted)
         unknown = np.flatnonzero(found < 0)
         if unknown.size:
             p = int(unknown[0])
-            hint = did_you_mean(wanted[p], ids.tolist()) if ids.size <= _SUGGEST_LIMIT else ""
+            names = ids.tolist() if isinstance(ids, np.ndarray) else ids.to_pylist()
+            hint = did_you_mean(cell(wanted, p), names) if len(ids) <= _SUGGEST_LIMIT else ""
             more = f" ({unknown.size - 1} more places like this)" if unknown.size > 1 else ""
-            raise _locate(prows, p, f'{key} = "{wanted[p]}" is not a transition id{hint}{more}')
+            raise _locate(prows, p, f'{key} = "{cell(wanted, p)}" is not a transition id'
+                                    f"{hint}{more}")
         ends.append(found)
     files = [(path, toml_bytes)] + [(r.file, r.data) for r in trows + prows if r.line]
     model = Model(
@@ -410,12 +448,12 @@ def load_model(path: str | os.PathLike[str]) -> Model:
         time_unit=field["time_unit"],
         description=field["description"],
         path=path,
-        transition_ids=tuple(ids.tolist()),
-        transition_labels=tuple(joined("labels", trows).tolist()),
+        transition_ids=_strings(ids),
+        transition_labels=_strings(_joined_text([r.labels for r in trows], arrow)),
         source=_frozen(ends[0]),
         target=_frozen(ends[1]),
         tokens=_frozen(joined("tokens", prows, np.int64)),
-        place_labels=tuple(joined("labels", prows).tolist()),
+        place_labels=_strings(_joined_text([r.labels for r in prows], arrow)),
         durations=SpecTable.concat([r.specs for r in trows if r.specs is not None]),
         holds=SpecTable.concat([r.specs for r in prows if r.specs is not None]),
         sha256=_digest(files),

@@ -6,10 +6,11 @@ checks as a whole; the file reading that both kinds of source share lives here t
 
 CSV tables
 ----------
-``transitions_csv`` has the columns ``id`` (required), ``duration`` and ``label``; ``places_csv``
-has ``from``, ``to`` (required), ``tokens``, ``hold`` and ``label``. A missing optional column
-means the default for every row. A ``duration`` or ``hold`` cell is a number or a distribution in
-cell syntax, ``name(key=value, ...)`` with TOML values, quoted because it contains commas::
+``transitions_csv`` has the columns ``id`` and ``duration`` (``label`` optional); ``places_csv``
+has ``from``, ``to``, ``tokens`` and ``hold`` (``label`` optional). A missing column is an error
+naming it (a table without ``duration`` would silently give zero durations, one without
+``tokens`` a deadlock). A ``duration`` or ``hold`` cell is a number or a distribution in cell
+syntax, ``name(key=value, ...)`` with TOML values, quoted because it contains commas::
 
     from,to,tokens,hold
     fill,cap,0,1.5
@@ -22,6 +23,17 @@ surrounding blanks; an empty number cell is an error (write 0), an empty label i
 lines are skipped. Line numbers in messages count every line of the file from 1 (header
 included, and the lines inside a quoted cell too); places are also named by their index, the
 place number of the result documents (TOML places first, then the rows of ``places_csv``).
+
+Reading
+-------
+Tables are read by ``pyarrow.csv`` (multi-threaded, every column as text), numbers converted by
+one vectorized cast per column, ids kept as Arrow strings so that
+:func:`cyclecheck.simulate.modelfile.load_model` maps them to indices by one hashing pass
+(``pyarrow.compute.index_in``); no Python loop runs per row. Line numbers are counted only when
+a message needs one. A file that pyarrow would read otherwise than the rules above (a line of
+blanks, a quoted cell after blanks, the header below blank lines) or cannot read (a ragged line)
+goes through pandas instead, the reader these rules were written for, after a check of the field
+count of every line.
 
 The field count of each line comes from one vectorized pass over the bytes (commas and line
 ends outside quotes), which agrees with pandas' reading whenever every quote that opens a
@@ -45,13 +57,14 @@ from typing import TYPE_CHECKING, Any
 
 import numpy as np
 
-from ..algebra.eventgraph import MAX_TOKENS, MAX_VALUE
-from .durations import Distribution, SpecTable, parse_spec
+from ..algebra.eventgraph import MAX_TOKENS
+from .durations import MAX_VALUE, Distribution, SpecTable, parse_spec
 from .errors import ArgumentError, ModelError, did_you_mean, shown
 from .files import read_input
 
 if TYPE_CHECKING:
     import pandas as pd
+    import pyarrow as pa
 
 __all__ = ["write_csv_model"]
 
@@ -68,15 +81,23 @@ def _read_file(path: Path, what: str) -> tuple[bytes, str]:
 # --------------------------------------------------------------------------- rows of one source
 
 
+def cell(column: Any, i: int) -> str:
+    """Entry ``i`` of a text column, a numpy object array or an Arrow string array."""
+    value = column[i]
+    return value.as_py() if hasattr(value, "as_py") else value
+
+
+
 @dataclass
 class _Rows:
     """Transitions or places read from one source: the TOML entries or one CSV table."""
 
     file: Path
-    ids: np.ndarray  # transitions: their ids; places: the "from" ids
-    dst: np.ndarray | None = None  # places: the "to" ids (None for transitions)
+    # Text columns are numpy object arrays (TOML) or Arrow string arrays (CSV): see cell().
+    ids: Any  # transitions: their ids; places: the "from" ids
+    dst: Any = None  # places: the "to" ids (None for transitions)
     tokens: np.ndarray | None = None
-    labels: np.ndarray | None = None
+    labels: Any = None
     specs: SpecTable | None = None
     line: Callable[[int], int] | None = None  # CSV: row -> line number
     data: bytes = b""  # CSV: the file's bytes, for the digest
@@ -90,9 +111,9 @@ class _Rows:
         the third ``[[places]]`` entry, ``line 12 (place fill -> cap, index 10)`` for a row.
         """
         if self.dst is None:
-            what = f'transition "{self.ids[i]}"'
+            what = f'transition "{cell(self.ids, i)}"'
         else:
-            what = f"{self.ids[i]} -> {self.dst[i]}, index {self.first + i}"
+            what = f"{cell(self.ids, i)} -> {cell(self.dst, i)}, index {self.first + i}"
         if self.line is not None:
             return f"line {self.line(i)} ({what if self.dst is None else 'place ' + what})"
         return what if self.dst is None else f"place {i + 1} ({what})"
@@ -258,14 +279,9 @@ def _csv_lines(text: str) -> Callable[[int], int]:
     return line
 
 
-def _read_csv(path: Path, required: tuple[str, ...], optional: tuple[str, ...],
-              key: str, toml: Path) -> tuple[pd.DataFrame, Callable[[int], int], bytes]:
-    import pandas as pd
-
-    if not path.exists():
-        raise ModelError(f"no such file (named by {key} in {toml})", file=path)
-    data, text = _read_file(path, "CSV table")
-    allowed = required + optional
+def _header(text: str, allowed: tuple[str, ...], required: tuple[str, ...],
+            path: Path) -> tuple[list[str], int]:
+    """The column names (checked) and the offset in ``text`` where the header line starts."""
     start = re.search(r"\S", text)
     line = len(re.findall(r"\r\n|\r|\n", text[: start.start()])) + 1 if start else 1
 
@@ -277,7 +293,6 @@ def _read_csv(path: Path, required: tuple[str, ...], optional: tuple[str, ...],
         header = [c.strip() for c in next(csv.reader([first]))] if first else []
     except csv.Error as exc:
         raise bad_header(f"cannot read the header: {exc}") from None
-
     if not header:
         raise bad_header(f"the first line must name the columns, e.g. {','.join(allowed)}")
     for name in header:
@@ -288,11 +303,80 @@ def _read_csv(path: Path, required: tuple[str, ...], optional: tuple[str, ...],
             raise bad_header(f'column "{name}" appears twice')
     for name in required:
         if name not in header:
-            raise bad_header(f'missing column "{name}" (columns: {", ".join(allowed)})')
+            raise bad_header(f'missing column "{name}" (columns: {", ".join(allowed)}); '
+                             f"every table needs {', '.join(required)}")
+    return header, start.start() if start else 0
+
+
+#: A quoted cell after blanks: pandas (skipinitialspace) reads it as quoted, pyarrow would not.
+_QUOTE_AFTER_BLANKS = re.compile(rb'(?:^|[,\r\n])[ \t]+"')
+
+
+def _arrow_table(data: bytes, header: list[str], start: int) -> pa.Table | None:
+    """Every column as text through ``pyarrow.csv``, or None where pyarrow cannot read the
+    file, or would read it otherwise than pandas does (then pandas reads it)."""
+    import pyarrow as pa
+    import pyarrow.csv as pacsv
+
+    quoted = b'"' in data
+    if start != 0 or (quoted and _QUOTE_AFTER_BLANKS.search(data)):
+        return None
+    text = pa.string()
+    try:
+        return pacsv.read_csv(
+            pa.py_buffer(data),
+            read_options=pacsv.ReadOptions(column_names=header, skip_rows=1),
+            parse_options=pacsv.ParseOptions(newlines_in_values=quoted),
+            convert_options=pacsv.ConvertOptions(
+                column_types={c: text for c in header}, null_values=[],
+                strings_can_be_null=False, quoted_strings_can_be_null=False),
+        )
+    except (pa.ArrowInvalid, pa.ArrowNotImplementedError):
+        return None
+
+
+def _lines(data: bytes, text: str, rows: int) -> Callable[[int], int]:
+    """Row index -> line number, counted on first use (only messages need it)."""
+    found: list[Callable[[int], int]] = []
+
+    def line(row: int) -> int:
+        if not found:
+            layout = _scan(data) or _slow_scan(data, text)
+            if layout is None or len(layout.counts) != rows + 1:
+                layout = _slow_scan(data, text)
+            if layout is None or len(layout.counts) != rows + 1:
+                found.append(_csv_lines(text))
+            else:
+                found.append(lambda r, lay=layout: lay.line(r + 1))
+        return found[0](row)
+
+    return line
+
+
+def _read_csv(path: Path, required: tuple[str, ...], optional: tuple[str, ...],
+              key: str, toml: Path) -> tuple[dict[str, Any], int, Callable[[int], int], bytes]:
+    """The columns of a table as Arrow string arrays (whichever reader split the lines), the
+    number of rows, row -> line number, and the file's bytes."""
+    if not path.exists():
+        raise ModelError(f"no such file (named by {key} in {toml})", file=path)
+    data, text = _read_file(path, "CSV table")
+    header, start = _header(text, required + optional, required, path)
+    table = _arrow_table(data, header, start)
+    if table is not None:
+        columns = {c: table.column(c).combine_chunks() for c in header}
+        return columns, table.num_rows, _lines(data, text, table.num_rows), data
+    df, line = _pandas_table(data, text, header, path)
+    return {c: _arrow(df[c]) for c in header}, len(df), line, data
+
+
+def _pandas_table(data: bytes, text: str, header: list[str],
+                  path: Path) -> tuple[pd.DataFrame, Callable[[int], int]]:
+    """The table read by pandas, after the field count of every line is checked."""
+    import pandas as pd
+
     layout = _scan(data) or _slow_scan(data, text)
     if layout is not None:
         _check_fields(layout, header, path)
-    strings = {c: str for c in ("id", "from", "to", "label") if c in header}
     try:
         # pandas infers types chunk by chunk and warns when chunks disagree (numbers above, a
         # distribution or a bad cell further down); the checks below read such a column as
@@ -300,7 +384,7 @@ def _read_csv(path: Path, required: tuple[str, ...], optional: tuple[str, ...],
         # too but costs a quarter of a second per 10^6 rows of mixed cells.
         with warnings.catch_warnings():
             warnings.simplefilter("ignore", pd.errors.DtypeWarning)
-            df = pd.read_csv(io.BytesIO(data), dtype=strings, keep_default_na=False,
+            df = pd.read_csv(io.BytesIO(data), dtype=str, keep_default_na=False,
                              na_filter=False, skipinitialspace=True, encoding="utf-8-sig")
     except (pd.errors.ParserError, ValueError) as exc:
         msg = str(exc).strip().removeprefix("Error tokenizing data. C error: ")
@@ -312,20 +396,36 @@ def _read_csv(path: Path, required: tuple[str, ...], optional: tuple[str, ...],
     if layout is not None and len(layout.counts) != len(df) + 1:
         layout = _slow_scan(data, text)  # the fast count disagrees with pandas: count exactly
     if layout is None or len(layout.counts) != len(df) + 1:
-        return df, _csv_lines(text), data
-    return df, lambda row, lay=layout: lay.line(row + 1), data
+        return df, _csv_lines(text)
+    return df, lambda row, lay=layout: lay.line(row + 1)
 
 
-def _column(df: pd.DataFrame, name: str) -> np.ndarray:
-    """A text column as an object array ("" where the column or the cell is missing)."""
-    if name not in df:
-        return np.full(len(df), "", dtype=object)
-    return df[name].fillna("").astype(str).to_numpy(dtype=object)
+def _arrow(column: pd.Series) -> pa.Array:
+    """A column pandas read as text, as an Arrow string array."""
+    import pyarrow as pa
+
+    return pa.array(column.astype(str).to_numpy(dtype=object), type=pa.string())
 
 
-def _require(values: np.ndarray, name: str, fail: Any) -> None:
-    empty = np.flatnonzero(values == "")
-    if empty.size:
+def _text_column(columns: dict[str, Any], name: str, rows: int, strip: bool) -> Any:
+    """A text column as an Arrow string array: "" where the column is missing; leading blanks
+    dropped as pandas' reader does (all blanks when ``strip``)."""
+    import pyarrow as pa
+    import pyarrow.compute as pc
+
+    if name not in columns:  # empty strings from buffers (pa.scalar would import pandas)
+        offsets = pa.py_buffer(np.zeros(rows + 1, dtype=np.int32))
+        return pa.Array.from_buffers(pa.string(), rows, [None, offsets, pa.py_buffer(b"")])
+    col = columns[name]
+    return pc.utf8_trim(col, " \t") if strip else pc.utf8_ltrim(col, " ")
+
+
+def _require(values: Any, name: str, fail: Any) -> None:
+    import pyarrow.compute as pc
+
+    lengths = pc.utf8_length(values)
+    if len(values) and pc.min(lengths).as_py() == 0:
+        empty = np.flatnonzero(lengths.to_numpy(zero_copy_only=False) == 0)
         fail(int(empty[0]), f"{name} is empty", empty.size)
 
 
@@ -338,17 +438,52 @@ def _finite_nonneg(values: np.ndarray, name: str, shown: Any, fail: Any) -> None
         fail(r, f"{name} must be {rule}, got {shown(r)}", bad.size)
 
 
-def _spec_column(df: pd.DataFrame, name: str, fail: Any) -> SpecTable:
-    import pandas as pd
+def _cast(column: Any, dtype: Any) -> np.ndarray | None:
+    """An Arrow text column converted by one vectorized cast, or None where a cell is not
+    such a number (then the column is read as text, cell by cell, for the message)."""
+    import pyarrow as pa
+    import pyarrow.compute as pc
 
-    if name not in df:
-        return SpecTable(np.zeros(len(df)))
-    col = df[name]
-    if col.dtype.kind in "iuf":  # plain numbers only: the fast path
-        values = col.to_numpy(dtype=np.float64)
+    options = pc.CastOptions.safe(dtype)
+    for attempt in (column, None):
+        try:
+            col = attempt if attempt is not None else pc.utf8_trim(column, " \t")
+            return numeric(pc.call_function("cast", [col], options))
+        except (pa.ArrowInvalid, pa.ArrowNotImplementedError):
+            continue
+    return None
+
+
+def numeric(array: Any, fill: float | None = None) -> np.ndarray:
+    """A numeric Arrow array as a numpy array (a copy), nulls replaced by ``fill``.
+
+    Read from its buffers: ``to_numpy``, ``np.asarray``, ``pa.scalar`` or ``fill_null`` import
+    pandas on their way (about 0.3 s of start-up), which a model without laws never needs.
+    """
+    dtype = np.dtype(array.type.to_pandas_dtype())
+    validity, data = array.buffers()[:2]
+    out = np.frombuffer(data, dtype=dtype, count=len(array),
+                        offset=array.offset * dtype.itemsize).copy()
+    if array.null_count:
+        if fill is None:
+            raise ValueError("the array has nulls and no fill value was given")
+        bits = np.unpackbits(np.frombuffer(validity, dtype=np.uint8), bitorder="little")
+        out[~bits[array.offset:array.offset + len(array)].astype(bool)] = fill
+    return out
+
+
+def _spec_column(columns: dict[str, Any], name: str, fail: Any) -> SpecTable:
+    import pyarrow as pa
+
+    col = columns[name]
+    values = _cast(col, pa.float64())
+    # The fast path: numbers only. NaN stays text: "nan" in a cell is reported as written.
+    if values is not None and not np.isnan(values).any():
         _finite_nonneg(values, name, lambda r: shown(float(values[r])), fail)
         return SpecTable(values + 0.0)
-    text = col.astype(str).str.strip()
+    import pandas as pd  # cell by cell: laws, blanks, or a message to write
+
+    text = pd.Series(col.to_numpy(zero_copy_only=False), dtype=object).str.strip()
     values = pd.to_numeric(text, errors="coerce").to_numpy(dtype=np.float64)
     laws = np.isnan(values) & text.str.fullmatch(r"[A-Za-z_]\w*\s*\(.*\)").to_numpy(bool)
     empty = np.flatnonzero(~laws & (text == "").to_numpy(bool))
@@ -362,37 +497,48 @@ def _spec_column(df: pd.DataFrame, name: str, fail: Any) -> SpecTable:
                 f"got {shown(text.iloc[r])}", junk.size)
     values = np.where(laws, 0.0, values)
     _finite_nonneg(values, name, lambda r: shown(text.iloc[r]), fail)
-    codes = np.full(len(df), -1, dtype=np.int32)
+    codes = np.full(len(col), -1, dtype=np.int32)
     distinct: list[Distribution] = []
     rows = np.flatnonzero(laws)
     if rows.size:  # parse each distinct cell text once
         found, uniques = pd.factorize(text.iloc[rows])
-        for u, cell in enumerate(uniques):
+        for u, law_text in enumerate(uniques):
             try:
-                distinct.append(parse_spec(cell))
+                distinct.append(parse_spec(law_text))
             except ModelError as exc:
                 fail(int(rows[np.argmax(found == u)]), f"{name}: {exc.rule}", 1)
         codes[rows] = found
     return SpecTable(values + 0.0, codes, distinct)
 
 
-def _token_column(df: pd.DataFrame, fail: Any) -> np.ndarray:
-    import pandas as pd
+def _token_column(columns: dict[str, Any], fail: Any) -> np.ndarray:
+    import pyarrow as pa
 
-    if "tokens" not in df:
-        return np.zeros(len(df), dtype=np.int64)
-    col = df["tokens"]
-    text = None if col.dtype.kind in "iuf" else col.astype(str).str.strip()
-    values = (col.to_numpy(dtype=np.float64) if text is None
-              else pd.to_numeric(text, errors="coerce").to_numpy(dtype=np.float64))
+    col = columns["tokens"]
+    text = None
+    ints = _cast(col, pa.int64())
+    if ints is not None and (ints.size == 0 or (0 <= ints.min() and ints.max() <= MAX_TOKENS)):
+        return ints
+    # Numbers are shown as numbers (1.0 is accepted, -1 or 0.5 are not), anything else as text.
+    values = ints.astype(np.float64) if ints is not None else _cast(col, pa.float64())
+    if values is None:
+        import pandas as pd  # text: read cell by cell for the message
+
+        text = pd.Series(col.to_numpy(zero_copy_only=False), dtype=object).str.strip()
+        values = pd.to_numeric(text, errors="coerce").to_numpy(dtype=np.float64)
     with np.errstate(invalid="ignore"):
         bad = np.flatnonzero(~np.isfinite(values) | (values < 0) | (values > MAX_TOKENS)
                              | (values != np.floor(values)))
     if bad.size:
         r = int(bad[0])
-        got = shown(text.iloc[r]) if text is not None else shown(col.iloc[r].item())
+        got = shown(text.iloc[r]) if text is not None else shown(_number(values[r]))
         fail(r, f"tokens must be an integer >= 0, got {got}", bad.size)
     return values.astype(np.int64)
+
+
+def _number(x: float) -> int | float:
+    """A number of a numeric column as the message shows it: integers without ``.0``."""
+    return int(x) if np.isfinite(x) and x == np.floor(x) and abs(x) < 2**63 else float(x)
 
 
 def _failer(rows: _Rows) -> Callable[[int, str, int], None]:
@@ -404,25 +550,29 @@ def _failer(rows: _Rows) -> Callable[[int, str, int], None]:
 
 
 def _csv_transitions(path: Path, toml: Path, first: int = 0) -> _Rows:
-    df, line, data = _read_csv(path, ("id",), ("duration", "label"), "transitions_csv", toml)
-    ids = df["id"].fillna("").astype(str).str.strip().to_numpy(dtype=object)
-    rows = _Rows(path, ids, labels=_column(df, "label"), line=line, data=data, first=first)
+    columns, count, line, data = _read_csv(path, ("id", "duration"), ("label",),
+                                           "transitions_csv", toml)
+    ids = _text_column(columns, "id", count, strip=True)
+    rows = _Rows(path, ids, labels=_text_column(columns, "label", count, strip=False),
+                 line=line, data=data, first=first)
     fail = _failer(rows)
     _require(ids, "id", fail)
-    rows.specs = _spec_column(df, "duration", fail)
+    rows.specs = _spec_column(columns, "duration", fail)
     return rows
 
 
 def _csv_places(path: Path, toml: Path, first: int = 0) -> _Rows:
-    df, line, data = _read_csv(path, ("from", "to"), ("tokens", "hold", "label"), "places_csv",
-                               toml)
-    rows = _Rows(path, _column(df, "from"), _column(df, "to"), labels=_column(df, "label"),
+    columns, count, line, data = _read_csv(path, ("from", "to", "tokens", "hold"), ("label",),
+                                           "places_csv", toml)
+    rows = _Rows(path, _text_column(columns, "from", count, strip=False),
+                 _text_column(columns, "to", count, strip=False),
+                 labels=_text_column(columns, "label", count, strip=False),
                  line=line, data=data, first=first)
     fail = _failer(rows)
     _require(rows.ids, "from", fail)
     _require(rows.dst, "to", fail)
-    rows.tokens = _token_column(df, fail)
-    rows.specs = _spec_column(df, "hold", fail)
+    rows.tokens = _token_column(columns, fail)
+    rows.specs = _spec_column(columns, "hold", fail)
     return rows
 
 

@@ -21,6 +21,7 @@ from cyclecheck.simulate.durations import (
     Sampler,
     SpecTable,
     parse_spec,
+    pcg64_states,
 )
 from cyclecheck.simulate.errors import ModelError, did_you_mean
 from hypothesis import given, settings
@@ -411,3 +412,59 @@ def test_spec_table():
     assert coded == SpecTable.from_specs([2.0, SPECS_T[0], 0.0])
     with pytest.raises(ValueError):
         SpecTable(np.array([-1.0]))
+
+
+# ----------------------------------------------------------------------------- how draws are made
+
+
+@settings(max_examples=60, deadline=None)
+@given(seed=st.integers(0, 2**80), keys=st.lists(
+    st.tuples(*[st.integers(0, 2**32 - 1)] * 4), min_size=1, max_size=20))
+def test_pcg64_states_equal_numpy(seed, keys):
+    """The vectorized derivation gives the state of ``PCG64(SeedSequence(seed, spawn_key))``
+    exactly, as numpy computes it (NumPy documentation, "SeedSequence" and "PCG64": the
+    reference implementation of the spawn-key contract)."""
+    got = pcg64_states(seed, np.array(keys, dtype=np.uint64))
+    for key, (state, inc) in zip(keys, got, strict=True):
+        ref = np.random.PCG64(np.random.SeedSequence(seed, spawn_key=key)).state["state"]
+        assert (state, inc) == (ref["state"], ref["inc"])
+
+
+@pytest.mark.parametrize("spec", [c[0] for c in CASES] + [{"dist": "empirical",
+                                                            "values": EMPIRICAL}],
+                         ids=lambda x: str(x)[:40])
+@pytest.mark.parametrize("cut", [1, 37, 1000])
+def test_blocks_drawn_in_pieces_equal_blocks_drawn_at_once(spec, cut):
+    """Every law draws its values one after the other from the stream: drawing ``cut`` values,
+    saving the generator state, restoring it and drawing the rest gives the numbers of one call
+    (what lets the sampler draw a block only as far as it is asked for)."""
+    law = parse_spec(spec)
+    whole = law.sample(np.random.Generator(np.random.PCG64(123)), 3000)
+    bitgen = np.random.PCG64(123)
+    head = law.sample(np.random.Generator(bitgen), cut)
+    saved = bitgen.state
+    other = np.random.PCG64(999)
+    other.state = saved
+    tail = law.sample(np.random.Generator(other), 3000 - cut)
+    assert np.array_equal(np.concatenate([head, tail]), whole)
+
+
+def test_no_seed_sequence_on_the_hot_path(monkeypatch):
+    """Drawing the blocks of many elements builds no SeedSequence and no new PCG64 per block:
+    the states are derived in one pass and set on one generator. The numbers are those of the
+    contract (the slow twin above)."""
+    specs = [{"dist": "exponential", "mean": 1.0 + e} for e in range(50)]
+    expected = [_contract_draw(specs, 5, 2, 0, e, k) for e in (0, 49) for k in (1, 700, BLOCK + 3)]
+    built = []
+    real = np.random.SeedSequence
+
+    def counting(*args, **kwargs):
+        built.append(args)
+        return real(*args, **kwargs)
+
+    monkeypatch.setattr(np.random, "SeedSequence", counting)
+    s = Sampler(specs, [], 5, 2)
+    table = np.vstack([s.duration_block(1, 1000), s.duration_block(1001, BLOCK)])
+    got = [table[k - 1, e] for e in (0, 49) for k in (1, 700, BLOCK + 3)]
+    assert got == expected
+    assert built == []

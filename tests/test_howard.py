@@ -30,12 +30,14 @@ def _ring_with_servers(n: int) -> tuple[EventGraph, float]:
     return EventGraph(duration, source, target, tokens, hold), exact
 
 
+@pytest.mark.parametrize("kernel", ["numpy", "numba"])
 @pytest.mark.parametrize("n", [20, 1000, 100_000])
-def test_long_ring_converges_in_few_iterations(n: int) -> None:
+def test_long_ring_converges_in_few_iterations(n: int, kernel: str) -> None:
     """The ring's ratio reaches every transition in one step, not one transition per step
-    (without spreading the largest ratio: 2387 iterations and 25 s for 10^5 transitions)."""
+    (without spreading the largest ratio: 2387 iterations and 25 s for 10^5 transitions), in
+    both implementations."""
     graph, exact = _ring_with_servers(n)
-    result = howard(graph)
+    result = howard(graph, kernel=kernel)
     assert result.cycle_time == pytest.approx(exact, rel=1e-12)
     assert certify(graph, result).holds
     assert result.iterations <= 60

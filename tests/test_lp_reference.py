@@ -93,9 +93,9 @@ def ring_with_chords(n: int, chords: int, seed: int) -> EventGraph:
     return g
 
 
-def check_against_lp(graph: EventGraph) -> None:
+def check_against_lp(graph: EventGraph, kernel: str = "auto") -> None:
     """Howard's λ = LP optimum; the LP's dual flow lives on Howard's critical places."""
-    r = howard(graph)
+    r = howard(graph, kernel=kernel)
     res = lp_cycle_ratio(graph)
     lam = float(res.x[-1])
     assert np.ptp(r.cycle_time) <= 1e-9 * r.max_cycle_time  # strongly connected: one λ
@@ -110,22 +110,24 @@ def check_against_lp(graph: EventGraph) -> None:
     assert np.all(crit[support]), np.flatnonzero(support & ~crit)
 
 
+@pytest.mark.parametrize("kernel", ["numpy", "numba"])
 @pytest.mark.parametrize("seed", range(3))
 @pytest.mark.parametrize(("n", "chords"), [(200, 400), (500, 1500), (800, 800)])
-def test_howard_matches_lp_on_ring_with_chords(n, chords, seed):
-    """Cycle time = LP optimum on random strongly connected graphs of hundreds of transitions.
+def test_howard_matches_lp_on_ring_with_chords(n, chords, seed, kernel):
+    """Cycle time = LP optimum on random strongly connected graphs of hundreds of transitions,
+    for both implementations of Howard (numpy and the compiled kernel).
 
     Sources: Baccelli et al. (1992), §2.4 and ch. 3; Dasdan (2004), §2 (cycle ratio as an LP);
     LP duality for the flow on critical places. Reference: scipy.optimize.linprog (HiGHS).
     """
-    check_against_lp(ring_with_chords(n, chords, seed))
+    check_against_lp(ring_with_chords(n, chords, seed), kernel)
 
 
 @pytest.mark.slow
 @pytest.mark.parametrize(("n", "chords"), [(2000, 6000), (5000, 10000)])
 def test_howard_matches_lp_on_large_ring_with_chords(n, chords):
-    """Same as above on thousands of transitions (slow). Sources as above."""
-    check_against_lp(ring_with_chords(n, chords, 0))
+    """Same as above on thousands of transitions (slow), compiled kernel. Sources as above."""
+    check_against_lp(ring_with_chords(n, chords, 0), "numba")
 
 
 @settings(REFERENCE, max_examples=80)

@@ -130,12 +130,13 @@ def test_sha256_covers_every_file(tmp_path):
     """The digest is the sha256 of the files' own sha256 digests; a change in a CSV changes it."""
     toml = write(tmp_path, {"m.toml": '[model]\nname = "x"\ntransitions_csv = "t.csv"\n'
                                       'places_csv = "p.csv"\n',
-                            "t.csv": "id,duration\na,1\n", "p.csv": "from,to,tokens\na,a,1\n"})
+                            "t.csv": "id,duration\na,1\n",
+                            "p.csv": "from,to,tokens,hold\na,a,1,0\n"})
     m = load_model(toml)
     parts = [hashlib.sha256((tmp_path / f).read_bytes()) for f in ("m.toml", "t.csv", "p.csv")]
     assert m.sha256 == hashlib.sha256(b"".join(h.digest() for h in parts)).hexdigest()
     assert [d for _, d in m.sources] == [h.hexdigest() for h in parts]
-    (tmp_path / "p.csv").write_text("from,to,tokens\na,a,2\n")
+    (tmp_path / "p.csv").write_text("from,to,tokens,hold\na,a,2,0\n")
     assert load_model(toml).sha256 != m.sha256
 
 
@@ -346,6 +347,15 @@ BAD = [
     (tables(p="from,to,toekns\nfill,cap,0\ncap,fill,1\n"), "p.csv", "line 1",
      'unknown column "toekns"; did you mean "tokens"?'),
     (tables(p="from,tokens\nfill,0\n"), "p.csv", "line 1", 'missing column "to"'),
+    # the columns the README documents must be there: no silent zero durations or deadlock
+    (tables(t="id\nfill\ncap\n"), "t.csv", "line 1",
+     'missing column "duration" (columns: id, duration, label); every table needs id, '
+     "duration"),
+    (tables(p="from,to,hold\nfill,cap,0\ncap,fill,0\n"), "p.csv", "line 1",
+     'missing column "tokens" (columns: from, to, tokens, hold, label); every table needs '
+     "from, to, tokens, hold"),
+    (tables(p="from,to,tokens\nfill,cap,0\ncap,fill,1\n"), "p.csv", "line 1",
+     'missing column "hold"'),
     (tables(p="from,to,to\nfill,cap,cap\n"), "p.csv", "line 1", 'column "to" appears twice'),
     (tables(t=""), "t.csv", "line 1", "the first line must name the columns"),
     (tables(t="id,duration\nfill,1\ncap,-2\n"), "t.csv", 'line 3 (transition "cap")',
@@ -366,25 +376,25 @@ BAD = [
     (tables(t="id,duration\nfill,1\n,2\n"), "t.csv", 'line 3 (transition "")', "id is empty"),
     (tables(t="id,duration\nfill,1\ncap,2\nfill,3\n"), "t.csv", 'line 4 (transition "fill")',
      'duplicate transition id "fill": first defined at line 2 of the file'),
-    (tables(p="from,to,tokens\nfill,cap,0\ncap,fill,-1\n"), "p.csv",
+    (tables(p="from,to,tokens,hold\nfill,cap,0,0\ncap,fill,-1,0\n"), "p.csv",
      "line 3 (place cap -> fill, index 1)", "tokens must be an integer >= 0, got -1"),
-    (tables(p="from,to,tokens\nfill,cap,0.5\ncap,fill,1\n"), "p.csv",
+    (tables(p="from,to,tokens,hold\nfill,cap,0.5,0\ncap,fill,1,0\n"), "p.csv",
      "line 2 (place fill -> cap, index 0)", "tokens must be an integer >= 0, got 0.5"),
-    (tables(p="from,to,tokens\nfill,cap,\ncap,fill,x\n"), "p.csv",
+    (tables(p="from,to,tokens,hold\nfill,cap,,0\ncap,fill,x,0\n"), "p.csv",
      "line 2 (place fill -> cap, index 0)", 'tokens must be an integer >= 0, got ""'),
-    (tables(p="from,to,tokens\nfill,cap,true\ncap,fill,false\n"), "p.csv",
+    (tables(p="from,to,tokens,hold\nfill,cap,true,0\ncap,fill,false,0\n"), "p.csv",
      "line 2 (place fill -> cap, index 0)", "tokens must be an integer >= 0"),
-    (tables(p="from,to,tokens\n\nfill,cap,0\n\n\ncap,fil,1\n"), "p.csv",
+    (tables(p="from,to,tokens,hold\n\nfill,cap,0,0\n\n\ncap,fil,1,0\n"), "p.csv",
      "line 6 (place cap -> fil, index 1)",
      'to = "fil" is not a transition id; did you mean "fill"?'),
-    (tables(p="from,to,tokens\nfill,cap,0\ncap,fill,0\n"), "m.toml",
+    (tables(p="from,to,tokens,hold\nfill,cap,0,0\ncap,fill,0,0\n"), "m.toml",
      "circuit fill -> cap -> fill", "deadlock"),
-    (tables(p="from,to,tokens\nfill,cap,0\n"), "t.csv", 'line 2 (transition "fill")',
+    (tables(p="from,to,tokens,hold\nfill,cap,0,0\n"), "t.csv", 'line 2 (transition "fill")',
      "has no input place"),
-    (tables(p="from,to,hold\nfill,cap,-1\ncap,fill,-2\n"), "p.csv",
+    (tables(p="from,to,tokens,hold\nfill,cap,0,-1\ncap,fill,1,-2\n"), "p.csv",
      "line 2 (place fill -> cap, index 0)",
      "hold must be >= 0, got -1 (1 more rows like this)"),
-    (tables(p="from,to,tokens\n,cap,0\n"), "p.csv", "line 2 (place  -> cap, index 0)",
+    (tables(p="from,to,tokens,hold\n,cap,0,0\n"), "p.csv", "line 2 (place  -> cap, index 0)",
      "from is empty"),
     ({"m.toml": HEAD + 'transitions_csv = "none.csv"\n'}, "none.csv", None,
      "no such file (named by transitions_csv in"),
@@ -432,7 +442,7 @@ def test_csv_conveniences(tmp_path):
     """A BOM, CRLF line ends, blank lines, blanks around cells and missing optional columns
     are accepted."""
     files = tables(t="\ufeffid , duration\r\n fill ,1\r\n\r\ncap,2 \r\n",
-                   p="from,to,tokens\nfill ,cap,0\ncap, fill,1\ncap,cap,1\n\n")
+                   p="from,to,tokens,hold\nfill ,cap,0,0\ncap, fill,1,0\ncap,cap,1,0\n\n")
     files["m.toml"] += '[[places]]\nfrom = "fill"\nto = "fill"\ntokens = 1\n'
     m = load_model(write(tmp_path, files))
     assert m.transition_ids == ("fill", "cap")
@@ -465,12 +475,13 @@ RAGGED = [
      "the line has 5 fields, the header has 4 (from,to,tokens,hold); a distribution cell with "
      'commas must be quoted: "empirical(values=[1, 2])"'),
     # a quoted cell over two lines: the lines inside it count
-    ("p.csv", 'from,to,tokens,label\nfill,cap,0,"two\nlines"\ncap,fill,1,x,y\n', 4,
-     "the line has 5 fields, the header has 4 (from,to,tokens,label); quote a cell that "
+    ("p.csv", 'from,to,tokens,hold,label\nfill,cap,0,0,"two\nlines"\ncap,fill,1,0,x,y\n', 4,
+     "the line has 6 fields, the header has 5 (from,to,tokens,hold,label); quote a cell that "
      'contains a comma (e.g. "Filler, left") or remove the extra cells'),
     # a literal quote inside an unquoted cell: counted by the csv module
-    ("p.csv", 'from,to,tokens,label\nfill,cap,0,5" pipe\ncap,fill,1\n', 3,
-     "the line has 3 fields, the header has 4 (from,to,tokens,label); write a cell for every "
+    ("p.csv", 'from,to,tokens,hold,label\nfill,cap,0,0,5" pipe\ncap,fill,1,0\n', 3,
+     "the line has 4 fields, the header has 5 (from,to,tokens,hold,label); write a cell for "
+     "every "
      "column (an empty cell is nothing between two commas)"),
 ]
 
@@ -575,12 +586,12 @@ def test_place_messages_give_the_model_index(tmp_path):
     assert good.place_name(4) == "cap -> fill" and good.tokens[4] == 2
 
     files = {"m.toml": HEAD + 'places_csv = "p.csv"\n' + T2 + LOOPS,
-             "p.csv": "from,to,tokens\nfill,fill,1\ncap,zzz,1\n"}
+             "p.csv": "from,to,tokens,hold\nfill,fill,1,0\ncap,zzz,1,0\n"}
     with pytest.raises(ModelError) as info:
         load_model(write(tmp_path, files))
     assert str(info.value) == (f"{tmp_path / 'p.csv'}: line 3 (place cap -> zzz, index 3): "
                                'to = "zzz" is not a transition id')
-    files["p.csv"] = "from,to,tokens\nfill,fill,1\ncap,cap,1\n"
+    files["p.csv"] = "from,to,tokens,hold\nfill,fill,1,0\ncap,cap,1,0\n"
     good = load_model(write(tmp_path, files))
     assert good.place_name(3) == "cap -> cap" and good.n_places == 4
 
@@ -663,3 +674,53 @@ def test_million_places(tmp_path):
     model = load_model(write_csv_model(tmp_path, "big", rng.random(n), src, dst, tokens,
                                        rng.random(m)))
     assert model.n_places == m and np.array_equal(model.target, dst)
+
+
+# ----------------------------------------------------------------------------- the two readers
+
+
+def _both_readers(monkeypatch, path):
+    """load_model through pyarrow (the fast reader) and through pandas (its twin, forced by
+    taking pyarrow's table away): (model or error text) of each."""
+    from cyclecheck.simulate import tables
+
+    out = []
+    for arrow in (True, False):
+        with monkeypatch.context() as m:
+            if not arrow:
+                m.setattr(tables, "_arrow_table", lambda *args: None)
+            try:
+                out.append(load_model(path))
+            except ModelError as err:
+                out.append(str(err))
+    return out
+
+
+CELLS = st.sampled_from(["0", "1", "2.5", " 3", "4 ", "1e-3", "-1", "nan", "inf", "", "x",
+                         '"gamma(mean=3, cv=0.5)"', "exponential(mean=2)", '"7"', "1.0",
+                         "0.5", "true", " fill", "cap ", '"fill"', "fill", "cap", "zzz"])
+
+
+@settings(max_examples=150, deadline=None,
+          suppress_health_check=[HealthCheck.function_scoped_fixture])
+@given(rows=st.lists(st.tuples(st.sampled_from(["fill", "cap", " fill", "cap ", "", "fil"]),
+                               st.sampled_from(["fill", "cap", "cap "]), CELLS, CELLS,
+                               st.sampled_from(["", "belt", '"a, b"', " x"])),
+                     min_size=1, max_size=6),
+       durations=st.tuples(CELLS, CELLS), crlf=st.booleans(), bom=st.booleans())
+def test_arrow_and_pandas_readers_agree(tmp_path, monkeypatch, rows, durations, crlf, bom):
+    """The pyarrow reader and the pandas reader give the same model, bit for bit, or the same
+    message, on tables with blanks, quotes, laws, bad numbers and unknown ids (the rules of
+    simulate/tables.py; pandas is the reader they were written for)."""
+    end = "\r\n" if crlf else "\n"
+    t = end.join(["id,duration,label", f"fill,{durations[0]},Filler", f"cap,{durations[1]},"])
+    p = end.join(["from,to,tokens,hold,label", "fill,fill,1,0,", "cap,cap,1,0,",
+                  *(",".join(r) for r in rows)])
+    files = tables(t=("\ufeff" if bom else "") + t + end, p=p + end)
+    files = {k: v.encode() for k, v in files.items()}
+    fast, slow = _both_readers(monkeypatch, write(tmp_path, files))
+    if isinstance(fast, str) or isinstance(slow, str):
+        assert fast == slow
+    else:
+        _same(fast, slow)
+        assert fast.sha256 == slow.sha256

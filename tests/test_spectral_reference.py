@@ -151,11 +151,13 @@ def test_howard_matches_brute_force_circuits(graph):
     Source: Baccelli et al. (1992), Synchronization and Linearity, ch. 2–3 (cycle time of a timed
     event graph as maximum cycle ratio; per component in the reducible case). Reference library:
     networkx.simple_cycles and networkx.descendants. Graphs from ``live_event_graphs``: strongly
-    connected or not, parallel places, self-loops.
+    connected or not, parallel places, self-loops. Both implementations of Howard (numpy and
+    the compiled kernel) are held to it.
     """
     expected = brute_force_cycle_times(graph)
-    got = howard(graph).cycle_time
-    np.testing.assert_allclose(got, expected, rtol=1e-9, atol=1e-9 * scale_of(graph))
+    for kernel in ("numpy", "numba"):  # the vectorized version and the compiled one
+        got = howard(graph, kernel=kernel).cycle_time
+        np.testing.assert_allclose(got, expected, rtol=1e-9, atol=1e-9 * scale_of(graph))
 
 
 @REFERENCE
@@ -167,9 +169,9 @@ def test_howard_matches_brute_force_not_strongly_connected(graph):
     cycle time among the components upstream of it); networkx.descendants for reachability.
     """
     expected = brute_force_cycle_times(graph)
-    np.testing.assert_allclose(
-        howard(graph).cycle_time, expected, rtol=1e-9, atol=1e-9 * scale_of(graph)
-    )
+    for kernel in ("numpy", "numba"):
+        np.testing.assert_allclose(howard(graph, kernel=kernel).cycle_time, expected,
+                                   rtol=1e-9, atol=1e-9 * scale_of(graph))
 
 
 @REFERENCE

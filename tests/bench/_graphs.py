@@ -23,6 +23,13 @@ Measurement
 (user + system) and its peak resident memory, read from ``os.wait4`` (the child's own rusage,
 not the maximum over all children as ``RUSAGE_CHILDREN`` would give). The whole process is
 timed: interpreter start, imports, reading the files, the work and the output.
+
+Compiled kernels
+----------------
+The kernels of ``cyclecheck.algebra.kernels`` are compiled by numba on their first use and kept
+in numba's on-disk cache. :func:`numba_cache` makes a fresh cache folder (``NUMBA_CACHE_DIR``)
+for a benchmark: its first run is the *cold* one (it compiles, as the first run after an
+install does), the following runs are *warm* (they load the cache).
 """
 
 from __future__ import annotations
@@ -42,6 +49,7 @@ __all__ = [
     "PYTHON",
     "Measured",
     "median_min",
+    "numba_cache",
     "random_live_graph",
     "run_measured",
     "write_random_model",
@@ -102,11 +110,14 @@ class Measured:
 
 
 def run_measured(cmd: Sequence[str], *, stdout: int | None = subprocess.DEVNULL,
-                 cwd: Path | None = None, accept: Sequence[int] = (0,)) -> Measured:
+                 cwd: Path | None = None, env: dict[str, str] | None = None,
+                 accept: Sequence[int] = (0,)) -> Measured:
     """Run ``cmd`` to completion; wall clock from spawn to exit, the child's own rusage.
-    An exit code outside ``accept`` raises."""
+    ``env``: variables added to this process's environment. An exit code outside ``accept``
+    raises."""
     t0 = time.perf_counter()
-    proc = subprocess.Popen(list(cmd), stdout=stdout, stderr=subprocess.PIPE, cwd=cwd)
+    proc = subprocess.Popen(list(cmd), stdout=stdout, stderr=subprocess.PIPE, cwd=cwd,
+                            env={**os.environ, **env} if env else None)
     assert proc.stderr is not None
     err = proc.stderr.read()  # drain stderr so that a chatty child never blocks
     _, status, usage = os.wait4(proc.pid, 0)
@@ -118,6 +129,13 @@ def run_measured(cmd: Sequence[str], *, stdout: int | None = subprocess.DEVNULL,
                            f"{err.decode(errors='replace')[-2000:]}")
     return Measured(wall, usage.ru_utime + usage.ru_stime, usage.ru_stime,
                     usage.ru_maxrss * 1024, proc.returncode)
+
+
+def numba_cache(directory: Path) -> dict[str, str]:
+    """Environment of a fresh, empty numba cache in ``directory`` (the first run compiles)."""
+    cache = directory / "numba-cache"
+    cache.mkdir(parents=True, exist_ok=True)
+    return {"NUMBA_CACHE_DIR": str(cache)}
 
 
 def median_min(values: Sequence[float]) -> tuple[float, float]:
