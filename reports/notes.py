@@ -147,7 +147,10 @@ def reproducibility(document: Mapping[str, Any]) -> str:
     if document.get("created"):
         rows.append(("Created", e(str(document["created"]))))
     items = "".join(f"<dt>{label}</dt><dd>{value}</dd>\n" for label, value in rows)
-    text = ('<p>The same command with the same seed, model file and versions gives the same '
+    what = ("The same command" if str(document.get("command_line", "")).startswith("cyclecheck")
+            else "The same call")
+    log = ", the same event log" if document.get("command") == "trace" else ""
+    text = (f"<p>{what} with the same seed, model file{log} and versions gives the same "
             "numbers, on any number of workers.</p>\n")
     return section("reproducibility", "Reproducibility",
                    text + f'<dl class="record">\n{items}</dl>\n')

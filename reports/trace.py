@@ -43,7 +43,9 @@ def _verdict(document: Mapping[str, Any]) -> str:
     family = document.get("family") or {}
     if agrees:
         line = ("The event log is consistent with the model: no firing breaks the model's "
-                "equations and no statistical test rejects it")
+                "equations and no statistical test rejects it. That is no evidence against the "
+                "model in this log, not a proof: the tables say how large a change it could "
+                "have missed")
     else:
         line = ("The event log is not consistent with the model: the simulation model that "
                 "wrote it does not behave as the model file says")

@@ -203,6 +203,9 @@ def simulate(model: ModelLike, *, seed: int | None = DEFAULT_SEED,
     loaded = _model(model)
     if settings.precision is None and loaded.is_random:
         settings = settings.replace(precision=DEFAULT_PRECISION)
+    if not loaded.is_random and settings.replications is None:
+        # fixed durations: every replication is the same run; two make the (zero) interval
+        settings = settings.replace(replications=2)
     graph = loaded.graph()
     mean_value = howard(graph)
     period = cyclicity(graph, mean_value)
@@ -482,8 +485,7 @@ def report(result: Mapping[str, Any] | PathLike, output: PathLike, *,
     'cell.html'
     """
     doc = dict(result) if isinstance(result, Mapping) else load_document(result)
-    save_page(doc, output, force=force)
-    return Path(output)
+    return _save_page(doc, output, force=force, option="-o")
 
 
 def save_document(document: Mapping[str, Any], path: PathLike, *,
@@ -519,10 +521,15 @@ def save_page(document: Mapping[str, Any], path: PathLike, *, force: bool = Fals
     >>> save_page(analyze("models/packaging_cell.toml"), path).suffix
     '.html'
     """
+    return _save_page(document, path, force=force, option="--report")
+
+
+def _save_page(document: Mapping[str, Any], path: PathLike, *, force: bool,
+               option: str) -> Path:
     from ..reports import render_page
 
-    target = _optional_path(path, "--report")
+    target = _optional_path(path, option)
     assert target is not None
-    check_outputs([Output(target, "page", option="--report")], force=force)
-    write_outputs([Output(target, "page", render_page(document), "--report")], force=force)
+    check_outputs([Output(target, "page", option=option)], force=force)
+    write_outputs([Output(target, "page", render_page(document), option)], force=force)
     return target

@@ -93,8 +93,8 @@ RUN = _options(
                       "replications are added until it is reached.  [default: 0.01 for "
                       "random models]"),
     click.option("--replications", type=int, default=None,
-                 help="Replications per round of the estimate (>= 2).  [default: 10; the "
-                      "SimPy side of `check`: 5]"),
+                 help="Replications per round of the estimate (>= 2).  [default: 10; for "
+                      "the SimPy side of `check`: 5]"),
     click.option("--firings", type=int, default=None,
                  help="Firings of every transition per replication (>= 10).  [default: chosen "
                       "from the model size]"),
@@ -107,6 +107,11 @@ RUN = _options(
 
 EXIT_CODES = ("Exit codes: 0 done, or the model agrees with the theory; 1 the simulation or "
               "the log disagrees; 2 bad input or usage; 130 interrupted.")
+#: The exit codes of a command that gives no verdict.
+EXIT_DONE = "Exit codes: 0 done; 2 bad input or usage; 130 interrupted."
+#: The exit codes of a command that gives a verdict.
+EXIT_VERDICT = ("Exit codes: 0 the model agrees (check) / the log is consistent (trace); 1 it "
+                "disagrees / is not; 2 bad input or usage; 130 interrupted.")
 
 
 @click.group(context_settings={"help_option_names": ["-h", "--help"], "max_content_width": 100},
@@ -137,7 +142,7 @@ def _wrote(paths: list[Path | None], quiet: bool) -> None:
 
 
 @main.command(short_help="Exact cycle time, critical circuit, slack; Lyapunov estimate.",
-              epilog=EXIT_CODES)
+              epilog=EXIT_DONE)
 @click.argument("model", type=click.Path(path_type=Path))
 @RUN
 @REPORT
@@ -159,7 +164,7 @@ def analyze(model: Path, as_json: bool, seed: int, precision: float | None,
 
 
 @main.command(name="simulate", short_help="Cycle time estimated from the SimPy engine.",
-              epilog=EXIT_CODES)
+              epilog=EXIT_DONE)
 @click.argument("model", type=click.Path(path_type=Path))
 @RUN
 @click.option("--trace", "trace_path", type=click.Path(path_type=Path), default=None,
@@ -183,7 +188,7 @@ def simulate_cmd(model: Path, as_json: bool, seed: int, precision: float | None,
 
 
 @main.command(short_help="SimPy beside the max-plus recursion, with a verdict.",
-              epilog=EXIT_CODES)
+              epilog=EXIT_VERDICT)
 @click.argument("model", type=click.Path(path_type=Path))
 @RUN
 @REPORT
@@ -208,7 +213,7 @@ def check(model: Path, as_json: bool, seed: int, precision: float | None,
     sys.exit(EXIT_AGREES if doc["comparison"]["verdict"] == "agrees" else EXIT_DISAGREES)
 
 
-@main.command(short_help="Re-render a saved result document as a page.", epilog=EXIT_CODES)
+@main.command(short_help="Re-render a saved result document as a page.", epilog=EXIT_DONE)
 @click.argument("result", type=click.Path(path_type=Path))
 @click.option("-o", "--output", "output", type=click.Path(path_type=Path), required=True,
               metavar="PAGE", help="The page to write (HTML).")
@@ -223,7 +228,7 @@ def report(result: Path, output: Path, force: bool) -> None:
 
 
 @main.command(short_help="Judge an event log of any simulator against the model.",
-              epilog=EXIT_CODES)
+              epilog=EXIT_VERDICT)
 @click.argument("model", type=click.Path(path_type=Path))
 @click.argument("log", type=click.Path(path_type=Path))
 @JSON
@@ -277,7 +282,7 @@ def trace(model: Path, log: Path, as_json: bool, alpha: float, partial: bool,
     sys.exit(EXIT_AGREES if doc["verdict"] == "agrees" else EXIT_DISAGREES)
 
 
-@main.command(short_help="A grid of parameter values, in parallel.", epilog=EXIT_CODES)
+@main.command(short_help="A grid of parameter values, in parallel.", epilog=EXIT_DONE)
 @click.argument("model", type=click.Path(path_type=Path))
 @click.option("--vary", "vary", multiple=True, required=True, metavar="TARGET=VALUES",
               help="What to vary and its values (repeat for a grid). TARGET: TRANSITION.duration,"
@@ -306,11 +311,19 @@ def sweep(model: Path, vary: tuple[str, ...], as_json: bool, seed: int,
     """
     from . import api, summary
 
-    doc = api.sweep(model, vary=list(vary), **_run_options(seed, precision, replications,
-                                                          firings, workers, scheduler, quiet,
-                                                          as_json),
-                    csv=csv_path, report=report_path, save=save_path, resume=resume_path,
-                    force=force)
+    try:
+        doc = api.sweep(model, vary=list(vary), **_run_options(seed, precision, replications,
+                                                              firings, workers, scheduler,
+                                                              quiet, as_json),
+                        csv=csv_path, report=report_path, save=save_path,
+                        resume=resume_path, force=force)
+    except KeyboardInterrupt:
+        if resume_path is not None and resume_path.exists():
+            click.echo(f"cyclecheck: interrupted; the finished tasks are kept in {resume_path} "
+                       "(run the same command to resume); no other output was written",
+                       err=True)
+            sys.exit(EXIT_INTERRUPTED)
+        raise
     _emit(doc, as_json, summary.sweep_text)
     _wrote([csv_path, report_path, save_path], quiet)
 

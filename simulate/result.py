@@ -651,7 +651,7 @@ def sweep_rows(document: Mapping[str, Any]) -> tuple[list[str], list[list[Any]]]
         row = [p["point"], *(p["values"][t] for t in targets), p["status"], p["cycle_time"],
                ci[0], ci[1], p["throughput"], tci[0], tci[1], p.get("relative_half_width"),
                p.get("replications"), bounds.get("lower"), bounds.get("upper"),
-               " -> ".join(p.get("critical_circuit") or p.get("deadlock") or []),
+               _closed(p.get("critical_circuit") or p.get("deadlock") or []),
                top.get("transition"), top.get("utilization")]
         for t in targets:
             diff = (p.get("differences") or {}).get(t) or {}
@@ -681,6 +681,11 @@ def _certificate_text(analysis: GraphAnalysis) -> str:
     )
 
 
+def _closed(circuit: list[str]) -> str:
+    """A circuit as the terminal writes it, closed on its first transition: ``a -> b -> a``."""
+    return " -> ".join([*circuit, circuit[0]]) if circuit else ""
+
+
 def provenance(command_line: list[str] | None = None) -> dict[str, Any]:
     """Versions, time and command line, for the reproducibility section."""
     versions = {"python": platform.python_version()}
@@ -694,9 +699,18 @@ def provenance(command_line: list[str] | None = None) -> dict[str, Any]:
         "document": DOCUMENT_KIND,
         "schema_version": SCHEMA_VERSION,
         "created": _dt.datetime.now(_dt.UTC).strftime("%Y-%m-%dT%H:%M:%SZ"),
-        "command_line": " ".join(["cyclecheck", *argv[1:]]) if argv else "cyclecheck",
+        "command_line": _command_line(argv),
         "versions": versions,
     }
+
+
+def _command_line(argv: list[str]) -> str:
+    """The command as typed, when the process is the command line; else what called the
+    Python interface (a script's numbers depend on that script, not only on a command)."""
+    if argv and Path(argv[0]).name == "cyclecheck":
+        return " ".join(["cyclecheck", *argv[1:]])
+    script = " ".join(argv) if argv and argv[0] not in ("", "-c") else "an interactive session"
+    return f"the Python interface (cyclecheck.simulate), called from {script}"
 
 
 def dumps(document: Mapping[str, Any]) -> str:

@@ -236,6 +236,14 @@ def check_text(doc: dict[str, Any]) -> str:
     return "\n".join(lines)
 
 
+def _adjusted(test: dict[str, Any] | None) -> str:
+    """A test's Holm-adjusted p-value (its raw one where none was adjusted), ✗ if rejected."""
+    if not test:
+        return "-"
+    p = test.get("adjusted_p", test.get("p_value"))
+    return ("-" if p is None else f"{p:.3g}") + (" ✗" if test.get("rejected") else "")
+
+
 def trace_text(doc: dict[str, Any]) -> str:
     """Summary of ``cyclecheck trace``: the verdict and its reasons, then the figures."""
     unit = _unit(doc)
@@ -251,7 +259,7 @@ def trace_text(doc: dict[str, Any]) -> str:
         change = comp.get("detectable_change")
         lines.append(f"cycle time     {_num(comp['log'])}{unit} [{_num(lo)}, {_num(hi)}] in the "
                      f"log, {_num(comp['model'])}{unit} [{_num(mlo)}, {_num(mhi)}] in the model"
-                     f" ({comp['component']}; p = {comp['p_value']:.3g}"
+                     f" ({comp['component']}; p (Holm) = {_adjusted(comp.get('test'))}"
                      + (f"; would catch a {100 * change:.2g} % change" if change else "") + ")")
     est = doc.get("cycle_time_from_log")
     if not cycle.get("components") and est is not None and math.isfinite(est):
@@ -261,13 +269,14 @@ def trace_text(doc: dict[str, Any]) -> str:
                      f"{unit}")
     rows = [r for r in doc.get("transitions", []) if "mean_test" in r]
     if rows:
+        # the p-values the verdict reads: adjusted by Holm over the whole family of tests
         lines.append(f"{'durations':<14} {'observed mean':>14} {'model':>9} {'fit p':>8} "
-                     f"{'mean p':>8} {'would catch':>12}")
+                     f"{'mean p':>8} {'would catch':>12}   (p-values Holm-adjusted)")
         for r in rows:
             change = r.get("detectable_change")
             lines.append(f"  {r['id']:<12} {_num(r['observed_mean'], 5):>14} "
-                         f"{_num(r['model_mean'], 5):>9} {r['fit_test']['p_value']:>8.3g} "
-                         f"{r['mean_test']['p_value']:>8.3g} "
+                         f"{_num(r['model_mean'], 5):>9} {_adjusted(r['fit_test']):>8} "
+                         f"{_adjusted(r['mean_test']):>8} "
                          f"{'-' if change is None else f'{100 * change:.2g} % slower':>12}")
     skipped = doc.get("not_judged", [])
     if skipped:
