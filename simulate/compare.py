@@ -41,6 +41,9 @@ __all__ = ["PATH_RTOL", "Comparison", "FixedRun", "compare"]
 
 #: Relative tolerance of the sample-path identity.
 PATH_RTOL = 1e-9
+#: Firings of all transitions together that the fixed-duration check runs on each engine when
+#: --firings is not given (about ten seconds of SimPy).
+CHECK_FIRINGS = 2_000_000
 #: SimPy replications of a random model's check when --replications is not given: enough
 #: for the sample-path comparison and a rough interval; the precision target is the
 #: recursion's.
@@ -121,15 +124,20 @@ def _fixed(model: Model, exact: GraphAnalysis, settings: RunSettings) -> Compari
     eta = exact.howard.cycle_time
     c = exact.cyclicity
     settle = exact.transient
-    horizon = max(firings or 0, 2000, 4 * c + 4)
+    # The SimPy run costs about as much per firing as anything here: without --firings, the
+    # runs stay within a budget of firings of all transitions (a graph of 10^5 transitions
+    # gets tens of firings, enough for the sample paths, maybe not for the periodic regime).
+    budget = max(CHECK_FIRINGS // graph.n_transitions, 20)
+    horizon = max(firings or 0, min(2000, budget), 4 * c + 4)
     reachable = horizon <= TRANSIENT_MAX_HORIZON  # a period of 10^12 firings cannot be run
-    if settle is None and reachable:
+    if settle is None and reachable and (firings or horizon <= max(budget, 4 * c + 4)):
         # Not measured or not reached by the analysis; the check runs both engines anyway, so
         # it can afford a longer look.
         settle = transient(graph, eta, c, horizon)
     # Long enough to see the regime for c firings, and never shorter than c + 1 firings.
     needed = (settle if settle is not None else horizon) + c + 1
-    K = max(firings or max(200, needed + c + 10), c + 1) if reachable else (firings or 2000)
+    K = (max(firings or min(max(200, needed + c + 10), max(budget, needed)), c + 1)
+         if reachable else (firings or min(2000, budget)))
     run = simulate_event_graph(graph, None, n_firings=K)
     rec = firing_times(graph, K)
     diff = _path_difference(run.time, rec)
@@ -191,6 +199,10 @@ def _why_unsettled(model: Model, firings: int, period: int) -> str:
                 "run: until they are used the run shows a transient, not the cycle time)")
     if 4 * period + 4 > TRANSIENT_MAX_HORIZON:
         return f" (the regime's period, {period:,} firings, is too long to be run)"
+    if firings * model.n_transitions >= CHECK_FIRINGS // 2:
+        return (f" (the run was kept to {firings:,} firings of each of the "
+                f"{model.n_transitions:,} transitions; give more --firings to compare them "
+                "too)")
     return " (give more --firings to compare them too)"
 
 
