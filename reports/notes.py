@@ -98,8 +98,9 @@ def semantics(document: Mapping[str, Any]) -> str:
         "token the transition is a single server; with n tokens firing k waits for firing "
         "k − n (this is not the same as a pooled queue with n servers).",
         "Tokens leave a place in the order of the firings that produced them (firing k takes "
-        "token k − m of each input place, even if a random hold lets a later token arrive "
-        "first), so the recursion describes the simulation exactly.",
+        "token k − m of each input place" + (", even if a random hold lets a later token "
+                                             "arrive first" if random else "") + "), so the "
+        "recursion describes the simulation exactly.",
         "The <em>cycle time</em> λ is the long-run time between two firings of a transition; "
         "the throughput is 1/λ. A <em>critical circuit</em> is a circuit whose total duration "
         "per token equals λ" + (" of the mean durations" if random else "") + ". <em>Slack"
