@@ -376,9 +376,11 @@ def running_estimate_figure(
                    Patch(facecolor=SIM_TINT, edgecolor=SIM, hatch="....",
                          label="95 % interval (dotted band)")]
         handles += _bound_lines(ax, bounds, vertical=False)
+        from matplotlib.ticker import FuncFormatter
+
         ax.set_xlabel("firings computed")
         ax.set_ylabel(_plain(f"cycle time ({time_unit})" if time_unit else "cycle time"))
-        ax.ticklabel_format(axis="x", style="plain")
+        ax.xaxis.set_major_formatter(FuncFormatter(lambda x, _: f"{x:,.0f}"))
         fig.legend(handles=handles, loc="outside lower center", ncols=4, fontsize=7.5)
 
     return _render(key, "Running estimate of the cycle time with its interval", draw, 7.2, 3.0)
