@@ -143,7 +143,8 @@ def graph_figure(drawing: Drawing, key: str = "graph",
 
     def draw(fig: Any) -> None:
         # The axes fill the figure exactly: one layout unit is INCH inches, as the layout's
-        # text sizes assume.
+        # text sizes assume. Patches go in with add_artist: the limits are set, and the
+        # autoscaling add_patch does would cost seconds on a large graph.
         ax = fig.add_axes((0.0, legend / (height + legend), 1.0, height / (height + legend)))
         ax.set_axis_off()
         ax.set_xlim(xmin - pad, xmax + pad)
@@ -151,19 +152,19 @@ def graph_figure(drawing: Drawing, key: str = "graph",
         for arc in drawing.arcs:
             colour, lw = (ACCENT, 2.4) if arc.critical else (MUTED, 1.0)
             codes = [Path.MOVETO] + [Path.CURVE4] * (len(arc.points) - 1)
-            ax.add_patch(FancyArrowPatch(
+            ax.add_artist(FancyArrowPatch(
                 path=Path(arc.points, codes), arrowstyle="-|>", mutation_scale=8 + lw * 2,
                 color=colour, linewidth=lw, zorder=1 + arc.critical))
             if not drawing.show_places:
                 continue
             ring = 2.0 if arc.place == drawing.bottleneck_place else lw * 0.7
-            ax.add_patch(Circle(arc.mid, PLACE_RADIUS, facecolor="white",
+            ax.add_artist(Circle(arc.mid, PLACE_RADIUS, facecolor="white",
                                 edgecolor=INK if arc.place == drawing.bottleneck_place
                                 else colour, linewidth=ring, zorder=3))
             if arc.tokens in (1, 2):
                 offsets = [0.0] if arc.tokens == 1 else [-0.065, 0.065]
                 for off in offsets:
-                    ax.add_patch(Circle((arc.mid[0] + off, arc.mid[1]), 0.045, color=INK,
+                    ax.add_artist(Circle((arc.mid[0] + off, arc.mid[1]), 0.045, color=INK,
                                         zorder=4))
             elif arc.tokens > 2:
                 ax.text(arc.mid[0], arc.mid[1], token_text(arc.tokens), ha="center",
@@ -176,7 +177,7 @@ def graph_figure(drawing: Drawing, key: str = "graph",
         for name, (x, y) in drawing.nodes.items():
             critical = name in drawing.critical_transitions
             neck = name == drawing.bottleneck
-            ax.add_patch(FancyBboxPatch(
+            ax.add_artist(FancyBboxPatch(
                 (x - half_w, y - half_h), 2 * half_w, 2 * half_h,
                 boxstyle="round,pad=0,rounding_size=0.12",
                 facecolor=ACCENT_TINT if critical else "white",

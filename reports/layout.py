@@ -393,7 +393,13 @@ def _layered(nodes: list[str], places: Sequence[PlaceSpec], box_width: float,
     layer, position = _sugiyama(nodes, places)
     n_layers = max(layer.values()) + 1
     if n_layers == 1:
-        return None
+        if len(nodes) <= 12:
+            return None  # a small circle reads better
+        # Nothing joins the transitions into layers: one per layer, folded like a line.
+        order = sorted(nodes, key=lambda t: (position[t], nodes.index(t)))
+        layer = {t: i for i, t in enumerate(order)}
+        position = dict.fromkeys(nodes, 0.0)
+        n_layers = len(nodes)
     pitch = box_width + GAP_X
     per_band = max(2, int((MAX_WIDTH - box_width) / pitch) + 1)
     n_bands = math.ceil(n_layers / per_band)
@@ -601,8 +607,32 @@ def _circle(ring: list[str], places: Sequence[PlaceSpec], box_width: float,
 Box = tuple[float, float, float, float]  # xmin, ymin, xmax, ymax
 
 
-def _overlaps(a: Box, boxes: Sequence[Box]) -> bool:
-    return any(a[0] < b[2] and b[0] < a[2] and a[1] < b[3] and b[1] < a[3] for b in boxes)
+def _meet(a: Box, b: Box) -> bool:
+    return a[0] < b[2] and b[0] < a[2] and a[1] < b[3] and b[1] < a[3]
+
+
+class _Boxes:
+    """Boxes in a grid of cells, so that a new box is compared with its neighbours only."""
+
+    CELL = 1.0
+
+    def __init__(self, boxes: Sequence[Box] = ()) -> None:
+        self.cells: dict[tuple[int, int], list[Box]] = {}
+        for box in boxes:
+            self.add(box)
+
+    def _span(self, box: Box) -> list[tuple[int, int]]:
+        c = self.CELL
+        return [(i, j) for i in range(math.floor(box[0] / c), math.floor(box[2] / c) + 1)
+                for j in range(math.floor(box[1] / c), math.floor(box[3] / c) + 1)]
+
+    def add(self, box: Box) -> None:
+        for cell in self._span(box):
+            self.cells.setdefault(cell, []).append(box)
+
+    def hit(self, box: Box) -> bool:
+        return any(_meet(box, other) for cell in self._span(box)
+                   for other in self.cells.get(cell, ()))
 
 
 class _Strokes:
@@ -629,7 +659,7 @@ class _Strokes:
 
 
 def _place_labels(wanted: Sequence[tuple[Point, Point, float, str, str, bool]],
-                  obstacles: list[Box], strokes: _Strokes) -> tuple[list[Label], int]:
+                  obstacles: _Boxes, strokes: _Strokes) -> tuple[list[Label], int]:
     """Put each text beside its anchor ``(anchor, normal, radius, text, owner, bold)`` at the
     first free spot: along the normal first, then the other sides, then farther out; a spot
     off the lines is preferred to one on a line."""
@@ -653,12 +683,12 @@ def _place_labels(wanted: Sequence[tuple[Point, Point, float, str, str, bool]],
                                    anchor[1] + uy * (gap + reach)))
         boxes = [(cx - w / 2 - MARGIN, cy - h / 2 - MARGIN, cx + w / 2 + MARGIN,
                   cy + h / 2 + MARGIN) for cx, cy in candidates]
-        free = [box for box in boxes if not _overlaps(box, obstacles)]
+        free = [box for box in boxes if not obstacles.hit(box)]
         if not free:
             dropped += 1
             continue
         box = next((b for b in free if not strokes.crosses(b)), free[0])
-        obstacles.append(box)
+        obstacles.add(box)
         centre = ((box[0] + box[2]) / 2, (box[1] + box[3]) / 2)
         labels.append(Label(text, (round(centre[0], 6), round(centre[1], 6)), size, owner,
                             bold))
@@ -757,7 +787,7 @@ def layout_graph(
         text = texts_wanted.get(arc.place)
         if text and show_places:
             wanted.append((arc.mid, arc.normal, PLACE_RADIUS, text, "place", False))
-    labels, dropped = _place_labels(wanted, obstacles, _Strokes(arcs))
+    labels, dropped = _place_labels(wanted, _Boxes(obstacles), _Strokes(arcs))
     return Drawing(
         kind=kind,
         nodes=positions,

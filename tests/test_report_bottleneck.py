@@ -9,6 +9,7 @@ derived, and the tests say so.
 from __future__ import annotations
 
 import copy
+import functools
 import re
 from typing import Any
 
@@ -27,6 +28,12 @@ from tests.test_report_page import section_text as _section_text
 from tests.test_report_page import table_rows, visible_text
 
 
+@functools.cache
+def page_of(make: Any) -> str:
+    """The page of an unchanged sample document, rendered once per module."""
+    return render_page(make())
+
+
 def section_text(page: str, name: str) -> str:
     """The section's visible text, with no space before closing punctuation (a unit is set in
     its own element, which the parser separates by a space)."""
@@ -38,7 +45,7 @@ def test_fixed_bottleneck_is_named_at_the_top_with_what_a_faster_element_gives()
     12 min → 10.8 min gives (40.5 − 1.2) / 3 = 13.1 min (the tray loop stays critical: the
     loop through the check gives (36.5 − 1.2) / 3 = 11.77, the oven alone 10.8); the other
     nine elements of the loop share the derivative 1/3."""
-    text = section_text(render_page(fixed_document()), "verdict")
+    text = section_text(page_of(fixed_document), "verdict")
     assert "Bottleneck: transition bake (Tunnel oven) (exact)" in text
     assert "dλ/d(duration) = 0.3333: each minute added to its duration adds 0.3333 minute" in text
     assert "10 % faster (duration 12 min → 10.8 min): cycle time 13.1 min, instead of 13.5 min." \
@@ -51,7 +58,7 @@ def test_random_bottleneck_shows_intervals_and_overlapping_elements() -> None:
     """Shuttle loop (invented sensitivities): the dock's interval [0.55, 0.67] overlaps
     those of yard (high 0.64), place 0 (0.61), place 2 (0.60) and depot (0.57): 4 others,
     counted from the document; the dock lies on the critical circuit of the mean durations."""
-    text = section_text(render_page(random_document()), "verdict")
+    text = section_text(page_of(random_document), "verdict")
     assert "Bottleneck: transition dock (Loading dock)" in text
     assert "dλ/d(mean duration) = 0.61 (95 % interval 0.55 – 0.67)" in text
     assert ("10 % faster (mean duration 3 min → 2.7 min): cycle time 10.44 min (95 % interval "
@@ -65,7 +72,7 @@ def test_bottleneck_off_the_mean_value_circuit_is_said() -> None:
     """Two presses: the mean durations make press A critical (10 > 9.75 > 9.5), but the
     document's bottleneck is press B: the page says the two differ, in the verdict area of a
     flat `analyze` document (its keys at the top level)."""
-    page = render_page(press_document())
+    page = page_of(press_document)
     text = section_text(page, "verdict")
     assert "Bottleneck: transition B (Press B)" in text
     assert "This differs from the critical circuit of the mean durations (A → A)" in text
@@ -91,7 +98,7 @@ def test_documents_without_the_new_keys_still_render() -> None:
 def test_sensitivity_table_is_sorted_and_counts_what_it_leaves_out() -> None:
     """A line of 60 stations: 60 transitions and 178 places have a derivative, the table
     shows the 10 largest (s17 and its self-loop first, derivative 1) and says 228 more."""
-    page = render_page(line_document(60))
+    page = page_of(lambda: line_document(60))
     rows = table_rows(page, "Sensitivity of the cycle time")
     assert rows[0] == ["Rank", "Element", "dλ/d(value)", "On the critical circuit"]
     assert len(rows) == 11
@@ -102,7 +109,7 @@ def test_sensitivity_table_is_sorted_and_counts_what_it_leaves_out() -> None:
 
 
 def test_random_sensitivity_table_has_intervals_and_mean_value_marks() -> None:
-    rows = table_rows(render_page(random_document()), "Sensitivity of the cycle time")
+    rows = table_rows(page_of(random_document), "Sensitivity of the cycle time")
     assert rows[0] == ["Rank", "Element", "dλ/d(mean)", "95 % interval",
                        "On the critical circuit of the mean durations"]
     assert rows[1] == ["1", "transition dock (Loading dock)", "0.61", "0.55 – 0.67", "◆ yes"]
@@ -113,7 +120,7 @@ def test_utilization_per_server_busiest_first() -> None:
     """Shuttle loop: busiest first, the dock's single berth is 1 server, stops without a
     self-loop have no limit; the five-station loop: U = X·D with X = 1 / 2.6311 (the
     utilization law; Denning & Buzen 1978): s5 1.5 / 2.6311 = 57.0 %."""
-    page = render_page(random_document())
+    page = page_of(random_document)
     rows = table_rows(page, "Utilization per server")
     assert rows[0] == ["Transition", "Label", "Utilization (max-plus)", "Utilization (SimPy)",
                        "Servers"]
@@ -121,14 +128,14 @@ def test_utilization_per_server_busiest_first() -> None:
     assert rows[1][-1] == "1" and rows[2][-1] == "no limit"
     assert "mean number of busy servers divided by the number of servers" in \
         section_text(page, "act")
-    loop = table_rows(render_page(loop_document()), "Utilization per server")
+    loop = table_rows(page_of(loop_document), "Utilization per server")
     assert loop[1] == ["s5", f"{100 * 1.5 / 2.6311:.1f} %", "1"]
 
 
 def test_unstable_model_is_warned_first_in_an_hourly_rate() -> None:
     """Open station: the buffer gains 1/12 − 1/15 = 1/60 part per second, 60 per hour
     (worked by hand); the warning is the first section of the page."""
-    page = render_page(unstable_document())
+    page = page_of(unstable_document)
     main = page[page.index("<main>"):]
     assert main.index('id="unstable"') < main.index('id="verdict"')
     text = section_text(page, "unstable")
@@ -140,7 +147,7 @@ def test_unstable_model_is_warned_first_in_an_hourly_rate() -> None:
     document["model"]["time_unit"] = ""
     assert "grows by 0.01667 tokens per time unit" in section_text(render_page(document),
                                                                    "unstable")
-    assert 'id="unstable"' not in render_page(fixed_document())
+    assert 'id="unstable"' not in page_of(fixed_document)
 
 
 def _fixed(change: Any) -> dict[str, Any]:

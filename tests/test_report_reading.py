@@ -5,7 +5,9 @@ start where their data start; cut lists that say how much they leave out; rates 
 
 from __future__ import annotations
 
+import functools
 import re
+from typing import Any
 
 import pytest
 from cyclecheck.reports import render_page
@@ -24,12 +26,18 @@ RANDOM_WORDS = re.compile(r"\brandom|\bdraws?\b|estimat|confidence|95 %|Lyapunov
                           r"mean duration|\bbounds?\b", re.I)
 
 
+@functools.cache
+def page_of(make: Any) -> str:
+    """The page of an unchanged sample document, rendered once per module."""
+    return render_page(make())
+
+
 @pytest.mark.parametrize("make", [fixed_document, unstable_document,
                                   lambda: line_document(30)])
-def test_fixed_pages_never_speak_of_random_draws(make: object) -> None:
+def test_fixed_pages_never_speak_of_random_draws(make: Any) -> None:
     """Every sentence of a fixed model's page (captions, cautions, semantics, sample path,
     reproducibility) is written for fixed durations."""
-    text = visible_text(render_page(make()))  # type: ignore[operator]
+    text = visible_text(page_of(make))
     found = sorted({m.group(0).lower() for m in RANDOM_WORDS.finditer(text)})
     assert found == [], [text[max(0, m.start() - 60):m.end() + 30]
                          for m in RANDOM_WORDS.finditer(text)][:5]
@@ -44,7 +52,7 @@ def test_random_page_puts_the_mean_durations_below_the_answers() -> None:
     """The answers (verdict with the bottleneck, estimates, where to act, the graph, the
     variability) come first; what belongs to the mean durations after them, labelled so; the
     algebra of the mean durations is the last, an appendix."""
-    page = render_page(random_document())
+    page = page_of(random_document)
     order = _order(page)
     assert order[:4] == ["verdict", "numbers", "act", "graph"]
     assert order.index("variability") < order.index("mean-durations")
@@ -65,7 +73,7 @@ def test_random_page_puts_the_mean_durations_below_the_answers() -> None:
 
 
 def test_fixed_page_order_and_appendix() -> None:
-    page = render_page(fixed_document())
+    page = page_of(fixed_document)
     order = _order(page)
     assert order[:4] == ["verdict", "numbers", "act", "graph"]
     assert order[-2:] == ["cautions", "algebra"]
@@ -79,16 +87,16 @@ def test_fixed_page_order_and_appendix() -> None:
 def test_firings_card_counts_both_sides() -> None:
     """The max-plus side of a fixed model computed no firing: exact, no simulation; the
     card counts the SimPy side's firings beside it; a random model counts both."""
-    fixed = section_text(render_page(fixed_document()), "numbers")
+    fixed = section_text(page_of(fixed_document), "numbers")
     assert "Firings computed max-plus: exact, no simulation SimPy: 12,000" in fixed
-    random = section_text(render_page(random_document()), "numbers")
+    random = section_text(page_of(random_document), "numbers")
     assert "Firings computed max-plus: 80,000 SimPy: 40,000 all replications together" in random
 
 
 def test_throughput_is_also_given_per_hour() -> None:
     """1 / 13.5 per min = 4.444 per hour; 1 / 12.9 per s = 279.1 per hour (by hand)."""
-    assert "4.444 per hour" in section_text(render_page(fixed_document()), "numbers")
-    assert "279.1 per hour" in section_text(render_page(press_document()), "numbers")
+    assert "4.444 per hour" in section_text(page_of(fixed_document), "numbers")
+    assert "279.1 per hour" in section_text(page_of(press_document), "numbers")
     document = fixed_document()
     document["model"]["time_unit"] = "cycles"
     assert "per hour" not in section_text(render_page(document), "numbers")
@@ -114,7 +122,7 @@ def test_running_estimate_axis_starts_where_its_data_start() -> None:
     """The shuttle's running interval spans 10.29 – 11.53 min; the lower bound 9.75 and the
     upper bound 12.64 lie outside: no tick reaches down to the bound, and the caption says
     why the bounds are not drawn. A bound inside the data's range is drawn and labelled."""
-    page = render_page(random_document())
+    page = page_of(random_document)
     svg = _figure(page, "running")
     assert min(t for t in _ticks(svg) if t < 100) > 10.0
     assert "lower bound" not in svg
@@ -131,11 +139,11 @@ def test_running_estimate_axis_starts_where_its_data_start() -> None:
 def test_random_transient_is_a_band_and_fixed_keeps_its_curves() -> None:
     """A random model's x(k) − kλ is one band with its median (no line per transition); a
     fixed model keeps one exact curve per transition, named in the legend."""
-    random_svg = _figure(render_page(random_document()), "transient")
+    random_svg = _figure(page_of(random_document), "transient")
     texts = re.findall(r"<text[^>]*>([^<]*)</text>", random_svg)
     assert "all transitions (smallest to largest)" in texts
     assert not {"dock", "gate", "yard", "depot"} & set(texts)
-    fixed_svg = _figure(render_page(fixed_document()), "transient")
+    fixed_svg = _figure(page_of(fixed_document), "transient")
     texts = re.findall(r"<text[^>]*>([^<]*)</text>", fixed_svg)
     assert {"mix", "proof", "bake", "wrap"} <= set(texts)
 
