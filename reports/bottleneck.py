@@ -17,6 +17,7 @@ from typing import Any
 
 from .graph import critical_place_set
 from .markup import (
+    circuit,
     e,
     fmt,
     get,
@@ -217,13 +218,12 @@ def _against_mean_values(document: Mapping[str, Any], neck: Mapping[str, Any]) -
     circuits = analysis.get("critical_circuits") or []
     if not circuits:
         return ""
-    names = [e(str(t)) for t in circuits[0]]
-    circuit = " → ".join([*names, names[0]])
+    written = circuit(circuits[0])
     if _on_critical(document, neck):
-        return (f"<p>It lies on the critical circuit of the mean durations ({circuit}), "
+        return (f"<p>It lies on the critical circuit of the mean durations ({written}), "
                 "where a mean-value analysis would also look.</p>")
     return (f'<p class="neck-differs"><strong>This differs from the critical circuit of the '
-            f"mean durations</strong> ({circuit}): a mean-value analysis would point there, "
+            f"mean durations</strong> ({written}): a mean-value analysis would point there, "
             "but with the durations' variability this element limits the cycle time most. "
             "That is what a mean-value analysis cannot show.</p>")
 

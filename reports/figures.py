@@ -21,7 +21,8 @@ import re
 from collections.abc import Mapping, Sequence
 from typing import Any
 
-from .layout import BOX_FONT, INCH, PLACE_RADIUS, TOKEN_FONT, Drawing, short_label, token_text
+from .geometry import BOX_FONT, INCH, TOKEN_FONT
+from .layout import PLACE_RADIUS, Drawing, short_label, token_text
 
 __all__ = [
     "graph_figure",

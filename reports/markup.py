@@ -14,8 +14,9 @@ import re
 from collections.abc import Mapping, Sequence
 from typing import Any
 
-__all__ = ["MAX_ROWS", "WIDE", "Figures", "count", "e", "fmt", "get", "hourly", "interval",
-           "is_random", "more", "pct", "section", "table", "time_unit", "with_unit"]
+__all__ = ["MAX_ROWS", "WIDE", "Figures", "circuit", "count", "e", "fmt", "get", "hourly",
+           "interval", "is_random", "more", "pct", "section", "table", "time_unit", "unit_word",
+           "with_unit"]
 
 e = html.escape
 
@@ -62,6 +63,27 @@ def hourly(rate: float, unit: str) -> tuple[float, str] | None:
         return None
     per, factor = known
     return rate * factor, per
+
+
+#: Longest circuit written out in full; longer ones are cut in the middle.
+MAX_CIRCUIT = 8
+
+
+def circuit(ids: Sequence[Any]) -> str:
+    """A circuit closed on its first transition, cut in the middle when long.
+
+    >>> circuit(["a", "b"])
+    'a → b → a'
+    >>> circuit([f"s{i}" for i in range(1, 31)])
+    's1 → s2 → s3 → s4 → … (and 24 more transitions) → s29 → s30 → s1'
+    """
+    names = [e(str(t)) for t in ids]
+    if not names:
+        return "–"
+    if len(names) > MAX_CIRCUIT:
+        left = len(names) - 6
+        names = [*names[:4], f"… ({more(left, 'transition')})", *names[-2:]]
+    return " → ".join([*names, e(str(ids[0]))])
 
 
 def count(n: int, word: str, plural: str | None = None) -> str:

@@ -13,7 +13,7 @@ verification as an appendix.
 from __future__ import annotations
 
 import re
-from collections.abc import Mapping, Sequence
+from collections.abc import Mapping
 from typing import Any
 
 from . import bottleneck, notes, timing
@@ -21,6 +21,7 @@ from .graph import critical_place_set, graph_section
 from .markup import (
     MAX_ROWS,
     Figures,
+    circuit,
     e,
     fmt,
     get,
@@ -97,11 +98,6 @@ def _verdict(document: Mapping[str, Any]) -> str:
             f"{bottleneck.headline(document)}</section>\n")
 
 
-def _circuit_text(circuit: Sequence[str]) -> str:
-    names = [e(str(t)) for t in circuit]
-    return " → ".join([*names, names[0]]) if names else "–"
-
-
 def _per_hour(rate: Any, unit: str) -> str:
     """``; 207.2 per hour`` where the time unit makes a rate per hour easier to read."""
     if not isinstance(rate, int | float):
@@ -138,7 +134,7 @@ def _numbers(document: Mapping[str, Any]) -> str:
     if circuits and not random:
         extra = (f"; {more(len(circuits) - 1, 'critical circuit')}" if len(circuits) > 1
                  else "")
-        cards.append(("Critical circuit", _circuit_text(circuits[0]),
+        cards.append(("Critical circuit", circuit(circuits[0]),
                       "the circuit that sets λ" + extra))
     sides = [("max-plus", analysis, exact), ("SimPy", simulation, False)]
     counted = [(name, _firings(side, is_exact)) for name, side, is_exact in sides
@@ -311,7 +307,7 @@ def _mean_durations(document: Mapping[str, Any]) -> str:
     circuits = analysis.get("critical_circuits") or []
     if circuits:
         extra = f", {more(len(circuits) - 1, 'circuit')}" if len(circuits) > 1 else ""
-        out += (f"<p>Critical circuit of the mean durations: {_circuit_text(circuits[0])}"
+        out += (f"<p>Critical circuit of the mean durations: {circuit(circuits[0])}"
                 f"{extra}. It sets the lower bound; under variability the bottleneck may lie "
                 "elsewhere (see the top of the page).</p>\n")
     if not out:

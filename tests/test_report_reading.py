@@ -165,3 +165,11 @@ def test_cut_lists_say_how_many_were_left_out() -> None:
     assert "(and 4 more terms)" in section_text(page, "algebra")
     assert "the circuit that sets λ; and 2 more critical circuits" in \
         section_text(page, "numbers")
+
+
+@pytest.mark.parametrize("make", [fixed_document, random_document, press_document,
+                                  unstable_document])
+def test_no_python_object_leaks_into_a_page(make: Any) -> None:
+    """Every value on the page is formatted: no repr of a function or an object."""
+    page = page_of(make)
+    assert " at 0x" not in page and "<function" not in page and "None" not in visible_text(page)

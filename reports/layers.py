@@ -1,0 +1,236 @@
+r"""The layered layout of an event graph, folded into bands that fit the page.
+
+igraph's Sugiyama layout (``Graph.layout_sugiyama``; K. Sugiyama, S. Tagawa and M. Toda,
+"Methods for visual understanding of hierarchical system structures", IEEE Transactions on
+Systems, Man, and Cybernetics 11(2), 109–125, 1981) places the transitions. The layers come
+from the places *without* tokens, which form an acyclic graph in a live event graph (a
+token-free circuit is a deadlock), so a firing propagates left to right; igraph then orders
+each layer against crossings, every place (token-carrying ones too) counted. A source sits
+just before the first transition it feeds.
+
+When the layers do not fit :data:`MAX_WIDTH`, they are **folded** into bands of equal length,
+read like lines of text: band 2 continues below band 1. Arcs between neighbouring layers of a
+band are straight (several places between one pair of transitions spread into a lens); every
+other arc leaves its box upwards or downwards into a horizontal corridor between the bands on
+a track of its own, and, when it changes corridor, runs along a vertical lane beside the
+drawing: no long arc crosses the boxes of a band (a box in the middle row of a band of several
+rows can still sit on a corridor arc's way out). Pure geometry, deterministic.
+"""
+
+from __future__ import annotations
+
+import math
+from collections.abc import Sequence
+
+from .drawing import BOX_HEIGHT, Arc, PlaceSpec, stack_loops
+from .geometry import INCH, Point, arc_at, border, line, quadratic, rounded
+
+__all__ = ["GAP_X", "MAX_WIDTH", "ROW", "layered"]
+
+#: Widest drawing, in layout units: 7 inches, inside the A4 and letter text blocks (7.2 in).
+MAX_WIDTH = 7.0 / INCH
+#: Horizontal gap between two layers, vertical pitch of the rows of a band, in layout units.
+GAP_X, ROW = 1.0, 1.8
+#: Spacing of the tracks of a corridor and of the lanes beside the drawing.
+TRACK, LANE = 0.42, 0.4
+
+
+def _sugiyama(nodes: list[str], places: Sequence[PlaceSpec]) -> tuple[dict[str, int],
+                                                                       dict[str, float]]:
+    """Layer and position inside the layer of each node, from igraph's Sugiyama layout."""
+    import igraph
+
+    index = {t: i for i, t in enumerate(nodes)}
+    free = sorted({(index[p.source], index[p.target]) for p in places
+                   if p.tokens == 0 and p.source != p.target})
+    # Layers from the token-free places alone (acyclic in a live graph; igraph breaks any
+    # cycle of a damaged document with the heuristic of Eades, Lin & Smyth).
+    every = sorted({(index[p.source], index[p.target]) for p in places
+                    if p.source != p.target})
+    first = igraph.Graph(n=len(nodes), edges=free, directed=True).layout_sugiyama()
+    layer = {t: round(first.coords[index[t]][1]) for t in nodes}
+    if len(set(layer.values())) == 1 and len(nodes) > 12:
+        # Tokens on every place: no flow to follow. igraph layers all places instead (it
+        # breaks their circuits with the heuristic of Eades, Lin & Smyth).
+        first = igraph.Graph(n=len(nodes), edges=every, directed=True).layout_sugiyama()
+        layer = {t: round(first.coords[index[t]][1]) for t in nodes}
+    # A source sits just before the first transition it feeds, not in layer 0: a second
+    # product line joining a shared vessel is drawn beside the vessel.
+    fed = {nodes[b] for _, b in free}
+    succ: dict[str, list[str]] = {t: [] for t in nodes}
+    for a, b in free:
+        succ[nodes[a]].append(nodes[b])
+    for t in sorted(nodes, key=lambda t: -layer[t]):
+        later = [layer[u] for u in succ[t]]
+        if t not in fed and later:
+            layer[t] = max(layer[t], min(later) - 1)
+    # Positions inside the layers against crossings, every place counted.
+    graph = igraph.Graph(n=len(nodes), edges=every, directed=True)
+    second = graph.layout_sugiyama(layers=[layer[t] for t in nodes])
+    position = {t: float(second.coords[index[t]][0]) for t in nodes}
+    return layer, position
+
+
+
+
+def _assign_tracks(spans: list[tuple[float, float, int]], gap: float) -> dict[int, int]:
+    """Greedy interval colouring: each span (low, high, key) gets the lowest free track."""
+    ends: list[float] = []
+    track: dict[int, int] = {}
+    for low, high, key in sorted(spans):
+        for i, end in enumerate(ends):
+            if end + gap <= low:
+                ends[i] = high
+                track[key] = i
+                break
+        else:
+            track[key] = len(ends)
+            ends.append(high)
+    return track
+
+
+def layered(nodes: list[str], places: Sequence[PlaceSpec], box_width: float,
+             critical_places: set[int]) -> tuple[dict[str, Point], list[Arc], int] | None:
+    layer, position = _sugiyama(nodes, places)
+    n_layers = max(layer.values()) + 1
+    if n_layers == 1:
+        if len(nodes) <= 12:
+            return None  # a small circle reads better
+        # Nothing joins the transitions into layers: one per layer, folded like a line.
+        order = sorted(nodes, key=lambda t: (position[t], nodes.index(t)))
+        layer = {t: i for i, t in enumerate(order)}
+        position = dict.fromkeys(nodes, 0.0)
+        n_layers = len(nodes)
+    pitch = box_width + GAP_X
+    per_band = max(2, int((MAX_WIDTH - box_width) / pitch) + 1)
+    n_bands = math.ceil(n_layers / per_band)
+    per_band = math.ceil(n_layers / n_bands)  # balanced bands
+    band = {t: layer[t] // per_band for t in nodes}
+    column = {t: layer[t] % per_band for t in nodes}
+    # Rows of each band from igraph's positions, shifted to start at 0.
+    low = [min((position[t] for t in nodes if band[t] == b), default=0.0)
+           for b in range(n_bands)]
+    rows = [max((position[t] - low[b] for t in nodes if band[t] == b), default=0.0)
+            for b in range(n_bands)]
+    loops = {p.source for p in places if p.source == p.target}
+    local = {t: (column[t] * pitch, -(position[t] - low[band[t]]) * ROW) for t in nodes}
+    half_w, half_h = box_width / 2, BOX_HEIGHT / 2
+
+    # Which places are drawn inside a band (straight or as a lens) and which in corridors.
+    pairs: dict[tuple[str, str], list[PlaceSpec]] = {}
+    for p in places:
+        if p.source != p.target:
+            lo, hi = sorted((p.source, p.target))
+            pairs.setdefault((lo, hi), []).append(p)
+
+    def near(a: str, b: str) -> bool:
+        if band[a] != band[b]:
+            return False
+        dl = abs(layer[a] - layer[b])
+        if dl == 1:
+            return True
+        return dl == 0 and abs(position[a] - position[b]) <= 1.0 + 1e-9
+
+    inside = [p for ps in pairs.values() for p in ps if near(p.source, p.target)]
+    corridor_places = [p for ps in pairs.values() for p in ps if not near(p.source, p.target)]
+    bows: dict[int, float] = {}
+    for (lo, _hi), ps in pairs.items():
+        members = sorted((p for p in ps if near(p.source, p.target)),
+                         key=lambda p: (p.source != lo, p.index))
+        for k, p in enumerate(members):
+            offset = (k - (len(members) - 1) / 2) * 0.55
+            bows[p.index] = offset if p.source == lo else -offset
+
+    # Vertical extent of each band in local coordinates: boxes, self-loops, lenses, labels.
+    top = [half_h + (1.05 if any(t in loops and band[t] == b and position[t] == low[b]
+                                  for t in nodes) else 0.45) for b in range(n_bands)]
+    bottom = [-rows[b] * ROW - half_h - 0.55 for b in range(n_bands)]
+    # Corridor tracks: each corridor place picks its corridors first, then tracks are assigned.
+    plan: dict[int, tuple[int, int]] = {}
+    for p in corridor_places:
+        a, b = band[p.source], band[p.target]
+        if a == b:
+            r = max(position[p.source], position[p.target]) - low[a]
+            below = not (rows[a] > 0 and r < rows[a] / 2)
+            c = a + 1 if below else a
+            plan[p.index] = (c, c)
+        else:
+            plan[p.index] = (a + 1 if b > a else a, b if b > a else b + 1)
+    spans: dict[int, list[tuple[float, float, int]]] = {}
+    lane_spans: dict[str, list[tuple[float, float, int]]] = {"left": [], "right": []}
+    x_of = {t: local[t][0] for t in nodes}
+    full = [x_of[t] for t in nodes]
+    xmin, xmax = min(full) - half_w, max(full) + half_w
+    side: dict[int, str] = {}
+    for p in corridor_places:
+        c1, c2 = plan[p.index]
+        xa, xb = x_of[p.source], x_of[p.target]
+        if c1 == c2:
+            spans.setdefault(c1, []).append((min(xa, xb) - 0.1, max(xa, xb) + 0.1, p.index))
+            continue
+        side[p.index] = "left" if (xa + xb) / 2 <= (xmin + xmax) / 2 else "right"
+        edge = xmin if side[p.index] == "left" else xmax
+        spans.setdefault(c1, []).append((min(xa, edge), max(xa, edge), p.index))
+        spans.setdefault(c2, []).append((min(xb, edge), max(xb, edge), p.index))
+        lane_spans[side[p.index]].append((min(c1, c2), max(c1, c2), p.index))
+    tracks = {c: _assign_tracks(s, 0.5) for c, s in spans.items()}
+    n_tracks = [max(tracks.get(c, {0: -1}).values(), default=-1) + 1 for c in range(n_bands + 1)]
+    # Stack the bands: corridor c between band c-1 and band c is as high as its tracks.
+    offset, band_shift = 0.0, []
+    band_top: list[float] = []
+    band_bottom: list[float] = []
+    for b in range(n_bands):
+        if b > 0:
+            offset -= n_tracks[b] * TRACK + 0.2
+        shift = offset - top[b]
+        band_shift.append(shift)
+        band_top.append(shift + top[b])
+        band_bottom.append(shift + bottom[b])
+        offset = band_bottom[-1]
+    positions = {t: (local[t][0], local[t][1] + band_shift[band[t]]) for t in nodes}
+
+    def corridor_y(c: int, track: int) -> float:
+        if c == 0:
+            return band_top[0] + (track + 0.7) * TRACK
+        return band_bottom[c - 1] - (track + 0.7) * TRACK
+
+    lanes = {s: _assign_tracks([(lo, hi, k) for lo, hi, k in v], 1)
+             for s, v in lane_spans.items()}
+    arcs: dict[int, Arc] = {}
+    for p in inside:
+        a, b = positions[p.source], positions[p.target]
+        dx, dy = b[0] - a[0], b[1] - a[1]
+        length = math.hypot(dx, dy)
+        nx, ny = -dy / length, dx / length
+        bow = bows[p.index]
+        control = ((a[0] + b[0]) / 2 + bow * nx, (a[1] + b[1]) / 2 + bow * ny)
+        start, end = border(a, control, half_w, half_h), border(b, control, half_w, half_h)
+        points = quadratic(start, control, end) if bow else line(start, end)
+        mid, normal = arc_at(points)
+        if bow < 0:
+            normal = (-normal[0], -normal[1])
+        arcs[p.index] = Arc(p.index, p.source, p.target, p.tokens, tuple(points), mid, normal,
+                            p.index in critical_places)
+    for p in corridor_places:
+        c1, c2 = plan[p.index]
+        a, b = positions[p.source], positions[p.target]
+        y1 = corridor_y(c1, tracks[c1][p.index])
+        y2 = corridor_y(c2, tracks[c2][p.index])
+        start = (a[0], a[1] + math.copysign(half_h + 0.06, y1 - a[1]))
+        end = (b[0], b[1] + math.copysign(half_h + 0.06, y2 - b[1]))
+        if c1 == c2:
+            waypoints = [start, (a[0], y1), (b[0], y1), end]
+        else:
+            k = lanes[side[p.index]][p.index]
+            lane_x = (xmin - (k + 1) * LANE if side[p.index] == "left"
+                      else xmax + (k + 1) * LANE)
+            waypoints = [start, (a[0], y1), (lane_x, y1), (lane_x, y2), (b[0], y2), end]
+        points = rounded(waypoints)
+        mid, normal = arc_at(points)
+        arcs[p.index] = Arc(p.index, p.source, p.target, p.tokens, tuple(points), mid, normal,
+                            p.index in critical_places)
+    stack_loops(arcs, places, positions, half_h, critical_places,
+                 {t: 1.0 for t in nodes})
+    return positions, [arcs[p.index] for p in places], n_bands
+
+
