@@ -314,7 +314,7 @@ def _mean_durations(document: Mapping[str, Any]) -> str:
         return ""
     out += ('<p class="note">The slack in the tables, the ◆ marks and the thick circuit in the '
             "event graph belong to the mean durations too; the appendix verifies their "
-            "analysis algebraically. None of them is an estimate of this model.</p>\n")
+            "analysis algebraically. They are not estimates of this model.</p>\n")
     return section("mean-durations", "Of the mean durations: a lower bound, not the answer",
                    out)
 
