@@ -8,13 +8,16 @@ token-free circuit is a deadlock), so a firing propagates left to right; igraph 
 each layer against crossings, every place (token-carrying ones too) counted. A source sits
 just before the first transition it feeds.
 
-When the layers do not fit :data:`MAX_WIDTH`, they are **folded** into bands of equal length,
-read like lines of text: band 2 continues below band 1. Arcs between neighbouring layers of a
-band are straight (several places between one pair of transitions spread into a lens); every
-other arc leaves its box upwards or downwards into a horizontal corridor between the bands on
-a track of its own, and, when it changes corridor, runs along a vertical lane beside the
-drawing: no long arc crosses the boxes of a band (a box in the middle row of a band of several
-rows can still sit on a corridor arc's way out). Pure geometry, deterministic.
+When the layers do not fit, they are **folded** into bands of equal length, read like lines
+of text: band 2 continues below band 1. The number of bands is the one that prints largest on
+A4 and letter, the drawing no wider than the page's column on screen (:func:`_bands`).
+
+Arcs between neighbouring layers of a band are straight (several places between one pair of
+transitions spread into a lens); every other arc leaves its box upwards or downwards into a
+horizontal corridor between the bands on a track of its own, and, when it changes corridor,
+runs along a vertical lane beside the drawing: no long arc crosses the boxes of a band (a box
+in the middle row of a band of several rows can still sit on a corridor arc's way out). Pure
+geometry, deterministic.
 """
 
 from __future__ import annotations
@@ -25,10 +28,14 @@ from collections.abc import Sequence
 from .drawing import BOX_HEIGHT, Arc, PlaceSpec, stack_loops
 from .geometry import INCH, Point, arc_at, border, line, quadratic, rounded
 
-__all__ = ["GAP_X", "MAX_WIDTH", "ROW", "layered"]
+__all__ = ["GAP_X", "MAX_WIDTH", "PRINT_HEIGHT", "PRINT_WIDTH", "ROW", "layered",
+           "print_scale"]
 
-#: Widest drawing, in layout units: 7 inches, inside the A4 and letter text blocks (7.2 in).
-MAX_WIDTH = 7.0 / INCH
+#: Widest drawing, in layout units: 9 inches (864 px), inside the page's column on screen.
+MAX_WIDTH = 9.0 / INCH
+#: Room for a figure on paper, in inches: the A4 text block is 184 mm wide (letter's 190 mm),
+#: and the style sheet gives the event graph 180 mm of height (title and caption fit beside).
+PRINT_WIDTH, PRINT_HEIGHT = 184 / 25.4, 180 / 25.4
 #: Horizontal gap between two layers, vertical pitch of the rows of a band, in layout units.
 GAP_X, ROW = 1.0, 1.8
 #: Spacing of the tracks of a corridor and of the lanes beside the drawing.
@@ -89,6 +96,29 @@ def _assign_tracks(spans: list[tuple[float, float, int]], gap: float) -> dict[in
     return track
 
 
+def print_scale(width: float, height: float) -> float:
+    """How much a drawing of this size (layout units) shrinks on paper, at most 1."""
+    return min(1.0, PRINT_WIDTH / (width * INCH), PRINT_HEIGHT / (height * INCH))
+
+
+def _bands(n_layers: int, pitch: float, box_width: float, rows_height: float) -> int:
+    """The number of bands that prints largest: the drawing no wider than the screen's
+    column (:data:`MAX_WIDTH`), and as little shrunk on A4 or letter as its shape allows;
+    among equals, the fewest bands. A band's height is estimated before the routing: its rows,
+    the self-loops above, the lenses below and a corridor of two tracks."""
+    band_height = rows_height + 3.2
+    best, chosen = -1.0, 1
+    for n in range(1, n_layers + 1):
+        per = math.ceil(n_layers / n)
+        width = (per - 1) * pitch + box_width + 2 * LANE
+        if width > MAX_WIDTH and per > 2:
+            continue
+        scale = print_scale(width, n * band_height)
+        if scale > best + 1e-9:
+            best, chosen = scale, n
+    return chosen
+
+
 def layered(nodes: list[str], places: Sequence[PlaceSpec], box_width: float,
              critical_places: set[int]) -> tuple[dict[str, Point], list[Arc], int] | None:
     layer, position = _sugiyama(nodes, places)
@@ -102,8 +132,8 @@ def layered(nodes: list[str], places: Sequence[PlaceSpec], box_width: float,
         position = dict.fromkeys(nodes, 0.0)
         n_layers = len(nodes)
     pitch = box_width + GAP_X
-    per_band = max(2, int((MAX_WIDTH - box_width) / pitch) + 1)
-    n_bands = math.ceil(n_layers / per_band)
+    spread = max(position.values()) - min(position.values())
+    n_bands = _bands(n_layers, pitch, box_width, spread * ROW)
     per_band = math.ceil(n_layers / n_bands)  # balanced bands
     band = {t: layer[t] // per_band for t in nodes}
     column = {t: layer[t] % per_band for t in nodes}

@@ -55,7 +55,10 @@ from .geometry import (
     quadratic,
     text_size,
 )
-from .layers import GAP_X, MAX_WIDTH, layered
+from .layers import GAP_X, layered
+
+#: Largest ring drawn as a circle; a longer one is laid out in layers and folded.
+MAX_CIRCLE = 12
 
 __all__ = [
     "INCH",
@@ -248,7 +251,7 @@ def layout_graph(
     box_width = max(0.8, max(text_size(s, BOX_FONT, True)[0] for s in texts.values()) + 0.3)
     critical_places = critical_places or set()
     ring = _is_ring(chosen, drawn)
-    small_ring = ring is not None and len(ring) * (box_width + GAP_X) / math.pi <= MAX_WIDTH
+    small_ring = ring is not None and len(ring) <= MAX_CIRCLE
     result = None if small_ring else layered(chosen, drawn, box_width, critical_places)
     kind, bands = "layered", 1
     if result is None:

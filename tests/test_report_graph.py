@@ -16,6 +16,7 @@ from pathlib import Path
 from typing import Any
 
 from cyclecheck.reports import layout, render_page
+from cyclecheck.reports.layers import print_scale
 from hypothesis import HealthCheck, given, settings
 
 from tests.report_documents import line_document
@@ -31,15 +32,18 @@ def _specs(document: dict[str, Any]) -> tuple[list[str], list[layout.PlaceSpec]]
 
 
 def test_a_long_line_is_folded_into_bands_that_fit_the_page() -> None:
-    """30 and 60 stations: several bands, no wider than 7 inches (the A4 text block is
-    184 mm = 7.24 in, letter's 190 mm), read like text: every token-free place leads to a
-    later position in reading order (band by band, left to right)."""
-    for n in (30, 60):
+    """30 and 60 stations: several bands, no wider than the screen's column (9 in), printed
+    on A4 (text block 184 mm wide, the graph up to 180 mm high) at full size for 30 stations
+    and at least at 75 % for 60 (8 pt ids, 7 pt labels: no less than 6 and 5.2 pt on paper),
+    read like text: every token-free place leads to a later position in reading order
+    (band by band, left to right)."""
+    for n, smallest in ((30, 1.0), (60, 0.75)):
         ids, places = _specs(line_document(n))
         drawing = layout.layout_graph(ids, places, [["s17"]])
         assert drawing.kind == "layered" and drawing.bands >= 3
-        xmin, xmax, _, _ = drawing.bounds()
-        assert (xmax - xmin) * layout.INCH <= 7.0 + 1e-9
+        xmin, xmax, ymin, ymax = drawing.bounds()
+        assert (xmax - xmin) * layout.INCH <= 9.0 + 1e-9
+        assert print_scale(xmax - xmin, ymax - ymin + 0.6) >= smallest  # with the legend
         rows = sorted({y for _, y in drawing.nodes.values()}, reverse=True)
         assert len(rows) == drawing.bands  # one row per band for a line
         reading = {t: (rows.index(y), x) for t, (x, y) in drawing.nodes.items()}
