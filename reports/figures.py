@@ -29,7 +29,6 @@ __all__ = [
     "replications_figure",
     "running_estimate_figure",
     "schedule_figure",
-    "transient_band_figure",
     "transient_figure",
 ]
 
@@ -253,16 +252,29 @@ def schedule_figure(
     return _render(key, "Periodic schedule over two cycles", draw, 7.2, height + 0.5)
 
 
+def _transient_axes(ax: Any, time_unit: str) -> None:
+    """The axes of x(k) − kλ: whole firing numbers, the time unit on the vertical axis."""
+    from matplotlib.ticker import MaxNLocator
+
+    ax.set_xlabel("firing number k")
+    ax.xaxis.set_major_locator(MaxNLocator(integer=True))
+    unit = f" ({time_unit})" if time_unit else ""
+    ax.set_ylabel(_plain(f"x(k) − kλ{unit}"))
+
+
 def transient_figure(
     k: Sequence[float],
     recursion: Mapping[str, Sequence[float]],
     simulation: Mapping[str, Sequence[float]] | None,
     time_unit: str,
     key: str = "transient",
+    band: bool = False,
 ) -> str:
-    """x(k) − kλ against k: recursion as lines, simulation as hollow markers on top."""
+    """x(k) − kλ against k: recursion as lines, simulation as hollow markers on top; with
+    ``band`` (random durations) the band over the transitions and its median instead."""
+    if band:
+        return _transient_band(k, recursion, simulation, time_unit, key)
     from matplotlib.lines import Line2D
-    from matplotlib.ticker import MaxNLocator
 
     names = list(recursion)[:MAX_SERIES]
 
@@ -277,10 +289,7 @@ def transient_figure(
                 ax.plot(k, simulation[name], linestyle="none", marker=MARKERS[i],
                         markersize=7, markerfacecolor="none", markeredgecolor=SERIES[i],
                         markeredgewidth=0.9, markevery=every)
-        ax.set_xlabel("firing number k")
-        ax.xaxis.set_major_locator(MaxNLocator(integer=True))
-        unit = f" ({time_unit})" if time_unit else ""
-        ax.set_ylabel(_plain(f"x(k) − kλ{unit}"))
+        _transient_axes(ax, time_unit)
         fig.legend(loc="outside right upper", fontsize=7.5, title="transition",
                    title_fontsize=7.5)
         how = [Line2D([], [], color=INK, linewidth=1.3, label="max-plus recursion (line)")]
@@ -292,18 +301,13 @@ def transient_figure(
     return _render(key, "Transient: x(k) minus k times the cycle time", draw, 7.2, 3.3)
 
 
-def transient_band_figure(
-    k: Sequence[float],
-    recursion: Mapping[str, Sequence[float]],
-    simulation: Mapping[str, Sequence[float]] | None,
-    time_unit: str,
-    key: str = "transient",
-) -> str:
+def _transient_band(k: Sequence[float], recursion: Mapping[str, Sequence[float]],
+                    simulation: Mapping[str, Sequence[float]] | None, time_unit: str,
+                    key: str) -> str:
     """x(k) − kλ of a random model: the band over the transitions (smallest to largest at
     each k) and its median, the recursion's as a line, the simulation's as rings."""
     from matplotlib.lines import Line2D
     from matplotlib.patches import Patch
-    from matplotlib.ticker import MaxNLocator
 
     def spread(curves: Mapping[str, Sequence[float]]) -> tuple[list[float], ...]:
         columns = list(zip(*curves.values(), strict=True))
@@ -327,10 +331,7 @@ def transient_band_figure(
                     markevery=every)
             how.append(Line2D([], [], color=SIM, linestyle="none", marker="o", markersize=6,
                               markerfacecolor="none", label="median, SimPy simulation (ring)"))
-        ax.set_xlabel("firing number k")
-        ax.xaxis.set_major_locator(MaxNLocator(integer=True))
-        unit = f" ({time_unit})" if time_unit else ""
-        ax.set_ylabel(_plain(f"x(k) − kλ{unit}"))
+        _transient_axes(ax, time_unit)
         fig.legend(handles=how, loc="outside lower center", ncols=3, fontsize=7.5)
 
     return _render(key, "Firing times less k times the cycle time: band over the transitions",

@@ -67,7 +67,8 @@ def transient(document: Mapping[str, Any], figs: Figures) -> str:
     simulation = {str(k): v for k, v in (data.get("simulation") or {}).items()}
     analysis = get(document, "analysis") or {}
     if is_random(document):
-        svg = figures.transient_band_figure(data["k"], recursion, simulation or None, unit)
+        svg = figures.transient_figure(data["k"], recursion, simulation or None, unit,
+                                       band=True)
         rings = (" Rings: the median of the SimPy simulation on the same draws; when they sit "
                  "on the line, both engines computed the same times." if simulation else "")
         caption = ("x(k) − kλ against the firing number k, on the random draws of one "
