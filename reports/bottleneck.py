@@ -98,6 +98,8 @@ def _mean(document: Mapping[str, Any], entry: Mapping[str, Any]) -> float | None
 
 
 def _on_critical(document: Mapping[str, Any], entry: Mapping[str, Any]) -> bool:
+    if isinstance(entry.get("on_mean_critical_circuit"), bool):
+        return bool(entry["on_mean_critical_circuit"])
     analysis = get(document, "analysis") or get(document, "simulation") or {}
     circuits = analysis.get("critical_circuits") or []
     if entry.get("element") == "place":
@@ -112,6 +114,16 @@ def _interval(entry: Mapping[str, Any], exact: bool, digits: int = 4) -> str:
     return f" (95 % interval {interval(low, high, digits)})"
 
 
+def _growth(item: Mapping[str, Any], unit: str) -> str:
+    rate = item.get("growth_rate")
+    if rate is None:
+        return "grows without bound"
+    per_hour = hourly(float(rate), unit)
+    if per_hour is not None:
+        return f"grows by {fmt(per_hour[0])} tokens per {per_hour[1]}"
+    return f"grows by {fmt(rate)} tokens per {e(unit) if unit else 'time unit'}"
+
+
 def warning(document: Mapping[str, Any]) -> str:
     """The warning of an unstable model, first on the page ("" for a stable one)."""
     places = results(document).get("unbounded_places") or []
@@ -120,23 +132,31 @@ def warning(document: Mapping[str, Any]) -> str:
     unit = time_unit(document)
     lines = []
     for item in places[:MAX_UNSTABLE]:
-        rate = float(item["growth_rate"])
-        per_hour = hourly(rate, unit)
-        if per_hour is not None:
-            amount = f"{fmt(per_hour[0])} tokens per {per_hour[1]}"
-        else:
-            amount = f"{fmt(rate)} tokens per {e(unit) if unit else 'time unit'}"
         place = _place(document, int(item["index"]))
         label = f" (“{e(str(place['label']))}”)" if place and place.get("label") else ""
-        lines.append(f"<li><strong>Unstable: the buffer {e(str(item['from']))} → "
-                     f"{e(str(item['to']))}{label} grows by {amount}</strong> (place "
-                     f"{fmt(int(item['index']))}): {e(str(item['from']))} fires faster than "
-                     f"{e(str(item['to']))} takes its tokens.</li>")
+        source, target = e(str(item["from"])), e(str(item["to"]))
+        name = f"the buffer {source} → {target}{label}"
+        if item.get("status") == "critical load":
+            head = (f"Critical load: {name} is fed as fast as it is emptied, within the "
+                    "precision of the estimate; at equal rates a random buffer grows without "
+                    "bound, like the square root of time")
+        else:
+            head = f"Unstable: {name} {_growth(item, unit)}"
+        rates = ""
+        if item.get("from_cycle_time") is not None and item.get("to_cycle_time") is not None:
+            rates = (f": {source} fires every {with_unit(fmt(item['from_cycle_time']), unit)}, "
+                     f"{target} every {with_unit(fmt(item['to_cycle_time']), unit)}")
+        elif item.get("status") != "critical load":
+            rates = f": {source} fires faster than {target} takes its tokens"
+        lines.append(f"<li><strong>{head}</strong> (place {fmt(int(item['index']))}){rates}."
+                     "</li>")
     if len(places) > MAX_UNSTABLE:
         lines.append(f"<li>{more(len(places) - MAX_UNSTABLE, 'growing place')}.</li>")
+    unstable = any(item.get("status") != "critical load" for item in places)
+    title = "The model is unstable" if unstable else "The model is at critical load"
     return ('<section id="unstable" class="alarm" aria-labelledby="unstable-heading">\n'
             '<h2 id="unstable-heading" class="alarm-word"><span class="mark" '
-            'aria-hidden="true">⚠</span> The model is unstable</h2>\n<ul>'
+            f'aria-hidden="true">⚠</span> {title}</h2>\n<ul>'
             + "".join(lines) + "</ul>\n<p>Such a place has no steady state: a real buffer "
             "overflows or blocks its source. Transitions on either side run at different "
             "cycle times, and averages taken from a simulation depend on its length. Give the "
@@ -144,50 +164,76 @@ def warning(document: Mapping[str, Any]) -> str:
             "reading the numbers below.</p>\n</section>\n")
 
 
+def _exact(document: Mapping[str, Any], side: Mapping[str, Any]) -> bool:
+    """Exact derivatives: the document says so, or the durations are fixed."""
+    flag = side.get("sensitivity_exact")
+    return flag if isinstance(flag, bool) else not is_random(document)
+
+
 def headline(document: Mapping[str, Any]) -> str:
     """The bottleneck statement, for the verdict area."""
-    out = ""
     side = results(document)
     neck = side.get("bottleneck")
     if not isinstance(neck, Mapping):
-        return out
+        return ""
     unit = time_unit(document)
     random = is_random(document)
-    what = "mean hold" if neck.get("element") == "place" else (
-        "mean duration" if random else "duration")
-    if neck.get("element") == "place" and not random:
-        what = "hold"
+    exact = _exact(document, side)
+    place = neck.get("element") == "place"
+    what = ("mean " if random else "") + ("hold" if place else "duration")
     derivative = neck.get("derivative")
-    lines = [f'<p class="neck-name"><strong>Bottleneck: {element_text(document, neck)}</strong>'
-             f"{'' if random else ' (exact)'}</p>"]
     word = e(unit_word(unit))
-    lines.append(f"<p>dλ/d({what}) = {fmt(derivative)}{_interval(neck, not random)}: "
+    lines = [f'<p class="neck-name"><strong>Bottleneck: {element_text(document, neck)}</strong>'
+             f"{' (exact)' if exact else ''}</p>"]
+    lines.append(f"<p>dλ/d({what}) = {fmt(derivative)}{_interval(neck, exact)}: "
                  f"each {word} added to its {what} adds {fmt(derivative)} {word} to the "
                  "cycle time.</p>")
-    faster = neck.get("cycle_time_if_10_percent_faster")
-    if faster is not None:
-        mean = _mean(document, neck)
-        change = (f" ({what} {with_unit(fmt(mean), unit)} → "
-                  f"{with_unit(fmt(0.9 * float(mean)), unit)})" if mean else "")
-        ci = neck.get("cycle_time_if_10_percent_faster_ci")
-        ci_text = (f" (95 % interval {interval(ci[0], ci[1])})"
-                   if random and isinstance(ci, Sequence) and len(ci) == 2 else "")
-        lam = side.get("cycle_time")
-        now = f", instead of {with_unit(fmt(lam, 4 if random else 6), unit)}" if lam else ""
-        lines.append(f"<p>10 % faster{change}: cycle time "
-                     f"{with_unit(fmt(faster, 4 if random else 6), unit)}{ci_text}{now}.</p>")
-    lines.append(_ties(document, side, neck, random))
+    low, high = (neck.get("ci") or [None, None])[:2]
+    if exact and low is not None and high is not None and low != high:
+        lines.append(f"<p>Shortening it changes λ by {fmt(low)} per {word}, lengthening it by "
+                     f"{fmt(high)}: several critical circuits meet here.</p>")
+    lines.append(_faster(document, side, neck, what, random))
+    lines.append(_ties(side, neck, exact))
     if random:
         lines.append(_against_mean_values(document, neck))
-    return out + ('<div class="neck">\n' + "\n".join(x for x in lines if x) + "\n</div>\n")
+    return '<div class="neck">\n' + "\n".join(x for x in lines if x) + "\n</div>\n"
 
 
-def _ties(document: Mapping[str, Any], side: Mapping[str, Any], neck: Mapping[str, Any],
-          random: bool) -> str:
+def _faster(document: Mapping[str, Any], side: Mapping[str, Any], neck: Mapping[str, Any],
+            what: str, random: bool) -> str:
+    """What the cycle time would be with the bottleneck 10 % faster (when the document says)."""
+    unit = time_unit(document)
+    first_order = neck.get("faster_10_percent")
+    faster = neck.get("cycle_time_if_10_percent_faster")
+    if faster is None and isinstance(first_order, Mapping):
+        faster = first_order.get("cycle_time")
+    if faster is None:
+        return ""
+    mean = neck.get("mean")
+    if mean is None:
+        mean = _mean(document, neck)
+    change = (f" ({what} {with_unit(fmt(mean), unit)} → "
+              f"{with_unit(fmt(0.9 * float(mean)), unit)})" if mean else "")
+    ci = neck.get("cycle_time_if_10_percent_faster_ci")
+    ci_text = (f" (95 % interval {interval(ci[0], ci[1])})"
+               if random and isinstance(ci, Sequence) and len(ci) == 2 else "")
+    how = (" to first order (from the derivative)" if isinstance(first_order, Mapping)
+           and neck.get("cycle_time_if_10_percent_faster") is None else "")
+    lam = side.get("cycle_time")
+    digits = 4 if random else 6
+    now = f", instead of {with_unit(fmt(lam, digits), unit)}" if lam else ""
+    return (f"<p>10 % faster{change}: cycle time {with_unit(fmt(faster, digits), unit)}"
+            f"{how}{ci_text}{now}.</p>")
+
+
+def _ties(side: Mapping[str, Any], neck: Mapping[str, Any], exact: bool) -> str:
     """Other elements the data cannot rank below the bottleneck."""
-    entries = [s for s in side.get("sensitivity") or [] if not _same(s, neck)]
-    value = float(neck.get("derivative") or 0.0)
-    if not random:
+    entries = [s for s in side.get("sensitivity") or []
+               if not _same(s, neck) and s.get("derivative") is not None]
+    if neck.get("derivative") is None:
+        return ""
+    value = float(neck["derivative"])
+    if exact:
         equal = [s for s in entries
                  if abs(float(s["derivative"]) - value) <= TIE * max(1.0, abs(value))]
         if not equal or value == 0:
@@ -233,35 +279,50 @@ def _sensitivity_table(document: Mapping[str, Any], side: Mapping[str, Any]) -> 
     if not entries:
         return ""
     random = is_random(document)
-    ranked = sorted(enumerate(entries), key=lambda item: (-float(item[1]["derivative"]),
-                                                          item[0]))
-    shown = ranked[:MAX_SENSITIVITY]
+    exact = _exact(document, side)
+
+    def rank(item: tuple[int, Mapping[str, Any]]) -> tuple[bool, float, int]:
+        d = item[1].get("derivative")
+        return (d is None, -float(d) if d is not None else 0.0, item[0])
+
+    shown = sorted(enumerate(entries), key=rank)[:MAX_SENSITIVITY]
+    # Fixed durations: [decrease, increase] differ where critical circuits tie.
+    one_sided = exact and any((s.get("ci") or [None, None])[0] != (s.get("ci") or [0, 0])[1]
+                              for _, s in shown)
     basis = " of the mean durations" if random else ""
     headers = ["Rank", "Element", "dλ/d(mean)" if random else "dλ/d(value)"]
-    if random:
+    if not exact:
         headers.append("95 % interval")
+    elif one_sided:
+        headers.append("Shorter / longer")
     headers.append(f"On the critical circuit{basis}")
     rows = []
-    for rank, (_, entry) in enumerate(shown, start=1):
-        row = [fmt(rank), element_text(document, entry), fmt(entry["derivative"])]
-        if random:
-            low, high = entry.get("ci") or [None, None]
+    for n, (_, entry) in enumerate(shown, start=1):
+        row = [fmt(n), element_text(document, entry), fmt(entry.get("derivative"))]
+        low, high = (entry.get("ci") or [None, None])[:2]
+        if not exact:
             row.append(interval(low, high))
+        elif one_sided:
+            row.append(f"{fmt(low)} / {fmt(high)}")
         row.append("◆ yes" if _on_critical(document, entry) else "no")
         rows.append(row)
-    numeric = {0, 2, 3} if random else {0, 2}
+    numeric = {0, 2, 3} if len(headers) == 5 else {0, 2}
     out = table(headers, rows, numeric, "Sensitivity of the cycle time, largest first")
-    if len(entries) > len(shown):
-        out += (f'<p class="note">{more(len(entries) - len(shown), "element").capitalize()}'
-                " with smaller derivatives; the result document has them all.</p>\n")
+    left = len(entries) - len(shown) + int(side.get("sensitivity_omitted") or 0)
+    if left > 0:
+        out += (f'<p class="note">{more(left, "element").capitalize()} with smaller '
+                "derivatives" + ("" if side.get("sensitivity_omitted") else
+                                 "; the result document has them all") + ".</p>\n")
     what = "mean duration (a transition) or mean hold (a place)" if random else (
         "duration (a transition) or hold (a place)")
     out += (f"<p>dλ/d(…): how much the cycle time grows per time unit added to an element's "
             f"{what}, a number without unit (time per time). 0.5 means: one "
             f"{e(unit_word(time_unit(document)))} more there costs half of one per "
             "cycle; 0 means the element does not limit the cycle time at this operating "
-            "point." + (" Estimated from the simulation, with 95 % intervals." if random else
-                        " Exact for fixed durations.") + "</p>\n")
+            "point." + (" Exact for fixed durations" + (
+                "; where critical circuits tie, shortening and lengthening an element differ "
+                "(column “shorter / longer”)" if one_sided else "") + "." if exact else
+                " Estimated from the simulation, with 95 % intervals.") + "</p>\n")
     return out
 
 
@@ -273,6 +334,7 @@ def _utilization(document: Mapping[str, Any]) -> str:
     if not sides:
         return ""
     servers = analysis.get("servers") or simulation.get("servers")
+    busy = analysis.get("busy_servers") or simulation.get("busy_servers")
     first = sides[0][1]
     labels = {str(t["id"]): t.get("label") for t in document["model"]["transitions"]}
     ids = sorted(first, key=lambda t: (-(first[t] if first[t] is not None else -1.0),
@@ -291,7 +353,9 @@ def _utilization(document: Mapping[str, Any]) -> str:
         row += [pct(values.get(t)) for _, values in sides]
         if servers is not None:
             n = servers.get(t)
-            row.append(fmt(n) if n is not None else "no limit")
+            in_progress = (busy or {}).get(t)
+            row.append(fmt(n) if n is not None else "no limit" if in_progress is None else
+                       f"no limit ({fmt(in_progress)} busy)")
         rows.append(row)
     numeric = set(range(len(headers))) - {0, 1} if "Label" in headers else set(
         range(1, len(headers)))
@@ -302,9 +366,10 @@ def _utilization(document: Mapping[str, Any]) -> str:
     if servers is not None:
         meaning = ("Utilization is the mean number of busy servers divided by the number of "
                    "servers (the tokens on the transition's self-loop; “no limit” where there "
-                   "is none, so firings may overlap): at 100 % the servers never rest, and "
-                   "the cycle time cannot drop unless that transition gets faster or more "
-                   "servers.")
+                   "is none, so firings overlap as tokens allow"
+                   + (", with the mean number in progress" if busy else "") + "): at 100 % "
+                   "the servers never rest, and the cycle time cannot drop unless that "
+                   "transition gets faster or more servers.")
     else:
         meaning = ("Utilization is the share of time a transition was busy, per server: at "
                    "100 % it never rests, and the cycle time cannot drop unless it gets "

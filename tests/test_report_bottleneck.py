@@ -175,8 +175,11 @@ def _fixed(change: Any) -> dict[str, Any]:
          "analysis.sensitivity[1].ci", "must be a list of 2 values, not 1"),
         (lambda d: d["analysis"]["sensitivity"][1].update(derivative=float("nan")),
          "analysis.sensitivity[1].derivative", "must be a finite number"),
-        (lambda d: d["analysis"]["bottleneck"].update(derivative=0.1),
-         "analysis.bottleneck.derivative", "must be the largest derivative"),
+        (lambda d: d["analysis"]["bottleneck"].update(faster_10_percent={"cycle_time": "x"}),
+         "analysis.bottleneck.faster_10_percent.cycle_time", "must be a number"),
+        (lambda d: d["analysis"].update(unbounded_places=[
+            {"index": 3, "from": "bake", "to": "check", "status": "growing"}]),
+         "analysis.unbounded_places[0].status", "must be 'unstable' or 'critical load'"),
         (lambda d: d["analysis"]["bottleneck"].update(cycle_time_if_10_percent_faster="13"),
          "analysis.bottleneck.cycle_time_if_10_percent_faster", "must be a number"),
         (lambda d: d["analysis"].update(unbounded_places=[
@@ -235,3 +238,47 @@ def test_a_random_bottleneck_without_interval_or_faster_value() -> None:
     text = section_text(render_page(document), "verdict")
     assert "dλ/d(mean duration) = 0.61: each minute" in text
     assert "10 % faster" not in text and "other elements overlap" not in text
+
+
+def test_the_builders_spelling_of_the_keys() -> None:
+    """The keys as the document builder writes them: the bottleneck's ``faster_10_percent``
+    (a first-order value), ``mean`` and ``on_mean_critical_circuit``; one-sided derivatives
+    [decrease, increase] of a fixed model where circuits tie; a derivative the estimate could
+    not give (null); ``sensitivity_omitted``; an unbounded place at critical load with no
+    rate; ``busy_servers`` of a transition without a self-loop. The numbers are invented;
+    the 10 % line is 0.9 × 12 = 10.8 and the value the document gives."""
+    document = fixed_document()
+    analysis = document["analysis"]
+    neck = analysis["bottleneck"]
+    del neck["cycle_time_if_10_percent_faster"]
+    neck.update(mean=12.0, name="bake", on_mean_critical_circuit=True, ci=[0.25, 1 / 3],
+                faster_10_percent={"mean": 10.8, "cycle_time": 13.2, "change": -0.3})
+    analysis["sensitivity"][2]["ci"] = [0.25, 1 / 3]
+    analysis["sensitivity"][3]["derivative"] = None
+    analysis.update(sensitivity_exact=True, sensitivity_omitted=100,
+                    busy_servers={"check": 0.4}, unbounded_places=[
+                        {"index": 3, "from": "bake", "to": "check", "growth_rate": None,
+                         "status": "critical load", "from_cycle_time": 13.5,
+                         "to_cycle_time": 13.5, "text": "critical load: ..."}])
+    analysis["servers"]["check"] = None
+    analysis["utilization"]["check"] = None
+    document["simulation"]["utilization"]["check"] = None
+    page = page_of(lambda: document)
+    top = section_text(page, "verdict")
+    assert ("10 % faster (duration 12 min → 10.8 min): cycle time 13.2 min to first order "
+            "(from the derivative), instead of 13.5 min.") in top
+    assert "Shortening it changes λ by 0.25 per minute, lengthening it by 0.3333" in top
+    rows = table_rows(page, "Sensitivity of the cycle time")
+    by_element = {r[1]: r for r in rows[1:]}
+    assert rows[0][3] == "Shorter / longer"
+    assert by_element["transition bake (Tunnel oven)"][3] == "0.25 / 0.3333"
+    assert "transition check (Quality check)" not in by_element  # null derivative: last
+    act = section_text(page, "act")
+    assert "And 109 more elements with smaller derivatives." in act  # 19 − 10 + 100
+    assert ["check", "Quality check", "–", "–", "no limit (0.4 busy)"] in \
+        table_rows(page, "Utilization per server")
+    warning = section_text(page, "unstable")
+    assert "The model is at critical load" in warning
+    assert "Critical load: the buffer bake → check (“sample”) is fed as fast as it is " \
+           "emptied" in warning
+    assert "bake fires every 13.5 min, check every 13.5 min" in warning
