@@ -76,25 +76,34 @@ belongs): :func:`cyclecheck.reports.schema.check_document` enforces all of it an
                             share of time busy, which may exceed 1 where firings overlap)
         servers             {id: int ≥ 1 | None}: the tokens of the transition's self-loop,
                             None without one (no limit)
+        busy_servers        {id: float ≥ 0 | None}: mean firings in progress (shown for
+                            transitions without a server limit)
         sensitivity         [{"element": "transition" | "place" (required), "id": id
                               (transitions, required), "index": place index from 0 (places,
-                              required), "derivative": finite float (required): dλ/d(mean
-                              duration or hold), "ci": [low, high] with low <= high ([d, d] for
-                              fixed durations)}]
-        bottleneck          a ``sensitivity`` entry whose derivative is the largest of
-                            ``sensitivity``, and optionally "cycle_time_if_10_percent_faster":
-                            float and "cycle_time_if_10_percent_faster_ci": [low, high]
-        unbounded_places    [{"index", "from", "to", "growth_rate"} (all required)]: places
-                            that gain tokens without bound, ``growth_rate`` in tokens per time
-                            unit; ``from`` and ``to`` those of model.places[index]; [] when
-                            none
+                              required), "derivative": finite float | None: dλ/d(mean
+                              duration or hold), "ci": [low, high] with low <= high (the 95 %
+                              interval; for fixed durations the one-sided derivatives
+                              [decrease, increase])}]
+        sensitivity_exact   bool: exact derivatives (fixed durations)
+        sensitivity_omitted int: entries left out of a long list
+        bottleneck          a ``sensitivity`` entry (the largest derivative among elements of
+                            positive mean) | None, optionally with "mean", "name",
+                            "on_mean_critical_circuit": bool, "faster_10_percent": {"mean",
+                            "cycle_time", "change"} (first order), or
+                            "cycle_time_if_10_percent_faster" and
+                            "cycle_time_if_10_percent_faster_ci": [low, high]
+        unbounded_places    [{"index", "from", "to" (required), "growth_rate": tokens per
+                            time unit | None (no bound at all), "status": "unstable" |
+                            "critical load", "from_cycle_time", "to_cycle_time", "text"}]:
+                            places that gain tokens without bound; ``from`` and ``to`` those
+                            of model.places[index]; [] when none
                             Ids in these keys must name transitions of model.transitions when
                             the model lists all of them (n_transitions equal to the list's
                             length); place indices must be below n_places.
     simulation      the SimPy side: cycle_time (required), cycle_time_ci, throughput,
-                    firings_simulated, exact, utilization, criticality, and the keys
-                    servers, sensitivity, bottleneck and unbounded_places, as in
-                    ``analysis`` (the page reads them from ``analysis`` first)
+                    firings_simulated, exact, utilization, criticality, and the keys from
+                    servers to unbounded_places above, as in ``analysis`` (the page reads
+                    them from ``analysis`` first)
     comparison      {"verdict": "agrees" | "disagrees" (required), "reasons": [str, ...],
                      "sample_path": {"identical": bool, "max_relative_difference": float,
                                      "firings_compared": int, "replications_compared": int}}
