@@ -121,6 +121,8 @@ def _bands(n_layers: int, pitch: float, box_width: float, rows_height: float) ->
 
 def layered(nodes: list[str], places: Sequence[PlaceSpec], box_width: float,
              critical_places: set[int]) -> tuple[dict[str, Point], list[Arc], int] | None:
+    """Positions, arcs and the number of bands of the layered layout; None when the graph
+    forms a single layer of at most 12 transitions (a circle reads better then)."""
     layer, position = _sugiyama(nodes, places)
     n_layers = max(layer.values()) + 1
     if n_layers == 1:
@@ -131,12 +133,22 @@ def layered(nodes: list[str], places: Sequence[PlaceSpec], box_width: float,
         layer = {t: i for i, t in enumerate(order)}
         position = dict.fromkeys(nodes, 0.0)
         n_layers = len(nodes)
+    # igraph's order inside each layer, as ranks: a chain stays on one row.
+    members: dict[int, list[str]] = {}
+    for t in sorted(nodes, key=lambda t: (position[t], nodes.index(t))):
+        members.setdefault(layer[t], []).append(t)
     pitch = box_width + GAP_X
-    spread = max(position.values()) - min(position.values())
-    n_bands = _bands(n_layers, pitch, box_width, spread * ROW)
+    widest = max(len(m) for m in members.values())
+    n_bands = _bands(n_layers, pitch, box_width, (widest - 1) * ROW)
     per_band = math.ceil(n_layers / n_bands)  # balanced bands
+    n_bands = math.ceil(n_layers / per_band)  # 10 layers in 6 bands of 2 are 5 bands
     band = {t: layer[t] // per_band for t in nodes}
     column = {t: layer[t] % per_band for t in nodes}
+    # Rows: the rank in the layer, a layer with fewer transitions centred in its band.
+    rows_of_band = [max((len(m) for k, m in members.items() if k // per_band == b), default=1)
+                    for b in range(n_bands)]
+    position = {t: i + (rows_of_band[band[t]] - len(m)) / 2
+                for m in members.values() for i, t in enumerate(m)}
     # Rows of each band from igraph's positions, shifted to start at 0.
     low = [min((position[t] for t in nodes if band[t] == b), default=0.0)
            for b in range(n_bands)]
