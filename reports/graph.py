@@ -86,10 +86,13 @@ def graph_section(document: Mapping[str, Any], figs: Figures,
         n_p = int(model.get("n_places") or len(specs))
         hidden_t = drawing.hidden_transitions + n_t - len(ids)
         hidden_p = drawing.hidden_places + n_p - len(specs)
+        drawn = ("the critical circuits, the bottleneck and their neighbours are" if circuits
+                 or neck or neck_place is not None else
+                 f"the first {fmt(len(drawing.nodes))} transitions of the model are")
         out = out.replace(
             "</figcaption>",
-            f" <strong>Part of the graph:</strong> the model has {fmt(n_t)} transitions; only "
-            "the critical circuits, the bottleneck and their neighbours are drawn "
+            f" <strong>Part of the graph:</strong> the model has {fmt(n_t)} transitions, too "
+            f"many or too densely joined to print legibly whole; only {drawn} drawn "
             f"({fmt(hidden_t)} transitions and {fmt(hidden_p)} places are not shown; the map "
             "of the components below shows the whole).</figcaption>", 1)
         out += _components(document, figs, ids, specs, circuits)

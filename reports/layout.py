@@ -14,7 +14,8 @@ the boxes, the place circles and the token marks (:func:`cyclecheck.reports.geom
 place_labels`); a label that finds no free spot is dropped, and the :class:`Drawing` counts it
 so that the page can say so.
 
-Large graphs (more than ``limit`` transitions) are drawn in part: the critical circuits, the
+Large graphs (more than ``limit`` transitions, or fewer joined so densely that the drawing
+would print below :data:`MIN_PRINT_SCALE`) are drawn in part: the critical circuits, the
 bottleneck and the transitions one place away from them. :func:`component_map` lays out the
 strongly connected components of a graph as a small map instead.
 
@@ -55,10 +56,12 @@ from .geometry import (
     quadratic,
     text_size,
 )
-from .layers import GAP_X, layered
+from .layers import GAP_X, layered, print_scale
 
 #: Largest ring drawn as a circle; a longer one is laid out in layers and folded.
 MAX_CIRCLE = 12
+#: Smallest print scale of a drawing (8 pt ids at 5.2 pt): a denser graph is drawn in part.
+MIN_PRINT_SCALE = 0.65
 
 __all__ = [
     "INCH",
@@ -195,6 +198,21 @@ def _obstacles(nodes: Mapping[str, Point], half_w: float, half_h: float,
 
 # --- the front door --------------------------------------------------------------------------
 
+def _arrange(chosen: list[str], drawn: list[PlaceSpec], box_width: float,
+             critical_places: set[int], critical_circuits: Sequence[Sequence[str]]
+             ) -> tuple[str, dict[str, Point], list[Arc], int]:
+    """Kind, positions, arcs and bands: a circle for a small ring, else the layers."""
+    ring = _is_ring(chosen, drawn)
+    small_ring = ring is not None and len(ring) <= MAX_CIRCLE
+    result = None if small_ring else layered(chosen, drawn, box_width, critical_places)
+    if result is None:
+        order = ring if small_ring and ring else _ring_order(chosen, drawn, critical_circuits)
+        positions, arcs = _circle(order, drawn, box_width, critical_places)
+        return "circle", positions, arcs, 1
+    positions, arcs, bands = result
+    return "layered", positions, arcs, bands
+
+
 def layout_graph(
     transitions: Sequence[str],
     places: Sequence[PlaceSpec],
@@ -221,7 +239,8 @@ def layout_graph(
         Indices of the places to highlight (see :func:`choose_critical_places`).
     limit
         Largest number of transitions drawn; beyond it only the critical circuits, the
-        bottleneck and their neighbourhood are drawn.
+        bottleneck and their neighbourhood are drawn. A smaller graph too dense to print at
+        :data:`MIN_PRINT_SCALE` is drawn in part the same way.
     place_text
         Text to write beside each place (slack, criticality), placed without overlap.
     bottleneck, bottleneck_place
@@ -244,22 +263,24 @@ def layout_graph(
         focus = [bp.source, bp.target, *focus]
     if bottleneck is not None:
         focus = [bottleneck, *focus]
-    chosen = _select(transitions, places, focus, limit)
-    kept = set(chosen)
-    drawn = [p for p in places if p.source in kept and p.target in kept]
-    texts = {t: (box_text or {}).get(t) or short_label(t) for t in chosen}
-    box_width = max(0.8, max(text_size(s, BOX_FONT, True)[0] for s in texts.values()) + 0.3)
     critical_places = critical_places or set()
-    ring = _is_ring(chosen, drawn)
-    small_ring = ring is not None and len(ring) <= MAX_CIRCLE
-    result = None if small_ring else layered(chosen, drawn, box_width, critical_places)
-    kind, bands = "layered", 1
-    if result is None:
-        kind = "circle"
-        order = ring if small_ring and ring else _ring_order(chosen, drawn, critical_circuits)
-        positions, arcs = _circle(order, drawn, box_width, critical_places)
-    else:
-        positions, arcs, bands = result
+    # A graph too dense to print legibly is drawn in part, like a large one: fewer
+    # transitions around the focus until it prints at MIN_PRINT_SCALE or more.
+    size = limit
+    while True:
+        chosen = _select(transitions, places, focus, size)
+        kept = set(chosen)
+        drawn = [p for p in places if p.source in kept and p.target in kept]
+        texts = {t: (box_text or {}).get(t) or short_label(t) for t in chosen}
+        box_width = max(0.8, max(text_size(s, BOX_FONT, True)[0] for s in texts.values())
+                        + 0.3)
+        kind, positions, arcs, bands = _arrange(chosen, drawn, box_width, critical_places,
+                                                critical_circuits)
+        xmin, xmax, ymin, ymax = Drawing(kind, positions, box_width, BOX_HEIGHT, tuple(arcs),
+                                         frozenset(), 0, 0).bounds()
+        if len(chosen) <= 12 or print_scale(xmax - xmin, ymax - ymin) >= MIN_PRINT_SCALE:
+            break
+        size = max(12, int(len(chosen) * 0.75))
     positions = {t: (round(x, 9), round(y, 9)) for t, (x, y) in positions.items()}
     half_w, half_h = box_width / 2, BOX_HEIGHT / 2
     obstacles = _obstacles(positions, half_w, half_h, arcs, show_places)

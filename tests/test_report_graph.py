@@ -96,7 +96,9 @@ def test_labels_keep_clear_on_any_live_graph(graph: Any) -> None:
                                int(graph.tokens[p])) for p in range(graph.n_places)]
     drawing = layout.layout_graph(ids, places, place_text={p.index: "88.8 %" for p in places},
                                   bottleneck=ids[0])
-    assert len(drawing.labels) + drawing.dropped_labels == len(places) + 1
+    # Every drawn place asked for a label, and so did the bottleneck (a dense graph is drawn
+    # in part: the places left out have no label).
+    assert len(drawing.labels) + drawing.dropped_labels == len(drawing.arcs) + 1
     _assert_apart(drawing)
     for arc in drawing.arcs:
         assert (len(arc.points) - 1) % 3 == 0  # cubic segments
@@ -209,3 +211,26 @@ def test_token_counts_fit_their_circle() -> None:
     assert [layout.token_text(n) for n in (3, 999, 1000, 12_345, 2_500_000, 7 * 10**9)] == \
         ["3", "999", "1k", "12k", "2M", "7G"]
     assert len(layout.token_text(2**53)) <= 4
+
+
+def test_a_dense_graph_is_drawn_in_part_to_stay_legible() -> None:
+    """40 transitions in a chain with 80 long token-carrying places back (seeded, invented):
+    drawn whole it would print far below 65 %, so only the critical circuit and its
+    neighbours are drawn, and that prints at 65 % or more; a sparse line of 30 stays whole."""
+    import numpy as np
+
+    rng = np.random.default_rng(1)
+    ids = [f"m{i}" for i in range(40)]
+    places = [layout.PlaceSpec(i - 1, ids[int(rng.integers(max(0, i - 4), i))], ids[i], 0)
+              for i in range(1, 40)]
+    while len(places) < 120:
+        a, b = sorted(int(v) for v in rng.integers(0, 40, 2))
+        if a != b:
+            places.append(layout.PlaceSpec(len(places), ids[b], ids[a], 1))
+    circuit = ["m5", "m6", "m7"]
+    drawing = layout.layout_graph(ids, places, [circuit])
+    assert drawing.partial and set(circuit) <= set(drawing.nodes)
+    xmin, xmax, ymin, ymax = drawing.bounds()
+    assert print_scale(xmax - xmin, ymax - ymin) >= layout.MIN_PRINT_SCALE
+    ids30, places30 = _specs(line_document(30))
+    assert not layout.layout_graph(ids30, places30, [["s17"]]).partial
