@@ -44,40 +44,62 @@ TRACK, LANE = 0.42, 0.4
 
 def _sugiyama(nodes: list[str], places: Sequence[PlaceSpec]) -> tuple[dict[str, int],
                                                                        dict[str, float]]:
-    """Layer and position inside the layer of each node, from igraph's Sugiyama layout."""
+    """Layer and position inside the layer of each node, from igraph's Sugiyama layout.
+
+    The layers are the longest token-free paths from a source, taken along igraph's
+    topological order of the token-free places (acyclic in a live graph; places that would
+    close a cycle in a damaged document are skipped), and handed to igraph, which orders each
+    layer against crossings. igraph is asked neither to find the layers nor to cut long
+    edges into steps: igraph 1.0's ``layout_sugiyama`` reads uninitialised memory on edges
+    that span several layers (valgrind shows it), and crashed the test suite (a segmentation
+    fault) about once in six runs.
+    """
     import igraph
 
     index = {t: i for i, t in enumerate(nodes)}
     free = sorted({(index[p.source], index[p.target]) for p in places
                    if p.tokens == 0 and p.source != p.target})
-    # Layers from the token-free places alone (acyclic in a live graph; igraph breaks any
-    # cycle of a damaged document with the heuristic of Eades, Lin & Smyth).
-    every = sorted({(index[p.source], index[p.target]) for p in places
-                    if p.source != p.target})
-    first = igraph.Graph(n=len(nodes), edges=free, directed=True).layout_sugiyama()
-    layer = {t: round(first.coords[index[t]][1]) for t in nodes}
-    if len(set(layer.values())) == 1 and len(nodes) > 12:
-        # Tokens on every place: no flow to follow. igraph layers all places instead (it
-        # breaks their circuits with the heuristic of Eades, Lin & Smyth).
-        first = igraph.Graph(n=len(nodes), edges=every, directed=True).layout_sugiyama()
-        layer = {t: round(first.coords[index[t]][1]) for t in nodes}
+    try:
+        order = igraph.Graph(n=len(nodes), edges=free, directed=True).topological_sorting()
+    except igraph.InternalError:  # a token-free circuit: document order, back places skipped
+        order = list(range(len(nodes)))
+    rank = {v: i for i, v in enumerate(order)}
+    succ: dict[int, list[int]] = {v: [] for v in range(len(nodes))}
+    for a, b in free:
+        if a in rank and b in rank and rank[a] < rank[b]:
+            succ[a].append(b)
+    depth = dict.fromkeys(range(len(nodes)), 0)
+    fed: set[int] = set()
+    for v in order:
+        for w in succ[v]:
+            depth[w] = max(depth[w], depth[v] + 1)
+            fed.add(w)
     # A source sits just before the first transition it feeds, not in layer 0: a second
     # product line joining a shared vessel is drawn beside the vessel.
-    fed = {nodes[b] for _, b in free}
-    succ: dict[str, list[str]] = {t: [] for t in nodes}
-    for a, b in free:
-        succ[nodes[a]].append(nodes[b])
-    for t in sorted(nodes, key=lambda t: -layer[t]):
-        later = [layer[u] for u in succ[t]]
-        if t not in fed and later:
-            layer[t] = max(layer[t], min(later) - 1)
-    # Positions inside the layers against crossings, every place counted.
-    graph = igraph.Graph(n=len(nodes), edges=every, directed=True)
-    second = graph.layout_sugiyama(layers=[layer[t] for t in nodes])
+    for v in reversed(order):
+        if v not in fed and succ[v]:
+            depth[v] = max(depth[v], min(depth[w] for w in succ[v]) - 1)
+    used = sorted(set(depth.values()))  # no empty layer
+    layer = {t: used.index(depth[index[t]]) for t in nodes}
+    # Positions inside the layers against crossings, every place between two layers counted,
+    # directed downwards and cut into steps of one layer through dummy vertices of our own
+    # (with longer edges igraph 1.0 reads uninitialised memory, found with valgrind, and
+    # crashed the test suite now and then).
+    levels = [layer[t] for t in nodes]
+    edges: list[tuple[int, int]] = []
+    for a, b in sorted({tuple(sorted((index[p.source], index[p.target]),
+                                     key=lambda v: levels[v]))
+                        for p in places if layer[p.source] != layer[p.target]}):
+        previous = a
+        for level in range(levels[a] + 1, levels[b]):
+            levels.append(level)
+            edges.append((previous, len(levels) - 1))
+            previous = len(levels) - 1
+        edges.append((previous, b))
+    graph = igraph.Graph(n=len(levels), edges=edges, directed=True)
+    second = graph.layout_sugiyama(layers=levels)
     position = {t: float(second.coords[index[t]][0]) for t in nodes}
     return layer, position
-
-
 
 
 def _assign_tracks(spans: list[tuple[float, float, int]], gap: float) -> dict[int, int]:

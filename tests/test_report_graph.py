@@ -234,3 +234,27 @@ def test_a_dense_graph_is_drawn_in_part_to_stay_legible() -> None:
     assert print_scale(xmax - xmin, ymax - ymin) >= layout.MIN_PRINT_SCALE
     ids30, places30 = _specs(line_document(30))
     assert not layout.layout_graph(ids30, places30, [["s17"]]).partial
+
+
+def test_igraph_gets_layers_and_one_layer_steps_only(monkeypatch: Any) -> None:
+    """igraph 1.0's layout_sugiyama reads uninitialised memory on edges that span several
+    layers (valgrind; it crashed the suite now and then): the layout hands it the layers and
+    cuts every place into downward steps of one layer through dummy vertices."""
+    import igraph
+
+    calls = []
+    original = igraph.Graph.layout_sugiyama
+
+    def spy(graph: Any, layers: Any = None, **options: Any) -> Any:
+        assert layers is not None
+        for a, b in graph.get_edgelist():
+            assert layers[b] == layers[a] + 1, (a, b, layers)
+        calls.append(graph.vcount())
+        return original(graph, layers=layers, **options)
+
+    monkeypatch.setattr(igraph.Graph, "layout_sugiyama", spy)
+    ids, places = _specs(line_document(20))
+    places.append(layout.PlaceSpec(len(places), "s20", "s1", 5))  # spans every layer
+    drawing = layout.layout_graph(ids, places, [["s17"]])
+    assert calls and calls[0] > len(ids)  # dummy vertices were added
+    assert set(drawing.nodes) == set(ids)
