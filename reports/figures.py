@@ -21,7 +21,8 @@ import re
 from collections.abc import Mapping, Sequence
 from typing import Any
 
-from .layout import Drawing, place_labels, short_label
+from .geometry import BOX_FONT, INCH, TOKEN_FONT
+from .layout import PLACE_RADIUS, Drawing, short_label, token_text
 
 __all__ = [
     "graph_figure",
@@ -45,6 +46,8 @@ DASHES = ["-", "--", "-.", ":", (0, (5, 1, 1, 1)), (0, (3, 1)), (0, (1, 1)), (0,
 #: Most series drawn in one figure; the page says so when a document has more.
 MAX_SERIES = len(SERIES)
 MAX_GANTT_ROWS = 30
+#: Largest enlargement of a small event graph on the page.
+MAX_ENLARGE = 1.5
 
 _RC = {
     "svg.hashsalt": "cyclecheck-report",
@@ -73,11 +76,11 @@ def _plain(text: str) -> str:
     return text.replace("\\", "\\\\").replace("$", r"\$")
 
 
-def _new_figure(width: float, height: float) -> Any:
+def _new_figure(width: float, height: float, layout: str | None = "constrained") -> Any:
     from matplotlib.backends.backend_svg import FigureCanvasSVG
     from matplotlib.figure import Figure
 
-    fig = Figure(figsize=(width, height), layout="constrained")
+    fig = Figure(figsize=(width, height), layout=layout)
     FigureCanvasSVG(fig)
     return fig
 
@@ -104,87 +107,106 @@ def _to_svg(fig: Any, key: str, label: str) -> str:
     return text.strip() + "\n"
 
 
-def _render(key: str, label: str, draw: Any, width: float, height: float) -> str:
+def _render(key: str, label: str, draw: Any, width: float, height: float,
+            layout: str | None = "constrained") -> str:
     import matplotlib
 
     with matplotlib.rc_context(_RC):
-        fig = _new_figure(width, height)
+        fig = _new_figure(width, height, layout)
         draw(fig)
         return _to_svg(fig, key, label)
 
 
-def graph_figure(
-    drawing: Drawing,
-    place_text: Mapping[int, str],
-    key: str = "graph",
-) -> str:
+def graph_figure(drawing: Drawing, key: str = "graph",
+                 label: str = "Event graph with the critical circuit highlighted") -> str:
     """The event graph: transitions as boxes, places as circles with tokens, critical in bold.
 
     Parameters
     ----------
     drawing
-        The layout, from :func:`cyclecheck.reports.layout.layout_graph`.
-    place_text
-        Text written beside each place (its slack or criticality, already formatted).
+        The layout, from :func:`cyclecheck.reports.layout.layout_graph`, with its labels
+        already placed (the figure draws at the layout's scale and font sizes, so that the
+        collision check of the layout holds in the figure).
     """
     from matplotlib.lines import Line2D
     from matplotlib.patches import Circle, FancyArrowPatch, FancyBboxPatch
     from matplotlib.path import Path
 
     xmin, xmax, ymin, ymax = drawing.bounds()
-    scale = 0.72  # inches per layout unit
-    width, height = (xmax - xmin + 0.6) * scale, (ymax - ymin + 0.6) * scale
-    if width > 9.0:  # large graphs shrink to the page width
-        width, height = 9.0, height * 9.0 / width
-    width, height = max(width, 4.5), min(max(height, 1.6), 9.0) + 0.45
+    pad = 0.15
+    width = (xmax - xmin + 2 * pad) * INCH
+    height = (ymax - ymin + 2 * pad) * INCH
+    legend = 0.3 if drawing.show_places else 0.0
+    if width < 3.0:  # a tiny graph keeps its scale: room is added on both sides
+        extra = (3.0 - width) / INCH / 2
+        xmin, xmax, width = xmin - extra, xmax + extra, 3.0
 
     def draw(fig: Any) -> None:
-        ax = fig.add_subplot()
+        # The axes fill the figure exactly: one layout unit is INCH inches, as the layout's
+        # text sizes assume. Patches go in with add_artist: the limits are set, and the
+        # autoscaling add_patch does would cost seconds on a large graph.
+        ax = fig.add_axes((0.0, legend / (height + legend), 1.0, height / (height + legend)))
         ax.set_axis_off()
-        ax.set_aspect("equal")
-        ax.set_xlim(xmin - 0.3, xmax + 0.3)
-        ax.set_ylim(ymin - 0.3, ymax + 0.3)
+        ax.set_xlim(xmin - pad, xmax + pad)
+        ax.set_ylim(ymin - pad, ymax + pad)
         for arc in drawing.arcs:
             colour, lw = (ACCENT, 2.4) if arc.critical else (MUTED, 1.0)
-            codes = [Path.MOVETO] + [Path.CURVE3 if len(arc.points) == 3 else Path.CURVE4] * (
-                len(arc.points) - 1)
-            ax.add_patch(FancyArrowPatch(
-                path=Path(arc.points, codes), arrowstyle="-|>", mutation_scale=9 + lw * 2,
+            codes = [Path.MOVETO] + [Path.CURVE4] * (len(arc.points) - 1)
+            ax.add_artist(FancyArrowPatch(
+                path=Path(arc.points, codes), arrowstyle="-|>", mutation_scale=8 + lw * 2,
                 color=colour, linewidth=lw, zorder=1 + arc.critical))
-            ax.add_patch(Circle(arc.mid, 0.17, facecolor="white", edgecolor=colour,
-                                linewidth=lw * 0.7, zorder=3))
+            if not drawing.show_places:
+                continue
+            ring = 2.0 if arc.place == drawing.bottleneck_place else lw * 0.7
+            ax.add_artist(Circle(arc.mid, PLACE_RADIUS, facecolor="white",
+                                edgecolor=INK if arc.place == drawing.bottleneck_place
+                                else colour, linewidth=ring, zorder=3))
             if arc.tokens in (1, 2):
                 offsets = [0.0] if arc.tokens == 1 else [-0.065, 0.065]
                 for off in offsets:
-                    ax.add_patch(Circle((arc.mid[0] + off, arc.mid[1]), 0.045, color=INK,
+                    ax.add_artist(Circle((arc.mid[0] + off, arc.mid[1]), 0.045, color=INK,
                                         zorder=4))
             elif arc.tokens > 2:
-                ax.text(arc.mid[0], arc.mid[1], str(arc.tokens), ha="center", va="center",
-                        fontsize=6.5, fontweight="bold", zorder=4)
-        for point, text, align in place_labels(drawing, place_text):
-            ax.text(point[0], point[1], _plain(text), ha=align, va="center", fontsize=8,
-                    color=INK, zorder=5)
+                ax.text(arc.mid[0], arc.mid[1], token_text(arc.tokens), ha="center",
+                        va="center", fontsize=TOKEN_FONT, fontweight="bold", zorder=4)
+        for text in drawing.labels:
+            ax.text(text.centre[0], text.centre[1], _plain(text.text), ha="center",
+                    va="center", fontsize=text.points, color=ACCENT if text.owner == "tag"
+                    else INK, fontweight="bold" if text.bold else "normal", zorder=8)
         half_w, half_h = drawing.box_width / 2, drawing.box_height / 2
         for name, (x, y) in drawing.nodes.items():
             critical = name in drawing.critical_transitions
-            ax.add_patch(FancyBboxPatch(
+            neck = name == drawing.bottleneck
+            ax.add_artist(FancyBboxPatch(
                 (x - half_w, y - half_h), 2 * half_w, 2 * half_h,
                 boxstyle="round,pad=0,rounding_size=0.12",
                 facecolor=ACCENT_TINT if critical else "white",
                 edgecolor=ACCENT if critical else INK,
-                linewidth=2.0 if critical else 0.9, zorder=6))
-            ax.text(x, y, _plain(short_label(name)), ha="center", va="center",
-                    fontsize=9, fontweight="bold" if critical else "normal", zorder=7)
-        handles = [
-            Line2D([], [], color=ACCENT, linewidth=2.4, label="critical circuit (thick)"),
-            Line2D([], [], color=MUTED, linewidth=1.0, label="other place"),
-            Line2D([], [], color=INK, marker="o", markersize=3, linestyle="none",
-                   label="token"),
-        ]
-        fig.legend(handles=handles, loc="outside lower center", ncols=3, fontsize=7.5)
+                linewidth=2.6 if neck else 2.0 if critical else 0.9,
+                linestyle=(0, (3, 1.5)) if neck else "-", zorder=6))
+            ax.text(x, y, _plain(drawing.box_text.get(name, name)), ha="center", va="center",
+                    fontsize=BOX_FONT, fontweight="bold" if critical else "normal", zorder=7)
+        if drawing.show_places:
+            handles = [
+                Line2D([], [], color=ACCENT, linewidth=2.4, label="critical (thick)"),
+                Line2D([], [], color=MUTED, linewidth=1.0, label="other place"),
+                Line2D([], [], color=INK, marker="o", markersize=3, linestyle="none",
+                       label="token"),
+            ]
+            fig.legend(handles=handles, loc="lower center", ncols=3, fontsize=7,
+                       bbox_to_anchor=(0.5, 0.0))
 
-    return _render(key, "Event graph with the critical circuit highlighted", draw,
-                   width, height)
+    svg = _render(key, label, draw, width, height + legend, layout=None)
+    # A small graph is shown larger: the whole drawing scales, text included, so nothing that
+    # was apart comes together.
+    factor = min(MAX_ENLARGE, 5.0 / width)
+    if factor > 1:
+        head_end = svg.index(">")
+        head = re.sub(r'\b(width|height)="([\d.]+)pt"',
+                      lambda m: f'{m.group(1)}="{float(m.group(2)) * factor:.2f}pt"',
+                      svg[:head_end])
+        svg = head + svg[head_end:]
+    return svg
 
 
 def schedule_figure(
@@ -230,16 +252,29 @@ def schedule_figure(
     return _render(key, "Periodic schedule over two cycles", draw, 7.2, height + 0.5)
 
 
+def _transient_axes(ax: Any, time_unit: str) -> None:
+    """The axes of x(k) − kλ: whole firing numbers, the time unit on the vertical axis."""
+    from matplotlib.ticker import MaxNLocator
+
+    ax.set_xlabel("firing number k")
+    ax.xaxis.set_major_locator(MaxNLocator(integer=True))
+    unit = f" ({time_unit})" if time_unit else ""
+    ax.set_ylabel(_plain(f"x(k) − kλ{unit}"))
+
+
 def transient_figure(
     k: Sequence[float],
     recursion: Mapping[str, Sequence[float]],
     simulation: Mapping[str, Sequence[float]] | None,
     time_unit: str,
     key: str = "transient",
+    band: bool = False,
 ) -> str:
-    """x(k) − kλ against k: recursion as lines, simulation as hollow markers on top."""
+    """x(k) − kλ against k: recursion as lines, simulation as hollow markers on top; with
+    ``band`` (random durations) the band over the transitions and its median instead."""
+    if band:
+        return _transient_band(k, recursion, simulation, time_unit, key)
     from matplotlib.lines import Line2D
-    from matplotlib.ticker import MaxNLocator
 
     names = list(recursion)[:MAX_SERIES]
 
@@ -254,10 +289,7 @@ def transient_figure(
                 ax.plot(k, simulation[name], linestyle="none", marker=MARKERS[i],
                         markersize=7, markerfacecolor="none", markeredgecolor=SERIES[i],
                         markeredgewidth=0.9, markevery=every)
-        ax.set_xlabel("firing number k")
-        ax.xaxis.set_major_locator(MaxNLocator(integer=True))
-        unit = f" ({time_unit})" if time_unit else ""
-        ax.set_ylabel(_plain(f"x(k) − kλ{unit}"))
+        _transient_axes(ax, time_unit)
         fig.legend(loc="outside right upper", fontsize=7.5, title="transition",
                    title_fontsize=7.5)
         how = [Line2D([], [], color=INK, linewidth=1.3, label="max-plus recursion (line)")]
@@ -267,6 +299,43 @@ def transient_figure(
         fig.legend(handles=how, loc="outside lower center", ncols=2, fontsize=7.5)
 
     return _render(key, "Transient: x(k) minus k times the cycle time", draw, 7.2, 3.3)
+
+
+def _transient_band(k: Sequence[float], recursion: Mapping[str, Sequence[float]],
+                    simulation: Mapping[str, Sequence[float]] | None, time_unit: str,
+                    key: str) -> str:
+    """x(k) − kλ of a random model: the band over the transitions (smallest to largest at
+    each k) and its median, the recursion's as a line, the simulation's as rings."""
+    from matplotlib.lines import Line2D
+    from matplotlib.patches import Patch
+
+    def spread(curves: Mapping[str, Sequence[float]]) -> tuple[list[float], ...]:
+        columns = list(zip(*curves.values(), strict=True))
+        middle = [sorted(c)[len(c) // 2] if len(c) % 2 else
+                  (sorted(c)[len(c) // 2 - 1] + sorted(c)[len(c) // 2]) / 2 for c in columns]
+        return [min(c) for c in columns], middle, [max(c) for c in columns]
+
+    def draw(fig: Any) -> None:
+        ax = fig.add_subplot()
+        low, middle, high = spread(recursion)
+        ax.fill_between(k, low, high, facecolor=SIM_TINT, edgecolor=SIM, linewidth=0.6,
+                        alpha=0.8)
+        ax.plot(k, middle, color=INK, linewidth=1.4)
+        how = [Patch(facecolor=SIM_TINT, edgecolor=SIM,
+                     label="all transitions (smallest to largest)"),
+               Line2D([], [], color=INK, linewidth=1.4, label="median, max-plus recursion")]
+        if simulation and len(simulation) == len(recursion):
+            every = max(1, math.ceil(len(k) / 40))
+            ax.plot(k, spread(simulation)[1], linestyle="none", marker="o", markersize=6,
+                    markerfacecolor="none", markeredgecolor=SIM, markeredgewidth=0.9,
+                    markevery=every)
+            how.append(Line2D([], [], color=SIM, linestyle="none", marker="o", markersize=6,
+                              markerfacecolor="none", label="median, SimPy simulation (ring)"))
+        _transient_axes(ax, time_unit)
+        fig.legend(handles=how, loc="outside lower center", ncols=3, fontsize=7.5)
+
+    return _render(key, "Firing times less k times the cycle time: band over the transitions",
+                   draw, 7.2, 3.3)
 
 
 def _bound_lines(ax: Any, bounds: Mapping[str, float] | None, vertical: bool) -> list[Any]:
@@ -310,9 +379,11 @@ def running_estimate_figure(
                    Patch(facecolor=SIM_TINT, edgecolor=SIM, hatch="....",
                          label="95 % interval (dotted band)")]
         handles += _bound_lines(ax, bounds, vertical=False)
+        from matplotlib.ticker import FuncFormatter
+
         ax.set_xlabel("firings computed")
         ax.set_ylabel(_plain(f"cycle time ({time_unit})" if time_unit else "cycle time"))
-        ax.ticklabel_format(axis="x", style="plain")
+        ax.xaxis.set_major_formatter(FuncFormatter(lambda x, _: f"{x:,.0f}"))
         fig.legend(handles=handles, loc="outside lower center", ncols=4, fontsize=7.5)
 
     return _render(key, "Running estimate of the cycle time with its interval", draw, 7.2, 3.0)

@@ -1,23 +1,27 @@
-"""A drawing layout of the event graph for the review page.
+"""The layout of the event graph for the review page: pure geometry, no drawing.
 
 Transitions are boxes, places are small circles on the arcs between them (with their tokens
 inside), in the manner of a Petri net. Two layouts are used:
 
-* **layered**, the default: the places *without* tokens form an acyclic graph in a live event
-  graph (a token-free circuit is a deadlock), so transitions are put in columns by their longest
-  token-free path from a source, left to right in the order a firing propagates. Places with
-  tokens close the circuits and are drawn as bows. Inside a column, transitions on a critical
-  circuit come first (the top row is the bottleneck), the others follow by the barycentre of
-  their neighbours in the column before (a few sweeps, ties broken by document order).
-* **circle**, when the drawn graph is one elementary circuit (a ring of stops, a loop of
-  stations) or when the layered layout would be a single column.
+* **layered**, the default (:mod:`cyclecheck.reports.layers`): igraph's Sugiyama layout, its
+  layers following the token-free places left to right, **folded** into bands read like lines
+  of text when they do not fit the page width, long arcs routed in corridors between the bands;
+* **circle**, when the drawn graph is one small elementary circuit (a ring of stops, a loop of
+  stations, self-loops aside) or a handful of transitions that form no layers.
 
-Large graphs (more than ``limit`` transitions) are drawn in part: the critical circuits and
-the transitions one place away from them. The :class:`Drawing` says what was left out so that
-the page can say so.
+Labels (slack, criticality, tags) are then placed with a collision check against each other,
+the boxes, the place circles and the token marks (:func:`cyclecheck.reports.geometry.
+place_labels`); a label that finds no free spot is dropped, and the :class:`Drawing` counts it
+so that the page can say so.
 
-The module is pure geometry: no matplotlib, no analysis. Coordinates are in abstract units
-(about 0.55 inch each once drawn); y grows upwards.
+Large graphs (more than ``limit`` transitions, or fewer joined so densely that the drawing
+would print below :data:`MIN_PRINT_SCALE`) are drawn in part: the critical circuits, the
+bottleneck and the transitions one place away from them. :func:`component_map` lays out the
+strongly connected components of a graph as a small map instead.
+
+Coordinates are in layout units, :data:`INCH` inches each once drawn, with y growing upwards;
+text sizes are in points (:mod:`cyclecheck.reports.geometry`), which the figure must use for
+the collision check to hold. The same input always gives the same layout.
 """
 
 from __future__ import annotations
@@ -25,144 +29,67 @@ from __future__ import annotations
 import math
 from collections.abc import Mapping, Sequence
 from dataclasses import dataclass
-from itertools import pairwise
+
+from .drawing import (
+    BOX_HEIGHT,
+    PLACE_RADIUS,
+    Arc,
+    Drawing,
+    PlaceSpec,
+    choose_critical_places,
+    short_label,
+    stack_loops,
+    token_text,
+)
+from .geometry import (
+    BOX_FONT,
+    INCH,
+    Box,
+    Boxes,
+    Label,
+    Point,
+    Strokes,
+    arc_at,
+    border,
+    line,
+    place_labels,
+    quadratic,
+    text_size,
+)
+from .layers import GAP_X, layered, print_scale
+
+#: Largest ring drawn as a circle; a longer one is laid out in layers and folded.
+MAX_CIRCLE = 12
+#: Smallest print scale of a drawing (8 pt ids at 5.2 pt): a denser graph is drawn in part.
+MIN_PRINT_SCALE = 0.65
 
 __all__ = [
+    "INCH",
+    "PLACE_RADIUS",
     "Arc",
+    "ComponentMap",
     "Drawing",
+    "Label",
     "PlaceSpec",
     "choose_critical_places",
+    "component_map",
     "layout_graph",
-    "place_labels",
     "short_label",
+    "text_size",
+    "token_text",
 ]
 
-Point = tuple[float, float]
 
-#: Height of a transition box and the radius of a place circle, in layout units.
-BOX_HEIGHT = 0.5
-PLACE_RADIUS = 0.17
-#: Longest transition id written inside a box; longer ids are shortened with an ellipsis.
-MAX_LABEL = 12
-
-
-@dataclass(frozen=True)
-class PlaceSpec:
-    """What the layout needs to know about one place."""
-
-    index: int
-    source: str
-    target: str
-    tokens: int
-
-
-@dataclass(frozen=True)
-class Arc:
-    """One drawn place: a quadratic Bézier curve (or a cubic loop for a self-loop)."""
-
-    place: int
-    source: str
-    target: str
-    tokens: int
-    #: Control points: 3 for a quadratic curve, 4 for the cubic self-loop.
-    points: tuple[Point, ...]
-    #: Where the place circle sits, and the unit vector pointing to the side of its label.
-    mid: Point
-    label_side: Point
-    critical: bool
-
-
-@dataclass(frozen=True)
-class Drawing:
-    """A laid-out graph, ready to be drawn."""
-
-    kind: str  # "layered" or "circle"
-    nodes: dict[str, Point]
-    box_width: float
-    box_height: float
-    arcs: tuple[Arc, ...]
-    critical_transitions: frozenset[str]
-    hidden_transitions: int
-    hidden_places: int
-
-    @property
-    def partial(self) -> bool:
-        """True when part of the graph was left out."""
-        return self.hidden_transitions > 0 or self.hidden_places > 0
-
-    def bounds(self) -> tuple[float, float, float, float]:
-        """``(xmin, xmax, ymin, ymax)`` of everything drawn, labels included."""
-        xs = [x for x, _ in self.nodes.values()]
-        ys = [y for _, y in self.nodes.values()]
-        for arc in self.arcs:
-            for point in _sample(arc.points):
-                xs.append(point[0])
-                ys.append(point[1])
-            xs.append(arc.mid[0] + 0.6 * arc.label_side[0])
-            ys.append(arc.mid[1] + 0.45 * arc.label_side[1])
-        half_w, half_h = self.box_width / 2, self.box_height / 2
-        return min(xs) - half_w, max(xs) + half_w, min(ys) - half_h, max(ys) + half_h
-
-
-def _sample(points: tuple[Point, ...], steps: int = 12) -> list[Point]:
-    """Points along a Bézier curve given by its control points (de Casteljau)."""
-    out = []
-    for i in range(steps + 1):
-        t = i / steps
-        level = list(points)
-        while len(level) > 1:
-            level = [((1 - t) * a[0] + t * b[0], (1 - t) * a[1] + t * b[1])
-                     for a, b in pairwise(level)]
-        out.append(level[0])
-    return out
-
-
-def short_label(text: str) -> str:
-    """The id as written in a box: at most :data:`MAX_LABEL` characters."""
-    return text if len(text) <= MAX_LABEL else text[: MAX_LABEL - 1] + "…"
-
-
-def choose_critical_places(
-    circuits: Sequence[Sequence[str]],
-    places: Sequence[PlaceSpec],
-    slack: Sequence[float | None] | None,
-) -> set[int]:
-    """The places to highlight for critical circuits given as transition ids in circuit order.
-
-    Between two consecutive transitions of a circuit there may be parallel places; the one
-    with the least slack in the document is the critical one. Without slacks, all of them are
-    highlighted (the document does not say which).
-    """
-    by_pair: dict[tuple[str, str], list[PlaceSpec]] = {}
-    for place in places:
-        by_pair.setdefault((place.source, place.target), []).append(place)
-    chosen: set[int] = set()
-    for circuit in circuits:
-        for i, source in enumerate(circuit):
-            target = circuit[(i + 1) % len(circuit)]
-            candidates = by_pair.get((source, target), [])
-            known = [] if slack is None else [
-                p for p in candidates if p.index < len(slack) and slack[p.index] is not None
-            ]
-            if known:
-                best = min(slack[p.index] for p in known)  # type: ignore[index,type-var]
-                chosen.update(p.index for p in known if slack[p.index] == best)  # type: ignore[index]
-            else:
-                chosen.update(p.index for p in candidates)
-    return chosen
-
-
-def _select(
-    transitions: Sequence[str],
-    places: Sequence[PlaceSpec],
-    critical: set[str],
-    limit: int,
-) -> list[str]:
-    """Transitions to draw: all of them, or the critical ones and their neighbours."""
+def _select(transitions: Sequence[str], places: Sequence[PlaceSpec], focus: Sequence[str],
+            limit: int) -> list[str]:
+    """Transitions to draw: all of them, or the focus (critical circuits, bottleneck) and the
+    transitions one place away from it, at most ``limit``."""
     if len(transitions) <= limit:
         return list(transitions)
     order = {t: i for i, t in enumerate(transitions)}
-    keep = sorted(critical, key=order.__getitem__)[:limit]
+    keep = list(dict.fromkeys(t for t in focus if t in order))[:limit]
+    if not keep:  # nothing known to focus on: the first transitions in document order
+        return list(transitions[:limit])
     kept = set(keep)
     neighbours: set[str] = set()
     for place in places:
@@ -171,53 +98,8 @@ def _select(
         if place.target in kept:
             neighbours.add(place.source)
     extra = sorted(neighbours - kept, key=order.__getitem__)
-    keep.extend(extra[: max(0, limit - len(keep))])
-    if not keep:  # no critical circuit known: the first transitions in document order
-        keep = list(transitions[:limit])
-    return keep
+    return keep + extra[: max(0, limit - len(keep))]
 
-
-def _columns(nodes: list[str], places: Sequence[PlaceSpec]) -> dict[str, int]:
-    """Longest token-free path from a source (cycles, which a live graph has not, are cut)."""
-    succ: dict[str, list[str]] = {t: [] for t in nodes}
-    for place in places:
-        if place.tokens == 0 and place.source != place.target:
-            succ[place.source].append(place.target)
-    # Depth-first topological order; an arc to a node still on the stack closes a cycle and
-    # is ignored, so the result is defined for any input.
-    state: dict[str, int] = {}
-    order: list[str] = []
-    for root in nodes:
-        if root in state:
-            continue
-        stack = [(root, iter(succ[root]))]
-        state[root] = 1
-        while stack:
-            node, it = stack[-1]
-            nxt = next(it, None)
-            if nxt is None:
-                state[node] = 2
-                order.append(node)
-                stack.pop()
-            elif nxt not in state:
-                state[nxt] = 1
-                stack.append((nxt, iter(succ[nxt])))
-    order.reverse()
-    rank = {t: i for i, t in enumerate(order)}
-    column = dict.fromkeys(nodes, 0)
-    fed: set[str] = set()
-    for node in order:
-        for nxt in succ[node]:
-            if rank[nxt] > rank[node]:
-                column[nxt] = max(column[nxt], column[node] + 1)
-                fed.add(nxt)
-    # A source sits just before the first transition it feeds, not in column 0: a second
-    # product line joining a shared vessel is drawn beside the vessel, not at the far left.
-    for node in reversed(order):
-        later = [column[n] for n in succ[node] if rank[n] > rank[node]]
-        if node not in fed and later:
-            column[node] = max(column[node], min(later) - 1)
-    return column
 
 
 def _is_ring(nodes: list[str], places: Sequence[PlaceSpec]) -> list[str] | None:
@@ -239,52 +121,8 @@ def _is_ring(nodes: list[str], places: Sequence[PlaceSpec]) -> list[str] | None:
     return ring if len(ring) == len(nodes) else None
 
 
-def _layered(
-    nodes: list[str], places: Sequence[PlaceSpec], critical: set[str], spacing: float
-) -> dict[str, Point] | None:
-    column = _columns(nodes, places)
-    n_columns = max(column.values()) + 1
-    if n_columns == 1:
-        return None
-    index = {t: i for i, t in enumerate(nodes)}
-    neighbours: dict[str, list[str]] = {t: [] for t in nodes}
-    for place in places:
-        if place.source != place.target:
-            neighbours[place.source].append(place.target)
-            neighbours[place.target].append(place.source)
-    layers: list[list[str]] = [[] for _ in range(n_columns)]
-    for t in nodes:
-        layers[column[t]].append(t)
-    row: dict[str, float] = {}
-    for layer in layers:
-        layer.sort(key=lambda t: (t not in critical, index[t]))
-        row.update({t: float(i) for i, t in enumerate(layer)})
-    # Barycentre sweeps, left to right then right to left; critical transitions stay on top.
-    for sweep in range(4):
-        sequence = layers if sweep % 2 == 0 else layers[::-1]
-        for layer in sequence[1:]:
-            def key(t: str) -> tuple[bool, float, int]:
-                near = [row[u] for u in neighbours[t] if column[u] != column[t]]
-                centre = sum(near) / len(near) if near else row[t]
-                return (t not in critical, centre, index[t])
-
-            layer.sort(key=key)
-            row.update({t: float(i) for i, t in enumerate(layer)})
-    return {t: (column[t] * spacing, -row[t] * 1.6) for t in nodes}
-
-
-def _circle(ring: list[str], spacing: float) -> dict[str, Point]:
-    n = len(ring)
-    radius = max(1.6, n * spacing / (2 * math.pi))
-    positions = {}
-    for i, t in enumerate(ring):
-        angle = math.pi / 2 - 2 * math.pi * i / n  # clockwise from the top
-        positions[t] = (radius * math.cos(angle), radius * math.sin(angle))
-    return positions
-
-
-def _ring_order(nodes: list[str], places: Sequence[PlaceSpec], circuits: Sequence[Sequence[str]]
-                ) -> list[str]:
+def _ring_order(nodes: list[str], places: Sequence[PlaceSpec],
+                circuits: Sequence[Sequence[str]]) -> list[str]:
     """Critical circuit first, then the others by a walk along the arcs, then the rest."""
     present = set(nodes)
     order: list[str] = []
@@ -303,116 +141,76 @@ def _ring_order(nodes: list[str], places: Sequence[PlaceSpec], circuits: Sequenc
     return order
 
 
-def _border(centre: Point, toward: Point, half_w: float, half_h: float) -> Point:
-    """Where the segment from a box centre toward a point leaves the box (plus a small gap)."""
-    dx, dy = toward[0] - centre[0], toward[1] - centre[1]
-    length = math.hypot(dx, dy) or 1.0
-    ux, uy = dx / length, dy / length
-    t = min(half_w / abs(ux) if ux else math.inf, half_h / abs(uy) if uy else math.inf)
-    t += 0.06
-    return centre[0] + t * ux, centre[1] + t * uy
 
+# --- the circle layout -----------------------------------------------------------------------
 
-def _bows(
-    positions: dict[str, Point], places: Sequence[PlaceSpec], spacing: float, kind: str
-) -> dict[int, float]:
-    """How far each arc bends: the offset of its control point along its left-hand normal."""
-    ys = [y for _, y in positions.values()]
-    centre_y = (max(ys) + min(ys)) / 2
-    centre_x = sum(x for x, _ in positions.values()) / len(positions)
-    nearest = min(
-        (math.dist(p, q) for s, p in positions.items() for t, q in positions.items() if s < t),
-        default=spacing,
-    )
-    bows: dict[int, float] = {}
-    for place in places:
-        a, b = positions[place.source], positions[place.target]
+def _circle(ring: list[str], places: Sequence[PlaceSpec], box_width: float,
+            critical_places: set[int]) -> tuple[dict[str, Point], list[Arc]]:
+    n = len(ring)
+    # Room for a box, a place circle and its label between two neighbours on the ring.
+    pitch = box_width + GAP_X + 0.9
+    radius = max(2.0, n * pitch / (2 * math.pi))
+    positions = {}
+    for i, t in enumerate(ring):
+        angle = math.pi / 2 - 2 * math.pi * i / n  # clockwise from the top
+        positions[t] = (radius * math.cos(angle), radius * math.sin(angle))
+    half_w, half_h = box_width / 2, BOX_HEIGHT / 2
+    nearest = min((math.dist(positions[s], positions[t]) for s in ring for t in ring if s < t),
+                  default=pitch)
+    groups: dict[tuple[str, str], list[PlaceSpec]] = {}
+    for p in places:
+        if p.source != p.target:
+            groups.setdefault((p.source, p.target), []).append(p)
+    arcs: dict[int, Arc] = {}
+    for (source, target), members in groups.items():
+        a, b = positions[source], positions[target]
         dx, dy = b[0] - a[0], b[1] - a[1]
         length = math.hypot(dx, dy)
         nx, ny = -dy / length, dx / length
-        if kind == "circle":
-            # Neighbours on the ring bow outwards (clockwise travel: left is outside).
-            bows[place.index] = 0.3 if length < 1.2 * nearest else 0.0
-            continue
-        if place.tokens == 0 and 0 < dx <= 1.01 * spacing:
-            bows[place.index] = 0.0  # a forward step to the next column: straight
-            continue
-        bow = 0.22 * length + 0.3 if dx > 0 else 0.3 * length + 0.6
-        # Bow away from the middle of the drawing, so that circuits close around it; on a
-        # tie (a drawing of one row), upwards.
-        mx, my = (a[0] + b[0]) / 2, (a[1] + b[1]) / 2
-
-        def spread(sign: float, mx: float = mx, my: float = my, nx: float = nx,
-                   ny: float = ny, bow: float = bow) -> float:
-            x, y = mx + sign * bow * nx, my + sign * bow * ny
-            return math.hypot(x - centre_x, y - centre_y) + 1e-6 * sign * ny
-
-        bows[place.index] = bow if spread(1.0) >= spread(-1.0) else -bow
-    # Places between one pair of transitions that would lie on one curve are spread apart.
-    # Offsets are compared in the frame of the sorted pair, where the normal of the
-    # opposite direction points the other way.
-    groups: dict[tuple[str, str, float], list[PlaceSpec]] = {}
-    for place in places:
-        lo, hi = sorted((place.source, place.target))
-        sign = 1.0 if (place.source, place.target) == (lo, hi) else -1.0
-        groups.setdefault((lo, hi, round(sign * bows[place.index], 6)), []).append(place)
-    for (lo, hi, offset), members in groups.items():
-        if len(members) < 2:
-            continue
-        for k, place in enumerate(members):
-            sign = 1.0 if (place.source, place.target) == (lo, hi) else -1.0
-            shift = (k - (len(members) - 1) / 2) * 0.5 if offset == 0 else k * 0.45
-            bows[place.index] = sign * (offset + math.copysign(shift, offset or 1.0))
-    return bows
+        # Neighbours on the ring bow outwards (clockwise travel: left is outside).
+        base = 0.3 if length < 1.2 * nearest else 0.0
+        for k, p in enumerate(sorted(members, key=lambda p: p.index)):
+            bow = base + k * 0.45
+            control = ((a[0] + b[0]) / 2 + bow * nx, (a[1] + b[1]) / 2 + bow * ny)
+            start, end = border(a, control, half_w, half_h), border(b, control, half_w, half_h)
+            points = quadratic(start, control, end) if bow else line(start, end)
+            mid, normal = arc_at(points)
+            arcs[p.index] = Arc(p.index, p.source, p.target, p.tokens, tuple(points), mid,
+                                normal, p.index in critical_places)
+    # Self-loops point away from the centre: up in the upper half, down in the lower one.
+    up = {t: 1.0 if y >= -1e-9 else -1.0 for t, (_, y) in positions.items()}
+    stack_loops(arcs, places, positions, half_h, critical_places, up)
+    return positions, [arcs[p.index] for p in places]
 
 
-def _arcs(
-    positions: dict[str, Point],
-    places: Sequence[PlaceSpec],
-    critical_places: set[int],
-    box_width: float,
-    spacing: float,
-    kind: str,
-) -> list[Arc]:
-    half_w, half_h = box_width / 2, BOX_HEIGHT / 2
-    loops = [p for p in places if p.source == p.target]
-    bows = _bows(positions, [p for p in places if p.source != p.target], spacing, kind)
-    arcs: dict[int, Arc] = {}
-    leaving: dict[str, list[float]] = {t: [] for t in positions}  # vertical directions used
-    for place in places:
-        if place.source == place.target:
-            continue
-        a, b = positions[place.source], positions[place.target]
-        dx, dy = b[0] - a[0], b[1] - a[1]
-        length = math.hypot(dx, dy)
-        nx, ny = -dy / length, dx / length  # the left-hand normal of the direction a -> b
-        bow = bows[place.index]
-        control = ((a[0] + b[0]) / 2 + bow * nx, (a[1] + b[1]) / 2 + bow * ny)
-        start = _border(a, control, half_w, half_h)
-        end = _border(b, control, half_w, half_h)
-        leaving[place.source].append(start[1] - a[1])
-        leaving[place.target].append(end[1] - b[1])
-        mid = ((start[0] + 2 * control[0] + end[0]) / 4, (start[1] + 2 * control[1] + end[1]) / 4)
-        side = (nx, ny) if bow >= 0 else (-nx, -ny)
-        arcs[place.index] = Arc(place.index, place.source, place.target, place.tokens,
-                                (start, control, end), mid, side,
-                                place.index in critical_places)
-    stacked: dict[str, int] = {}
-    for place in loops:
-        # A self-loop goes above the box, or below it when more arcs leave from the top.
-        x, y = positions[place.source]
-        used = leaving[place.source]
-        up = 1.0 if sum(v > 1e-9 for v in used) <= sum(v < -1e-9 for v in used) else -1.0
-        k = stacked.get(place.source, 0)
-        stacked[place.source] = k + 1
-        lift = up * (0.75 + 0.35 * k)
-        edge = y + up * half_h
-        points = ((x - 0.22, edge), (x - 0.45, edge + lift), (x + 0.45, edge + lift),
-                  (x + 0.22, edge))
-        arcs[place.index] = Arc(place.index, place.source, place.target, place.tokens, points,
-                                (x, edge + 0.75 * lift), (1.0, 0.0),
-                                place.index in critical_places)
-    return [arcs[p.index] for p in places]
+
+# --- labels ----------------------------------------------------------------------------------
+
+def _obstacles(nodes: Mapping[str, Point], half_w: float, half_h: float,
+               arcs: Sequence[Arc], show_places: bool) -> list[Box]:
+    boxes = [(x - half_w, y - half_h, x + half_w, y + half_h) for x, y in nodes.values()]
+    if show_places:
+        r = PLACE_RADIUS + 0.02
+        boxes += [(a.mid[0] - r, a.mid[1] - r, a.mid[0] + r, a.mid[1] + r) for a in arcs]
+    return boxes
+
+
+
+# --- the front door --------------------------------------------------------------------------
+
+def _arrange(chosen: list[str], drawn: list[PlaceSpec], box_width: float,
+             critical_places: set[int], critical_circuits: Sequence[Sequence[str]]
+             ) -> tuple[str, dict[str, Point], list[Arc], int]:
+    """Kind, positions, arcs and bands: a circle for a small ring, else the layers."""
+    ring = _is_ring(chosen, drawn)
+    small_ring = ring is not None and len(ring) <= MAX_CIRCLE
+    result = None if small_ring else layered(chosen, drawn, box_width, critical_places)
+    if result is None:
+        order = ring if small_ring and ring else _ring_order(chosen, drawn, critical_circuits)
+        positions, arcs = _circle(order, drawn, box_width, critical_places)
+        return "circle", positions, arcs, 1
+    positions, arcs, bands = result
+    return "layered", positions, arcs, bands
 
 
 def layout_graph(
@@ -421,6 +219,11 @@ def layout_graph(
     critical_circuits: Sequence[Sequence[str]] = (),
     critical_places: set[int] | None = None,
     limit: int = 60,
+    place_text: Mapping[int, str] | None = None,
+    bottleneck: str | None = None,
+    bottleneck_place: int | None = None,
+    box_text: Mapping[str, str] | None = None,
+    show_places: bool = True,
 ) -> Drawing:
     """Lay out an event graph.
 
@@ -435,50 +238,132 @@ def layout_graph(
     critical_places
         Indices of the places to highlight (see :func:`choose_critical_places`).
     limit
-        Largest number of transitions drawn; beyond it only the critical circuits and their
-        neighbourhood are drawn.
+        Largest number of transitions drawn; beyond it only the critical circuits, the
+        bottleneck and their neighbourhood are drawn. A smaller graph too dense to print at
+        :data:`MIN_PRINT_SCALE` is drawn in part the same way.
+    place_text
+        Text to write beside each place (slack, criticality), placed without overlap.
+    bottleneck, bottleneck_place
+        The bottleneck transition or place, tagged in the drawing and always drawn.
+    box_text
+        Text written in each box instead of its shortened id.
+    show_places
+        False for a map without places (the components): no circles, no tokens.
 
     Returns
     -------
     Drawing
-        Positions, arcs and what was left out.
+        Positions, arcs, labels and what was left out.
     """
     critical = {t for circuit in critical_circuits for t in circuit}
-    chosen = _select(transitions, places, critical, limit)
-    kept = set(chosen)
-    drawn = [p for p in places if p.source in kept and p.target in kept]
-    width = max(0.9, 0.13 * max(len(short_label(t)) for t in chosen) + 0.4)
-    spacing = width + 1.5
-    ring = _is_ring(chosen, drawn)
-    positions = None if ring else _layered(chosen, drawn, critical, spacing)
-    kind = "layered"
-    if positions is None:
-        kind = "circle"
-        positions = _circle(ring or _ring_order(chosen, drawn, critical_circuits), spacing)
-    arcs = _arcs(positions, drawn, critical_places or set(), width, spacing, kind)
+    focus = [t for circuit in critical_circuits for t in circuit]
+    by_index = {p.index: p for p in places}
+    if bottleneck_place is not None and bottleneck_place in by_index:
+        bp = by_index[bottleneck_place]
+        focus = [bp.source, bp.target, *focus]
+    if bottleneck is not None:
+        focus = [bottleneck, *focus]
+    critical_places = critical_places or set()
+    # A graph too dense to print legibly is drawn in part, like a large one: fewer
+    # transitions around the focus until it prints at MIN_PRINT_SCALE or more.
+    size = limit
+    while True:
+        chosen = _select(transitions, places, focus, size)
+        kept = set(chosen)
+        drawn = [p for p in places if p.source in kept and p.target in kept]
+        texts = {t: (box_text or {}).get(t) or short_label(t) for t in chosen}
+        box_width = max(0.8, max(text_size(s, BOX_FONT, True)[0] for s in texts.values())
+                        + 0.3)
+        kind, positions, arcs, bands = _arrange(chosen, drawn, box_width, critical_places,
+                                                critical_circuits)
+        xmin, xmax, ymin, ymax = Drawing(kind, positions, box_width, BOX_HEIGHT, tuple(arcs),
+                                         frozenset(), 0, 0).bounds()
+        if len(chosen) <= 12 or print_scale(xmax - xmin, ymax - ymin) >= MIN_PRINT_SCALE:
+            break
+        size = max(12, int(len(chosen) * 0.75))
+    positions = {t: (round(x, 9), round(y, 9)) for t, (x, y) in positions.items()}
+    half_w, half_h = box_width / 2, BOX_HEIGHT / 2
+    obstacles = _obstacles(positions, half_w, half_h, arcs, show_places)
+    wanted: list[tuple[Point, Point, float, str, str, bool]] = []
+    if bottleneck in positions:
+        wanted.append((positions[bottleneck], (0.0, -1.0), half_h, "bottleneck", "tag", True))
+    arc_of = {a.place: a for a in arcs}
+    if bottleneck_place in arc_of and show_places:
+        a = arc_of[bottleneck_place]  # type: ignore[index]
+        wanted.append((a.mid, a.normal, PLACE_RADIUS, "bottleneck", "tag", True))
+    texts_wanted = place_text or {}
+    # Critical places first: their labels are the ones a reviewer reads.
+    for arc in sorted(arcs, key=lambda a: (not a.critical, a.place)):
+        text = texts_wanted.get(arc.place)
+        if text and show_places:
+            wanted.append((arc.mid, arc.normal, PLACE_RADIUS, text, "place", False))
+    labels, dropped = place_labels(wanted, Boxes(obstacles), Strokes([a.points for a in arcs]))
     return Drawing(
         kind=kind,
         nodes=positions,
-        box_width=width,
+        box_width=box_width,
         box_height=BOX_HEIGHT,
         arcs=tuple(arcs),
         critical_transitions=frozenset(critical & kept),
         hidden_transitions=len(transitions) - len(chosen),
         hidden_places=len(places) - len(drawn),
+        labels=tuple(labels),
+        dropped_labels=dropped,
+        box_text=texts,
+        bands=bands,
+        bottleneck=bottleneck if bottleneck in positions else None,
+        bottleneck_place=bottleneck_place if bottleneck_place in arc_of else None,
+        show_places=show_places,
     )
 
 
-def place_labels(
-    drawing: Drawing, values: Mapping[int, str]
-) -> list[tuple[Point, str, str]]:
-    """Label positions beside the place circles: ``(point, text, horizontal alignment)``."""
-    out = []
-    for arc in drawing.arcs:
-        text = values.get(arc.place)
-        if not text:
-            continue
-        sx, sy = arc.label_side
-        point = (arc.mid[0] + sx * 0.3, arc.mid[1] + sy * 0.3)
-        align = "left" if sx > 0.3 else "right" if sx < -0.3 else "center"
-        out.append((point, text, align))
-    return out
+@dataclass(frozen=True)
+class ComponentMap:
+    """The strongly connected components of a graph, laid out as a small map."""
+
+    drawing: Drawing
+    #: Per component, in map order: its name, its transitions, and whether it is critical.
+    names: tuple[str, ...]
+    members: tuple[tuple[str, ...], ...]
+    hidden_components: int
+
+
+def component_map(transitions: Sequence[str], places: Sequence[PlaceSpec],
+                  value_text: Mapping[str, str], critical: set[str],
+                  limit: int = 30) -> ComponentMap:
+    """The condensation of the graph: one box per strongly connected component.
+
+    Each box says its name, its size and ``value_text`` of its first transition (the cycle
+    time, formatted by the page); arcs join components joined by a place. At most ``limit``
+    components are drawn: those holding critical transitions and then the largest.
+    """
+    import igraph
+
+    index = {t: i for i, t in enumerate(transitions)}
+    edges = sorted({(index[p.source], index[p.target]) for p in places
+                    if p.source in index and p.target in index})
+    graph = igraph.Graph(n=len(transitions), edges=edges, directed=True)
+    membership = graph.connected_components(mode="strong").membership
+    groups: dict[int, list[str]] = {}
+    for t in transitions:
+        groups.setdefault(membership[index[t]], []).append(t)
+    # Components in the order of their first transition in the document.
+    ordered = sorted(groups.values(), key=lambda g: index[g[0]])
+    ranked = sorted(range(len(ordered)), key=lambda i: (not (set(ordered[i]) & critical),
+                                                        -len(ordered[i]), i))
+    shown = sorted(ranked[:limit])
+    names = {i: f"C{i + 1}" for i in shown}
+    comp_of = {t: i for i, g in enumerate(ordered) for t in g}
+    links = sorted({(comp_of[p.source], comp_of[p.target]) for p in places
+                    if p.source in comp_of and p.target in comp_of
+                    and comp_of[p.source] != comp_of[p.target]
+                    and comp_of[p.source] in names and comp_of[p.target] in names})
+    specs = [PlaceSpec(k, names[a], names[b], 0) for k, (a, b) in enumerate(links)]
+    box_text = {names[i]: f"{names[i]} · {len(ordered[i])} · {value_text.get(ordered[i][0], '–')}"
+                for i in shown}
+    crit_names = [names[i] for i in shown if set(ordered[i]) & critical]
+    drawing = layout_graph([names[i] for i in shown], specs, [crit_names] if crit_names else [],
+                           box_text=box_text, show_places=False, limit=limit)
+    return ComponentMap(drawing, tuple(names[i] for i in shown),
+                        tuple(tuple(ordered[i]) for i in shown), len(ordered) - len(shown))
+

@@ -10,11 +10,13 @@ from __future__ import annotations
 
 import html
 import math
+import re
 from collections.abc import Mapping, Sequence
 from typing import Any
 
-__all__ = ["MAX_ROWS", "WIDE", "Figures", "e", "fmt", "get", "pct", "section", "table",
-           "time_unit", "with_unit"]
+__all__ = ["MAX_ROWS", "WIDE", "Figures", "circuit", "count", "e", "fmt", "get", "hourly",
+           "interval", "is_random", "more", "pct", "section", "table", "time_unit", "unit_word",
+           "with_unit"]
 
 e = html.escape
 
@@ -32,6 +34,66 @@ def get(mapping: Any, key: str) -> Any:
 def time_unit(document: Mapping[str, Any]) -> str:
     """The model's time unit ("" when none)."""
     return str(document["model"].get("time_unit") or "")
+
+
+def is_random(document: Mapping[str, Any]) -> bool:
+    """Random durations: the model says so, or the analysis is not exact."""
+    analysis = get(document, "analysis") or {}
+    return bool(document["model"].get("is_random")) or analysis.get("exact") is False
+
+
+#: Time units whose rates read better per hour (or per second), and the factor to get there.
+_RATE_UNITS = {"s": ("hour", 3600.0), "sec": ("hour", 3600.0), "second": ("hour", 3600.0),
+               "seconds": ("hour", 3600.0), "min": ("hour", 60.0), "minute": ("hour", 60.0),
+               "minutes": ("hour", 60.0), "h": ("hour", 1.0), "hour": ("hour", 1.0),
+               "hours": ("hour", 1.0), "ms": ("second", 1000.0)}
+
+
+def hourly(rate: float, unit: str) -> tuple[float, str] | None:
+    """A rate per time unit as a rate per hour (per second for ms), when the unit allows.
+
+    >>> rate, per = hourly(1 / 17.375, "s")
+    >>> fmt(rate), per
+    ('207.2', 'hour')
+    >>> hourly(2.0, "days") is None
+    True
+    """
+    known = _RATE_UNITS.get(unit.strip().lower())
+    if known is None:
+        return None
+    per, factor = known
+    return rate * factor, per
+
+
+#: Longest circuit written out in full; longer ones are cut in the middle.
+MAX_CIRCUIT = 8
+
+
+def circuit(ids: Sequence[Any]) -> str:
+    """A circuit closed on its first transition, cut in the middle when long.
+
+    >>> circuit(["a", "b"])
+    'a → b → a'
+    >>> circuit([f"s{i}" for i in range(1, 31)])
+    's1 → s2 → s3 → s4 → … (and 24 more transitions) → s29 → s30 → s1'
+    """
+    names = [e(str(t)) for t in ids]
+    if not names:
+        return "–"
+    if len(names) > MAX_CIRCUIT:
+        left = len(names) - 6
+        names = [*names[:4], f"… ({more(left, 'transition')})", *names[-2:]]
+    return " → ".join([*names, e(str(ids[0]))])
+
+
+def count(n: int, word: str, plural: str | None = None) -> str:
+    """``3 firings``, ``1 firing``."""
+    return f"{fmt(n)} {word if n == 1 else plural or word + 's'}"
+
+
+def more(n: int, word: str, plural: str | None = None) -> str:
+    """What a cut list leaves out, in the page's words: ``and 12 more transitions``."""
+    return f"and {fmt(n)} more {word if n == 1 else plural or word + 's'}"
 
 
 def with_unit(value: str, unit: str) -> str:
@@ -108,6 +170,30 @@ def fmt(value: Any, digits: int = 4) -> str:
         if abs(x) >= 1000 and "." not in text and "e" not in text:
             text = f"{int(text):,}"
     return text.replace("-", "−")
+
+
+def interval(low: Any, high: Any, digits: int = 4) -> str:
+    """Both ends of an interval with as many decimals as the more precise one needs.
+
+    >>> interval(2.6, 2.66), interval(10.41, 10.83), interval(None, 3.0)
+    ('2.60 – 2.66', '10.41 – 10.83', '– – 3')
+    """
+    ends = [fmt(low, digits), fmt(high, digits)]
+    decimals = [len(t.split(".")[1]) if re.fullmatch(r"−?[\d,]+\.\d+", t) else 0 for t in ends]
+    if all(re.fullmatch(r"−?[\d,]+(\.\d+)?", t) for t in ends) and len(set(decimals)) > 1:
+        ends = [t + ("." if d == 0 else "") + "0" * (max(decimals) - d)
+                for t, d in zip(ends, decimals, strict=True)]
+    return f"{ends[0]} – {ends[1]}"
+
+
+_UNIT_WORDS = {"s": "second", "sec": "second", "ms": "millisecond", "min": "minute",
+               "h": "hour", "d": "day"}
+
+
+def unit_word(unit: str) -> str:
+    """The time unit as a word for prose: ``each minute``, ``each time unit``."""
+    unit = unit.strip()
+    return _UNIT_WORDS.get(unit, unit) or "time unit"
 
 
 def pct(value: Any) -> str:

@@ -10,7 +10,7 @@ from __future__ import annotations
 from collections.abc import Mapping
 from typing import Any
 
-from .markup import e, fmt, pct, section, table
+from .markup import e, fmt, is_random, more, pct, section, table
 
 __all__ = ["algebra", "cautions", "footer", "reproducibility", "semantics"]
 
@@ -25,13 +25,18 @@ def _power(k: int) -> str:
 
 
 def algebra(document: Mapping[str, Any]) -> str:
-    """The certificate of the exact result and the characteristic maxpolynomial."""
+    """The appendix: the certificate of the exact result and the characteristic
+    maxpolynomial; of a random model, those of its mean durations."""
     analysis = document.get("analysis") or {}
     certificate = analysis.get("certificate")
     charpoly = analysis.get("charpoly")
     if not certificate and not charpoly:
         return ""
-    out = ""
+    random = is_random(document)
+    out = ('<p class="note">The numbers below verify the exact analysis of the <strong>mean '
+           "durations</strong> (every random duration replaced by its mean): the lower bound "
+           "and the critical circuit of the mean durations, not the estimates of this "
+           "model.</p>\n") if random else ""
     if certificate:
         checked = bool(certificate.get("checked"))
         mark = "✓ Checked" if checked else "○ Not checked"
@@ -63,21 +68,24 @@ def algebra(document: Mapping[str, Any]) -> str:
             (_power(int(k)) if float(c) == 0 and k else
              f"{fmt(c, 6)}{' ⊗ ' + _power(int(k)) if k else ''}") for k, c in terms[:MAX_TERMS]]
         if written:
-            more = " ⊕ …" if len(terms) > MAX_TERMS else ""
+            rest = (f" ⊕ … ({more(len(terms) - MAX_TERMS, 'term')})"
+                    if len(terms) > MAX_TERMS else "")
             out += ('<p>Characteristic maxpolynomial (essential terms): '
-                    f'<span class="formula">χ(z) = {" ⊕ ".join(written)}{more}</span></p>\n')
+                    f'<span class="formula">χ(z) = {" ⊕ ".join(written)}{rest}</span></p>\n')
         if rows:
             out += table(["Corner", "Multiplicity"], rows, {0, 1},
                          "Corners of the characteristic maxpolynomial", compact=True)
             out += ('<p class="note">The corners are the roots of χ; the greatest corner is '
                     "the cycle time of the matrix of the expanded event graph.</p>\n")
-    return section("algebra", "How the exact result was verified", out)
+    heading = ("Appendix: the algebra of the mean durations" if random else
+               "Appendix: how the exact result was verified")
+    return section("algebra", heading, out)
 
 
 def semantics(document: Mapping[str, Any]) -> str:
     """Assumptions and semantics in plain words."""
     model = document["model"]
-    random = bool(model.get("is_random"))
+    random = is_random(document)
     unit = model.get("time_unit")
     items = [
         "A <em>transition</em> is an event that repeats (a machine finishes a part, a vehicle "
@@ -90,12 +98,18 @@ def semantics(document: Mapping[str, Any]) -> str:
         "token the transition is a single server; with n tokens firing k waits for firing "
         "k − n (this is not the same as a pooled queue with n servers).",
         "Tokens leave a place in the order of the firings that produced them (firing k takes "
-        "token k − m of each input place, even if a random hold lets a later token arrive "
-        "first), so the recursion describes the simulation exactly.",
+        "token k − m of each input place" + (", even if a random hold lets a later token "
+                                             "arrive first" if random else "") + "), so the "
+        "recursion describes the simulation exactly.",
         "The <em>cycle time</em> λ is the long-run time between two firings of a transition; "
         "the throughput is 1/λ. A <em>critical circuit</em> is a circuit whose total duration "
-        "per token equals λ: it is the bottleneck. <em>Slack</em> is how much a duration or a "
-        "hold may grow before λ changes.",
+        "per token equals λ" + (" of the mean durations" if random else "") + ". <em>Slack"
+        "</em> is how much a duration or a hold may grow before λ changes" + (
+            " (of the mean durations)" if random else "") + ". The <em>bottleneck</em> is the "
+        "element whose duration (or hold) the cycle time depends on most, the largest "
+        "dλ/d(duration)" + (": under variability it need not lie on the critical circuit of "
+                            "the mean durations." if random else
+                            ": with fixed durations it lies on a critical circuit."),
     ]
     if random:
         criticality = (document.get("analysis") or {}).get("criticality") or {}
@@ -134,6 +148,8 @@ def reproducibility(document: Mapping[str, Any]) -> str:
               ("replications", "Replications", fmt),
               ("firings_per_replication", "Firings per replication", fmt),
               ("warmup", "Warm-up (firings deleted per replication)", fmt)]
+    if not is_random(document):
+        labels = labels[2:]  # seed and precision target belong to estimates of random models
     for key, label, how in labels:
         if settings.get(key) is not None:
             rows.append((label, how(settings[key])))
@@ -149,22 +165,44 @@ def reproducibility(document: Mapping[str, Any]) -> str:
     items = "".join(f"<dt>{label}</dt><dd>{value}</dd>\n" for label, value in rows)
     what = ("The same command" if str(document.get("command_line", "")).startswith("cyclecheck")
             else "The same call")
+    seed = "seed, " if is_random(document) else ""
     log = ", the same event log" if document.get("command") == "trace" else ""
-    text = (f"<p>{what} with the same seed, model file{log} and versions gives the same "
+    text = (f"<p>{what} with the same {seed}model file{log} and versions gives the same "
             "numbers, on any number of workers.</p>\n")
     return section("reproducibility", "Reproducibility",
                    text + f'<dl class="record">\n{items}</dl>\n')
 
 
-def cautions() -> str:
+def cautions(document: Mapping[str, Any]) -> str:
     """What the results are, and what they are not."""
+    random = is_random(document)
+    if document.get("command") == "trace":
+        alpha = document.get("alpha")
+        level = f"{100 * float(alpha):g} %" if isinstance(alpha, int | float) else "α"
+        items = [
+            "The judgement compares a log with the model file: a consistent log shows that the "
+            "simulation that wrote it behaves as the model says, not that the model describes "
+            "the real system.",
+            "The statistical tests can err: with a family-wise error rate of "
+            f"{level}, a consistent model is called inconsistent that often by chance; a "
+            "consistent verdict means no evidence against the model in this log, and the "
+            "detectable changes say how large a difference it could have missed.",
+            "Decisions that affect safety — a rail timetable, a plant's capacity — follow local "
+            "rules and the sign-off of a responsible engineer.",
+        ]
+        content = "<ul>\n" + "".join(f"<li>{item}</li>\n" for item in items) + "</ul>\n"
+        return section("cautions", "Cautions", content)
     items = [
         "The results are model-based: they hold for the model as written, its structure, its "
         "durations and their distributions. Checking the simulation against the theory shows "
         "that the simulation computes the model correctly; it does not show that the model "
         "describes the real system.",
-        "Estimates under random durations carry statistical error; the intervals are 95 % "
-        "confidence intervals, not guarantees.",
+        ("Estimates under random durations carry statistical error; the intervals are 95 % "
+         "confidence intervals, not guarantees. Numbers of the mean durations are exact for "
+         "the mean durations only." if random else
+         "The durations are fixed: real durations vary, and variability slows a synchronised "
+         "system down, so the cycle time here is what the system achieves at best with these "
+         "durations."),
         "Decisions that affect safety — a rail timetable, a plant's capacity — follow local "
         "rules and the sign-off of a responsible engineer.",
     ]

@@ -71,9 +71,39 @@ belongs): :func:`cyclecheck.reports.schema.check_document` enforces all of it an
         criticality         {"transitions": {id: fraction}, "places": [fraction, ...],
                             "definition": str} | None: how often the element set the firing
                             time (random durations); the definition, when given, is shown
-        utilization         {id: fraction} | None: share of time busy (per server)
+        utilization         {id: fraction ≥ 0} | None: mean busy servers / servers (at most 1
+                            when ``servers`` is given; older documents without it gave the
+                            share of time busy, which may exceed 1 where firings overlap)
+        servers             {id: int ≥ 1 | None}: the tokens of the transition's self-loop,
+                            None without one (no limit)
+        busy_servers        {id: float ≥ 0 | None}: mean firings in progress (shown for
+                            transitions without a server limit)
+        sensitivity         [{"element": "transition" | "place" (required), "id": id
+                              (transitions, required), "index": place index from 0 (places,
+                              required), "derivative": finite float | None: dλ/d(mean
+                              duration or hold), "ci": [low, high] with low <= high (the 95 %
+                              interval; for fixed durations the one-sided derivatives
+                              [decrease, increase])}]
+        sensitivity_exact   bool: exact derivatives (fixed durations)
+        sensitivity_omitted int: entries left out of a long list
+        bottleneck          a ``sensitivity`` entry (the largest derivative among elements of
+                            positive mean) | None, optionally with "mean", "name",
+                            "on_mean_critical_circuit": bool, "faster_10_percent": {"mean",
+                            "cycle_time", "change"} (first order), or
+                            "cycle_time_if_10_percent_faster" and
+                            "cycle_time_if_10_percent_faster_ci": [low, high]
+        unbounded_places    [{"index", "from", "to" (required), "growth_rate": tokens per
+                            time unit | None (no bound at all), "status": "unstable" |
+                            "critical load", "from_cycle_time", "to_cycle_time", "text"}]:
+                            places that gain tokens without bound; ``from`` and ``to`` those
+                            of model.places[index]; [] when none
+                            Ids in these keys must name transitions of model.transitions when
+                            the model lists all of them (n_transitions equal to the list's
+                            length); place indices must be below n_places.
     simulation      the SimPy side: cycle_time (required), cycle_time_ci, throughput,
-                    firings_simulated, exact, utilization, criticality, as in ``analysis``
+                    firings_simulated, exact, utilization, criticality, and the keys from
+                    servers to unbounded_places above, as in ``analysis`` (the page reads
+                    them from ``analysis`` first)
     comparison      {"verdict": "agrees" | "disagrees" (required), "reasons": [str, ...],
                      "sample_path": {"identical": bool, "max_relative_difference": float,
                                      "firings_compared": int, "replications_compared": int}}
@@ -88,9 +118,23 @@ belongs): :func:`cyclecheck.reports.schema.check_document` enforces all of it an
                         (four lists of one length) | None
         replication_estimates {"recursion": [float], "simulation": [float]} | None
 
+The documents of ``analyze`` and ``simulate`` may hold the keys of ``analysis`` (or of
+``simulation``) at their top level, as ``--json`` prints them;
+:func:`cyclecheck.reports.schema.as_sections` maps them into their section.
+
 Numbers are written with 4 significant digits (6 for an exact cycle time, wherever it is
-shown), integers with
-thousands separators, fractions as percentages, and negative numbers with a true minus sign.
+shown), both ends of an interval with as many decimals, integers with thousands separators,
+fractions as percentages, rates also per hour where the time unit is s or min, and negative
+numbers with a true minus sign.
+
+The page, top to bottom: a warning when places grow without bound; the verdict with the
+bottleneck (its derivative, what 10 % faster gives, ties, and for random models whether it
+lies on the critical circuit of the mean durations); the key numbers, each said to be exact
+or estimated; where to act (sensitivity, utilization per server); the event graph (folded
+into bands, in part with a map of its components above 60 transitions); transitions and
+places; the periodic schedule or the variability of the estimates; x(k) − kλ (a band for
+random models); the sample paths; what belongs to the mean durations (random models);
+semantics, reproducibility and cautions; and the algebra as an appendix.
 """
 
 from __future__ import annotations

@@ -127,6 +127,14 @@ def scalar(value: Any, item: str) -> None:
         raise ReportError(item, f"must be a text or a number, not {_what(value)}")
 
 
+def _at_least(low: float) -> Check:
+    def check(value: Any, item: str) -> None:
+        number(value, item)
+        if not value >= low:
+            raise ReportError(item, f"must be >= {low:g}, not {value!r}")
+    return check
+
+
 def nullable(check: Check) -> Check:
     def inner(value: Any, item: str) -> None:
         if value is not None:
@@ -248,13 +256,95 @@ CERTIFICATE_NUMBERS = ("circuit_ratio", "circuit_gap", "monotone_gap", "eigen_re
                        "max_reduced_weight", "tolerance")
 
 
-def _sections(ids: set[str], n_places: int) -> dict[str, Check]:
-    """The checks of the document's sections, for a model with these transitions and places."""
+def _entry(transition: Check, place: Check) -> Check:
+    """One element of ``sensitivity``: a transition by id or a place by index, dλ/d(mean),
+    and its 95 % interval (``[d, d]`` for fixed durations)."""
+    def check(value: Any, item: str) -> None:
+        # A derivative the estimate could not give (not finite) is written null.
+        fields({"element": one_of("transition", "place"), "derivative": finite,
+                "ci": list_of(nullable(finite), length=2), "path_criticality": number},
+               required=("element",))(value, item)
+        if value["element"] == "transition":
+            fields({"id": transition}, required=("id",))(value, item)
+        else:
+            fields({"index": place}, required=("index",))(value, item)
+        low, high = value.get("ci") or [None, None]
+        if low is not None and high is not None and low > high:
+            raise ReportError(f"{item}.ci", f"the low end {low!r} must not exceed the high "
+                                            f"end {high!r}")
+    return check
+
+
+def _bottleneck(entry: Check) -> Check:
+    """The bottleneck: a sensitivity entry (the largest derivative among elements of positive
+    mean), with what a 10 % faster element gives, in either of two spellings."""
+    def check(value: Any, item: str) -> None:
+        entry(value, item)
+        fields({"cycle_time_if_10_percent_faster": finite,
+                "cycle_time_if_10_percent_faster_ci": list_of(nullable(finite), length=2),
+                "faster_10_percent": fields({"mean": finite, "cycle_time": finite,
+                                             "change": finite}),
+                "mean": number, "name": text, "on_mean_critical_circuit": boolean}
+               )(value, item)
+    return check
+
+
+def _where_to_act(side: Any, item: str, places: list[Any]) -> None:
+    """Rules that join keys: an unbounded place is the place of the model at its index,
+    utilization per server is at most 1."""
+    if not isinstance(side, Mapping):
+        return
+    for i, grow in enumerate(side.get("unbounded_places") or []):
+        index = grow["index"]
+        if index < len(places):
+            for end in ("from", "to"):
+                if grow[end] != places[index][end]:
+                    raise ReportError(f"{item}.unbounded_places[{i}].{end}",
+                                      f"must be {places[index][end]!r}, the {end} of "
+                                      f"model.places[{index}]")
+    if side.get("servers") is not None:
+        for key, value in (side.get("utilization") or {}).items():
+            if value is not None and value > 1 + 1e-9:
+                raise ReportError(f"{item}.utilization.{key}", "busy servers per server must be "
+                                  f"at most 1, not {value!r}")
+
+
+def _sections(ids: set[str], n_places: int, complete: bool = True) -> dict[str, Check]:
+    """The checks of the document's sections, for a model with these transitions and places
+    (``complete``: the model lists all its transitions, so ids can be checked by name)."""
     by_id = mapping_of(nullable(number))
     per_place = list_of(nullable(number))
     interval = list_of(nullable(number), length=2)
     transition = member(ids, "must name a transition of model.transitions")
     criticality = fields({"transitions": by_id, "places": per_place, "definition": text})
+    named = transition if complete else text
+    place = index_below(n_places, "must be the index of a place of the model")
+    entry = _entry(named, place)
+
+    def keyed(check: Check) -> Check:
+        """An object by transition id whose values pass ``check``; ids named when known."""
+        def inner(value: Any, item: str) -> None:
+            mapping_of(check)(value, item)
+            for key in value:
+                named(key, f"{item}.{key}")
+        return inner
+
+    act = {
+        "sensitivity": list_of(entry),
+        "bottleneck": _bottleneck(entry),
+        "sensitivity_exact": boolean,
+        "sensitivity_omitted": integer(0),
+        # growth_rate null: without bound in no time (the source never waits).
+        "unbounded_places": list_of(fields(
+            {"index": place, "from": named, "to": named, "growth_rate": finite,
+             "status": one_of("unstable", "critical load"), "from_cycle_time": number,
+             "to_cycle_time": number, "text": scalar},
+            required=("index", "from", "to"))),
+        "utilization": keyed(nullable(_at_least(0.0))),
+        "utilization_definition": text,
+        "busy_servers": keyed(nullable(_at_least(0.0))),
+        "servers": keyed(nullable(integer(1))),
+    }
     analysis = fields({
         "cycle_time": number,
         "cycle_time_ci": interval,
@@ -275,7 +365,7 @@ def _sections(ids: set[str], n_places: int) -> dict[str, Check]:
         "charpoly": _charpoly,
         "transient_firings": integer(0),
         "criticality": criticality,
-        "utilization": by_id,
+        **act,
     }, required=("cycle_time",))
     simulation = fields({
         "cycle_time": number,
@@ -284,8 +374,8 @@ def _sections(ids: set[str], n_places: int) -> dict[str, Check]:
         "cycle_time_by_transition": by_id,
         "firings_simulated": integer(0),
         "exact": boolean,
-        "utilization": by_id,
         "criticality": criticality,
+        **act,
     }, required=("cycle_time",))
     comparison = fields({
         "verdict": one_of("agrees", "disagrees"),
@@ -509,6 +599,11 @@ def check_document(document: Any) -> None:
     elif not document.get("analysis") and not document.get("simulation"):
         raise ReportError("analysis", "a document needs an analysis or a simulation section")
     ids = {str(t["id"]) for t in model["transitions"]}
-    for key, check in _sections(ids, len(model["places"])).items():
+    listed = len(model["transitions"])
+    complete = model.get("n_transitions") in (None, listed)
+    n_places = max(len(model["places"]), model.get("n_places") or 0)
+    for key, check in _sections(ids, n_places, complete).items():
         if document.get(key) is not None:
             check(document[key], key)
+    for key in ("analysis", "simulation"):
+        _where_to_act(document.get(key), key, model["places"])

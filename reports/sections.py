@@ -2,24 +2,43 @@
 
 Each function returns HTML text (or ``""`` when the document has nothing for it). Every string
 from the document goes through :func:`html.escape`; numbers go through
-:func:`cyclecheck.reports.page.fmt`. The order of the page: verdict, key numbers, the event
-graph, transitions and places, the periodic schedule, the transient, variability (random
-durations), the sample-path comparison, the algebraic checks, semantics, reproducibility and
-cautions.
+:func:`cyclecheck.reports.markup.fmt`. The order of the page: the verdict with the bottleneck
+(and a warning when the model is unstable), the key numbers, where to act (sensitivity,
+utilization), the event graph, transitions and places, the periodic schedule or the
+variability of the estimates, the transient, the sample-path comparison, what belongs to the
+mean durations (random models), semantics, reproducibility, cautions, and the algebraic
+verification as an appendix.
 """
 
 from __future__ import annotations
 
 import re
-from collections.abc import Mapping, Sequence
+from collections.abc import Mapping
 from typing import Any
 
-from . import figures, notes
-from .layout import PlaceSpec, choose_critical_places, layout_graph
-from .markup import MAX_ROWS, Figures, e, fmt, get, pct, section, table, time_unit, with_unit
+from . import bottleneck, notes, timing
+from .graph import critical_place_set, graph_section
+from .markup import (
+    MAX_ROWS,
+    Figures,
+    circuit,
+    e,
+    fmt,
+    get,
+    hourly,
+    interval,
+    is_random,
+    more,
+    pct,
+    section,
+    table,
+    time_unit,
+    with_unit,
+)
 from .schema import ReportError
 
 __all__ = ["body"]
+
 
 def _masthead(document: Mapping[str, Any]) -> str:
     model = document["model"]
@@ -67,19 +86,27 @@ def _verdict(document: Mapping[str, Any]) -> str:
     else:
         mark, css = "○", "neutral"
         if document.get("analysis") and not document.get("simulation"):
-            word, line = "Analysis only", "No simulation was run: the numbers are max-plus theory."
+            word = "Analysis only"
+            line = ("No SimPy simulation was run: the estimates come from the max-plus "
+                    "recursion on random draws." if is_random(document) else
+                    "No simulation was run: the numbers are max-plus theory.")
         else:
             word, line = "No verdict", "The document holds no comparison of the two engines."
         why = ""
     return (f'<section id="verdict" class="verdict {css}" aria-labelledby="verdict-heading">\n'
             f'<h2 id="verdict-heading" class="verdict-word"><span class="mark" aria-hidden='
             f'"true">{mark}</span> {word}</h2>\n<p class="verdict-line">{line}</p>\n{why}'
-            "</section>\n")
+            f"{bottleneck.headline(document)}</section>\n")
 
 
-def _circuit_text(circuit: Sequence[str]) -> str:
-    names = [e(str(t)) for t in circuit]
-    return " → ".join([*names, names[0]]) if names else "–"
+def _per_hour(rate: Any, unit: str) -> str:
+    """``; 207.2 per hour`` where the time unit makes a rate per hour easier to read."""
+    if not isinstance(rate, int | float):
+        return ""
+    converted = hourly(float(rate), unit)
+    if converted is None or converted[1] == unit:
+        return ""
+    return f"; {fmt(converted[0])} per {converted[1]}"
 
 
 def _numbers(document: Mapping[str, Any]) -> str:
@@ -87,53 +114,67 @@ def _numbers(document: Mapping[str, Any]) -> str:
     analysis = get(document, "analysis") or {}
     simulation = get(document, "simulation") or {}
     main = analysis or simulation
-    exact = bool(analysis.get("exact"))
+    random = is_random(document)
+    exact = bool(analysis.get("exact")) and not random
     lam = main.get("cycle_time")
     ci = main.get("cycle_time_ci") or [None, None]
     per = f"per\u00a0{e(unit)}" if unit else "per time unit"
     cards = []
-    sub = ("exact: the max-plus eigenvalue" if exact else
-           f"95 % interval {fmt(ci[0])} – {with_unit(fmt(ci[1]), unit)}")
+    if exact:
+        sub = "exact: the max-plus eigenvalue"
+    elif random:
+        sub = f"estimate; 95 % interval {with_unit(interval(ci[0], ci[1]), unit)}"
+    else:
+        sub = "measured by the simulation after its transient"
     cards.append(('Cycle time <span class="sym">λ</span>',
-                  with_unit(fmt(lam, 6 if exact else 4), unit), sub))
+                  with_unit(fmt(lam, 4 if random else 6), unit), sub))
     cards.append(("Throughput", f'{fmt(main.get("throughput"))}<span class="unit">\u00a0{per}'
-                  "</span>",
-                  "firings of each transition (1/λ)"))
+                  "</span>", ("estimated " if random else "")
+                  + f"firings of each transition (1/λ){_per_hour(main.get('throughput'), unit)}"))
     circuits = analysis.get("critical_circuits") or []
-    bounds = analysis.get("bounds")
-    if bounds:
-        cards.append(('Bounds on <span class="sym">λ</span>', f"{fmt(bounds.get('lower'))} – "
-                      f"{with_unit(fmt(bounds.get('upper')), unit)}",
-                      "lower: cycle time of the mean durations"))
-    if circuits:
-        more = f"; {len(circuits)} critical circuits in all" if len(circuits) > 1 else ""
-        cards.append(("Critical circuit", _circuit_text(circuits[0]),
-                      "the bottleneck" + (" of the mean durations" if bounds else "") + more))
-    # An exact analysis computes no firings for its answer: show what the simulation ran.
-    firings = (simulation or main).get("firings_simulated")
-    if firings is not None:
+    if circuits and not random:
+        extra = (f"; {more(len(circuits) - 1, 'critical circuit')}" if len(circuits) > 1
+                 else "")
+        cards.append(("Critical circuit", circuit(circuits[0]),
+                      "the circuit that sets λ" + extra))
+    sides = [("max-plus", analysis, exact), ("SimPy", simulation, False)]
+    counted = [(name, _firings(side, is_exact)) for name, side, is_exact in sides
+               if side and side.get("firings_simulated") is not None]
+    if counted:
+        value = ("<br>".join(f"{name}: {text}" for name, text in counted) if len(counted) > 1
+                 else counted[0][1])
         cyclicity = analysis.get("cyclicity")
-        value = _firings(simulation or main, exact and not simulation)
-        cards.append(("Firings simulated" if simulation else "Firings computed", value,
-                      f"cyclicity {fmt(cyclicity)} firings" if cyclicity else
-                      "all replications together"))
+        cards.append(("Firings computed", value,
+                      f"cyclicity {fmt(cyclicity)} firings" if cyclicity and not random else
+                      "all replications together" if random else
+                      ("max-plus" if counted[0][0] == "max-plus" else "SimPy")
+                      + " side" if len(counted) == 1 else "both engines"))
     html_cards = "".join(
         f'<div class="card"><p class="card-label">{label}</p><p class="card-value'
-        f'{" long" if len(re.sub("<[^>]+>", "", value)) > 24 else ""}">{value}</p>'
-        f'<p class="card-sub">{sub}</p></div>'
+        f'{" long" if len(re.sub("<[^>]+>", "", value)) > 24 or "<br>" in value else ""}">'
+        f'{value}</p><p class="card-sub">{sub}</p></div>'
         for label, value, sub in cards)
     out = f'<div class="cards">{html_cards}</div>\n'
+    if random:
+        out += ('<p class="note">How to read the numbers: estimates come from simulation '
+                "and carry a 95 % interval; numbers marked “of the mean durations” belong to "
+                "the model with every random duration replaced by its mean (a lower bound on "
+                "the cycle time, not the answer) and are shown below the answers.</p>\n")
+    else:
+        out += ('<p class="note">How to read the numbers: the durations are fixed, so the '
+                "max-plus numbers are exact (no statistical error), and the simulation must "
+                "reproduce them.</p>\n")
     if analysis and simulation:
         # Exact values keep the digits the cards give them (17.375, not 17.38).
-        sides = [(analysis, 6 if exact else 4),
-                 (simulation, 6 if simulation.get("exact", exact) else 4)]
-        rows = [["Cycle time", *(fmt(side.get("cycle_time"), d) for side, d in sides)],
-                ["Throughput", *(fmt(side.get("throughput")) for side, _ in sides)]]
-        cells = []
-        for side, digits in sides:
-            low, high = side.get("cycle_time_ci") or [None, None]
-            cells.append(f"{fmt(low, digits)} – {fmt(high, digits)}")
-        rows.append(["95 % interval", *cells])
+        sides_t = [(analysis, 4 if random else 6), (simulation, 4 if random else 6)]
+        rows = [["Cycle time", *(fmt(side.get("cycle_time"), d) for side, d in sides_t)],
+                ["Throughput", *(fmt(side.get("throughput")) for side, _ in sides_t)]]
+        if random:
+            cells = []
+            for side, digits in sides_t:
+                low, high = side.get("cycle_time_ci") or [None, None]
+                cells.append(interval(low, high, digits))
+            rows.append(["95 % interval", *cells])
         rows.append(["Firings computed", _firings(analysis, exact), _firings(simulation, False)])
         out += table(["", "Max-plus recursion", "SimPy simulation"], rows, {1, 2},
                       "Both engines side by side" + (f" (times in {e(unit)})" if unit else ""))
@@ -147,60 +188,8 @@ def _firings(side: Mapping[str, Any], exact: bool) -> str:
     """Firings computed by one side; an exact analysis computes none, and says so."""
     firings = side.get("firings_simulated")
     if exact and firings == 0:
-        return "exact (no simulation)"
+        return "exact, no simulation"
     return fmt(firings)
-
-
-def _places_spec(model: Mapping[str, Any]) -> list[PlaceSpec]:
-    return [PlaceSpec(i, str(p["from"]), str(p["to"]), int(p["tokens"]))
-            for i, p in enumerate(model["places"])]
-
-
-def _critical_places(analysis: Mapping[str, Any], circuits: list[Any], specs: list[PlaceSpec]
-                     ) -> set[int]:
-    """The places on critical circuits: from the document, or chosen by the least slack."""
-    given = analysis.get("critical_places")
-    if given is not None:
-        return {int(i) for i in given}
-    return choose_critical_places(circuits, specs, get(analysis.get("slack"), "places"))
-
-
-def _graph(document: Mapping[str, Any], figs: Figures) -> str:
-    model = document["model"]
-    analysis = get(document, "analysis") or {}
-    ids = [str(t["id"]) for t in model["transitions"]]
-    if not ids:
-        return ""
-    specs = _places_spec(model)
-    circuits = [[str(t) for t in c] for c in analysis.get("critical_circuits") or []]
-    slack = get(analysis.get("slack"), "places")
-    criticality = get(analysis.get("criticality"), "places")
-    drawing = layout_graph(ids, specs, circuits, _critical_places(analysis, circuits, specs))
-    random = bool(model.get("is_random")) and criticality
-    unit = time_unit(document)
-    if random:
-        text = {i: pct(v) for i, v in enumerate(criticality) if v is not None}
-        definition = get(analysis.get("criticality"), "definition")
-        legend = ("the criticality of the place (" + (e(definition) if definition else
-                  "share of firings it was on the deciding path") + ")")
-    elif slack:
-        text = {i: fmt(v) for i, v in enumerate(slack) if v is not None}
-        legend = "the slack of the place" + (f" in {e(unit)}" if unit else "")
-    else:
-        text, legend = {}, ""
-    svg = figures.graph_figure(drawing, text)
-    caption = ("Transitions are boxes, places are circles on the arcs, with their tokens as dots "
-               "(three or more as a number). The critical circuit is drawn thick with framed, "
-               "shaded boxes.")
-    if legend:
-        caption += f" Numbers beside the places: {legend}."
-    if drawing.partial:
-        caption += (f" <strong>Part of the graph:</strong> the model has {fmt(len(ids))} "
-                    f"transitions; only the critical circuits and their neighbours are drawn "
-                    f"({fmt(drawing.hidden_transitions)} transitions and "
-                    f"{fmt(drawing.hidden_places)} places are not shown).")
-    return section("graph", "The event graph and its critical circuit",
-                    figs.wrap("graph", "Event graph", svg, caption))
 
 
 def _spec_text(spec: Any) -> str:
@@ -214,9 +203,10 @@ def _cut(items: list[Any], key: Any, what: str, total: int) -> tuple[list[Any], 
     if len(items) <= MAX_ROWS and total <= len(items):
         return items, ""
     chosen = sorted(sorted(items, key=key)[:MAX_ROWS], key=lambda item: item[0])
+    left = total - len(chosen)
     return chosen, (f'<p class="note">Showing {len(chosen)} of {fmt(total)} {what}: the '
-                    "critical ones and those with the least slack. The result document has "
-                    "them all.</p>\n")
+                    f"critical ones and those with the least slack, {more(left, what[:-1])} "
+                    "in the result document.</p>\n")
 
 
 def _elements(document: Mapping[str, Any]) -> str:
@@ -225,11 +215,13 @@ def _elements(document: Mapping[str, Any]) -> str:
     simulation = get(document, "simulation") or {}
     circuits = analysis.get("critical_circuits") or []
     critical_t = {str(t) for c in circuits for t in c}
-    specs = _places_spec(model)
     slack = analysis.get("slack") or {}
-    critical_p = _critical_places(analysis, circuits, specs)
+    critical_p = critical_place_set(document)
     crit = analysis.get("criticality") or simulation.get("criticality") or {}
-    util_a, util_s = analysis.get("utilization") or {}, simulation.get("utilization") or {}
+    random = is_random(document)
+    # A random model's slack and critical circuit are those of its mean durations.
+    slack_name = "Slack (mean durations)" if random else "Slack"
+    of_mean = " of the mean durations" if random else ""
     start = get(get(document.get("figures"), "schedule"), "start") or {}
     by_t = analysis.get("cycle_time_by_transition") or {}
     t_slack = slack.get("transitions") or {}
@@ -242,13 +234,8 @@ def _elements(document: Mapping[str, Any]) -> str:
     ]
     if not any(t.get("label") for t in model["transitions"]):
         del columns[1]  # an empty column only takes room from the others
-    if util_a:
-        columns.append(("Utilization" + (" (max-plus)" if util_s else ""), True,
-                        lambda t: pct(util_a.get(t["id"]))))
-    if util_s:
-        columns.append(("Utilization (SimPy)", True, lambda t: pct(util_s.get(t["id"]))))
     if t_slack:
-        columns.append(("Slack", True, lambda t: fmt(t_slack.get(t["id"]))))
+        columns.append((slack_name, True, lambda t: fmt(t_slack.get(t["id"]))))
     if t_crit:
         columns.append(("Criticality", True, lambda t: pct(t_crit.get(t["id"]))))
     if start:
@@ -267,7 +254,7 @@ def _elements(document: Mapping[str, Any]) -> str:
     unit = time_unit(document)
     in_unit = f"; times in {e(unit)}" if unit else ""
     out = table([c[0] for c in columns], rows, {i for i, c in enumerate(columns) if c[1]},
-                 f"Transitions (◆ on a critical circuit{in_unit})") + note
+                 f"Transitions (◆ on a critical circuit{of_mean}{in_unit})") + note
     p_slack = slack.get("places") or []
     p_crit = crit.get("places") or []
     definition = crit.get("definition")
@@ -283,7 +270,7 @@ def _elements(document: Mapping[str, Any]) -> str:
     if any(p.get("label") for p in model["places"]):
         p_columns.append(("Label", False, lambda i, p: e(str(p.get("label") or ""))))
     if p_slack:
-        p_columns.append(("Slack", True,
+        p_columns.append((slack_name, True,
                           lambda i, p: fmt(p_slack[i] if i < len(p_slack) else None)))
     if p_crit:
         p_columns.append(("Criticality", True,
@@ -299,143 +286,38 @@ def _elements(document: Mapping[str, Any]) -> str:
     p_rows = [[f(i, p) for _, _, f in p_columns] for i, p in p_shown]
     out += table([c[0] for c in p_columns], p_rows,
                   {i for i, c in enumerate(p_columns) if c[1]},
-                  f"Places (◆ on a critical circuit{in_unit})") + p_note
+                  f"Places (◆ on a critical circuit{of_mean}{in_unit})") + p_note
     return section("elements", "Transitions and places", out)
 
 
-def _is_random(document: Mapping[str, Any]) -> bool:
-    """Random durations: the model says so, or the analysis is not exact."""
-    analysis = get(document, "analysis") or {}
-    return bool(document["model"].get("is_random")) or analysis.get("exact") is False
-
-
-def _no_schedule(document: Mapping[str, Any]) -> str:
-    """Why the document has no periodic schedule, in plain words ("" when it does not say)."""
-    analysis = get(document, "analysis") or {}
-    if _is_random(document):
-        why = ("the durations are random, so the firings never settle into a periodic regime: "
-               "each cycle takes a different time, and no start times repeat from one cycle "
-               "to the next")
-    elif analysis.get("strongly_connected") is False:
-        why = ("the graph is not strongly connected, and its parts run at different cycle "
-               "times (column “cycle time” of the transitions table): no single period fits "
-               "every transition")
-    else:
+def _mean_durations(document: Mapping[str, Any]) -> str:
+    """What a random model's document says of its mean durations, below the answers."""
+    if not is_random(document):
         return ""
-    return section("schedule", "Periodic schedule",
-                   f'<p class="note">No periodic schedule: {why}.</p>\n')
-
-
-def schedule(document: Mapping[str, Any], figs: Figures) -> str:
-    data = get(document.get("figures"), "schedule")
-    unit = time_unit(document)
-    if not data:
-        return _no_schedule(document)
     analysis = get(document, "analysis") or {}
-    critical = {str(t) for c in analysis.get("critical_circuits") or [] for t in c}
-    start = {str(k): float(v) for k, v in data["start"].items()}
-    duration = {str(k): float(v) for k, v in data["duration"].items()}
-    lam = float(data["cycle_time"])
-    svg = figures.schedule_figure(start, duration, lam, critical, unit)
-    cut = ""
-    if len(start) > figures.MAX_GANTT_ROWS:
-        cut = (f" Only the first {figures.MAX_GANTT_ROWS} of {fmt(len(start))} transitions "
-               "(by start time) are drawn.")
-    caption = ("Each transition starts at its periodic start time (from the eigenvector) plus a "
-               f"whole number of cycles of λ = {with_unit(fmt(lam, 6), unit)}; bars show the "
-               "firing duration, hatched bars the transitions on a critical circuit, dashed "
-               f"lines the cycle boundaries.{cut}")
-    return section("schedule", "Periodic schedule",
-                   figs.wrap("schedule", "Periodic schedule over two cycles", svg, caption))
-
-
-def transient(document: Mapping[str, Any], figs: Figures) -> str:
-    data = get(document.get("figures"), "transient")
-    if not data or not data.get("recursion"):
-        return ""
     unit = time_unit(document)
-    recursion = {str(k): v for k, v in data["recursion"].items()}
-    simulation = {str(k): v for k, v in (data.get("simulation") or {}).items()}
-    svg = figures.transient_figure(data["k"], recursion, simulation or None, unit)
-    lines = ("Lines: the max-plus recursion; rings: the SimPy simulation. When every ring sits "
-             "on its line, both engines computed the same times.")
-    analysis = get(document, "analysis") or {}
-    if _is_random(document):
-        # No periodic regime here; the transient of the mean durations is not this model's.
-        caption = ("x(k) − kλ against the firing number k, on the random draws of one "
-                   "replication: the completion time of firing k less k times the estimated "
-                   f"cycle time. {lines} With random durations there is no periodic regime: "
-                   "the curves keep wandering as the draws vary.")
-        heading, title = "Firing times against the cycle time", "Firing times less k·λ"
-    else:
-        caption = ("x(k) − kλ against the firing number k: the completion time of firing k "
-                   f"less k cycle times. {lines}")
-        heading, title = "Transient and periodic regime", "Transient"
-        settle = analysis.get("transient_firings")
-        if settle is not None:
-            caption += f" The periodic regime starts after {_count(settle, 'firing')}"
-            if analysis.get("cyclicity"):
-                caption += f" and repeats every {_count(analysis['cyclicity'], 'firing')}"
-            caption += "."
-    if len(recursion) > figures.MAX_SERIES:
-        caption += (f" Showing {figures.MAX_SERIES} of the {fmt(len(recursion))} transitions "
-                    "in the document.")
-    return section("transient", heading, figs.wrap("transient", title, svg, caption))
-
-
-def _count(n: int, word: str) -> str:
-    return f"{fmt(n)} {word}{'' if n == 1 else 's'}"
-
-
-def variability(document: Mapping[str, Any], figs: Figures) -> str:
-    fig_data = get(document, "figures") or {}
-    running = fig_data.get("running_estimate")
-    replications = fig_data.get("replication_estimates")
-    analysis = get(document, "analysis") or {}
-    simulation = get(document, "simulation") or {}
-    bounds = analysis.get("bounds")
-    if not (running or replications or bounds):
-        return ""
-    unit = time_unit(document)
+    bounds = analysis.get("bounds") or {}
     out = ""
     if bounds:
-        out += (f'<p>Bounds on the cycle time: lower {with_unit(fmt(bounds.get("lower")), unit)}'
-                " (the cycle time of the mean durations: variability can only slow the graph "
-                f'down), upper {with_unit(fmt(bounds.get("upper")), unit)}.</p>\n')
-    settings = get(document, "settings") or {}
-    if running:
-        svg = figures.running_estimate_figure(running["work"], running["estimate"],
-                                              running["low"], running["high"], bounds, unit)
-        target = settings.get("precision")
-        reached = analysis.get("relative_half_width")
-        caption = "The estimate of λ and its 95 % interval as firings are computed."
-        if target:
-            caption += (" Replications are added in rounds until the interval's relative "
-                        f"half-width is at most the target {pct(target)}")
-            if isinstance(reached, int | float):
-                met = " (the first round can already do better)" if reached < target else ""
-                caption += f"; it reached {pct(reached)}{met}"
-            caption += "."
-        out += figs.wrap("running", "Running estimate", svg, caption)
-    if replications:
-        intervals = {"recursion": analysis.get("cycle_time_ci"),
-                     "simulation": simulation.get("cycle_time_ci")}
-        svg = figures.replications_figure(replications, {k: v for k, v in intervals.items()
-                                                         if v}, bounds, unit)
-        counts = {name: len(replications.get(name) or [])
-                  for name in ("recursion", "simulation")}
-        counts = {name: n for name, n in counts.items() if n}
-        if len(set(counts.values())) == 1 and len(counts) == 2:
-            each = f"each of the {_count(counts['recursion'], 'replication')}, for each engine"
-        else:
-            engine = {"recursion": "of the max-plus recursion", "simulation": "of the SimPy "
-                      "simulation"}
-            each = ("each replication: " +
-                    " and ".join(f"{fmt(n)} {engine[name]}" for name, n in counts.items()))
-        caption = (f"The estimate of λ from {each}, with the 95 % interval of the mean above "
-                   "them and the bounds as lines.")
-        out += figs.wrap("replications", "Estimates per replication", svg, caption)
-    return section("variability", "Variability", out)
+        low, high = bounds.get("lower"), bounds.get("upper")
+        out += (f'<p>Bounds on λ: {fmt(low)} – {with_unit(fmt(high), unit)}: lower '
+                f"{with_unit(fmt(low), unit)}, the cycle time of the mean durations (exact; "
+                "variability can only slow a synchronised graph down), upper "
+                f"{with_unit(fmt(high), unit)} (the subadditive bound, estimated from the "
+                "simulation, the upper end of its 95 % interval).</p>\n")
+    circuits = analysis.get("critical_circuits") or []
+    if circuits:
+        extra = f", {more(len(circuits) - 1, 'circuit')}" if len(circuits) > 1 else ""
+        out += (f"<p>Critical circuit of the mean durations: {circuit(circuits[0])}"
+                f"{extra}. It sets the lower bound; under variability the bottleneck may lie "
+                "elsewhere (see the top of the page).</p>\n")
+    if not out:
+        return ""
+    out += ('<p class="note">The slack in the tables, the ◆ marks and the thick circuit in the '
+            "event graph belong to the mean durations too; the appendix verifies their "
+            "analysis algebraically. They are not estimates of this model.</p>\n")
+    return section("mean-durations", "Of the mean durations: a lower bound, not the answer",
+                   out)
 
 
 def sample_path(document: Mapping[str, Any]) -> str:
@@ -443,10 +325,10 @@ def sample_path(document: Mapping[str, Any]) -> str:
     if not data:
         return ""
     firings = fmt(data.get("firings_compared"))
-    count = data.get("replications_compared")
-    reps = f"{fmt(count)} replication{'' if count == 1 else 's'}"
-    draws = ("on the same random draws" if document["model"].get("is_random") else
-             "from the same fixed durations")
+    n = data.get("replications_compared")
+    reps = f"{fmt(n)} replication{'' if n == 1 else 's'}"
+    random = is_random(document)
+    draws = "on the same random draws" if random else "from the same fixed durations"
     if data.get("identical"):
         head = ('<p class="result good"><span class="mark" aria-hidden="true">✓</span> '
                 "<strong>Identical sample paths.</strong> The SimPy model and the max-plus "
@@ -459,11 +341,13 @@ def sample_path(document: Mapping[str, Any]) -> str:
                 "model and the max-plus recursion computed different firing times: largest "
                 f"relative difference {fmt(data.get('max_relative_difference'))} over "
                 f"{firings} firings in {reps}.</p>\n")
+    read = ("both read the same random durations, indexed by element and firing number"
+            if random else "both read the same fixed durations")
+    theory = "bounds, critical circuit" if random else "cycle time, critical circuit"
     why = ("<p>This is the strongest validation the tool offers. Both engines implement one "
-           "definition of the model, and both read the same random durations, indexed by "
-           "element and firing number. If they agree firing by firing, the simulation "
-           "implements the model's semantics exactly, and its statistics can be read with the "
-           "theory (bounds, critical circuit) beside them.</p>\n")
+           f"definition of the model, and {read}. If they agree firing by firing, the "
+           "simulation implements the model's semantics exactly, and its results can be read "
+           f"with the theory ({theory}) beside them.</p>\n")
     return section("sample-path", "Sample-path identity", head + why)
 
 
@@ -473,18 +357,21 @@ def body(document: Mapping[str, Any]) -> str:
     parts = [
         _masthead(document),
         "<main>\n",
+        bottleneck.warning(document),
         _verdict(document),
         _numbers(document),
-        _graph(document, figs),
+        bottleneck.section(document),
+        graph_section(document, figs, bottleneck.focus(document)),
         _elements(document),
-        schedule(document, figs),
-        transient(document, figs),
-        variability(document, figs),
+        timing.schedule(document, figs),
+        timing.variability(document, figs),
+        timing.transient(document, figs),
         sample_path(document),
-        notes.algebra(document),
+        _mean_durations(document),
         notes.semantics(document),
         notes.reproducibility(document),
-        notes.cautions(),
+        notes.cautions(document),
+        notes.algebra(document),
         "</main>\n",
         notes.footer(document),
     ]

@@ -186,7 +186,7 @@ def body(document: Mapping[str, Any]) -> str:
         "<main>\n",
         section("sweep", "Sweep", content),
         notes.reproducibility(document),
-        notes.cautions(),
+        notes.cautions(document),
         "</main>\n",
         notes.footer(document),
     ])

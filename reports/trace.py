@@ -309,7 +309,7 @@ def body(document: Mapping[str, Any]) -> str:
         _violations(document),
         _not_judged(document),
         notes.reproducibility(document),
-        notes.cautions(),
+        notes.cautions(document),
         "</main>\n",
         notes.footer(document),
     ])

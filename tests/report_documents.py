@@ -26,9 +26,11 @@ that the figure shows a realistic curve; the renderer tests do not depend on its
 from __future__ import annotations
 
 import copy
+from itertools import pairwise
 from typing import Any
 
-__all__ = ["fixed_document", "random_document", "transient"]
+__all__ = ["fixed_document", "line_document", "loop_document", "press_document",
+           "random_document", "transient", "unstable_document", "wide_document"]
 
 
 def transient(
@@ -69,6 +71,15 @@ def _place(index: int, source: str, target: str, tokens: int, hold: float | str,
             "hold": str(hold), "mean_hold": mean_hold, "label": label}
 
 
+def _sensitive(element: str, key: str | int, derivative: float,
+               ci: tuple[float, float] | None = None) -> dict[str, Any]:
+    """One entry of ``sensitivity``; a fixed model's interval is [d, d]."""
+    entry: dict[str, Any] = {"element": element, "derivative": derivative,
+                             "ci": list(ci) if ci else [derivative, derivative]}
+    entry["id" if element == "transition" else "index"] = key
+    return entry
+
+
 _VERSIONS = {"cyclecheck": "0.1.0", "python": "3.11.7", "numpy": "1.26.4", "scipy": "1.11.4",
              "simpy": "4.1.1", "matplotlib": "3.8.2"}
 
@@ -98,6 +109,15 @@ def fixed_document() -> dict[str, Any]:
     start = {t: eigen[t] - durations[t] + 4.0 for t in names}
     lam = 13.5
     curve = transient(names, durations, places, lam, 18)
+    # dλ/d(value): the tray loop is the only critical circuit (3 tokens), so each of its
+    # elements adds 1/3 of its growth to λ and every other element 0 (the derivative of the
+    # largest circuit ratio; Baccelli et al., Synchronization and Linearity, 1992, §2.5).
+    on_loop_t = {"mix", "proof", "bake", "cool", "wrap"}
+    on_loop_p = {0, 1, 2, 4, 6}
+    sensitivity = (
+        [_sensitive("transition", t, 1 / 3 if t in on_loop_t else 0.0) for t in names]
+        + [_sensitive("place", p["index"], 1 / 3 if p["index"] in on_loop_p else 0.0)
+           for p in places])
     return {
         "document": "cyclecheck-result",
         "schema_version": 1,
@@ -149,6 +169,11 @@ def fixed_document() -> dict[str, Any]:
             "criticality": None,
             "utilization": {"mix": 0.2963, "proof": 0.3333, "bake": 0.8889, "check": 0.1852,
                             "cool": 0.4444, "wrap": 0.2222},
+            "servers": {"mix": 1, "proof": 2, "bake": 1, "check": 1, "cool": 1, "wrap": 1},
+            "sensitivity": sensitivity,
+            "bottleneck": {**copy.deepcopy(sensitivity[2]),
+                           "cycle_time_if_10_percent_faster": 39.3 / 3},
+            "unbounded_places": [],
         },
         "simulation": {
             "cycle_time": lam, "cycle_time_ci": [lam, lam], "throughput": 1 / lam,
@@ -252,6 +277,24 @@ def random_document() -> dict[str, Any]:
                                           "it set; transition: the largest share among its "
                                           "output places"},
             "utilization": {"dock": 0.2825, "gate": 0.0942, "yard": 0.1883, "depot": 0.1883},
+            "servers": {"dock": 1, "gate": None, "yard": None, "depot": None},
+            # Invented (plausible, not computed): the loop is critical and the dock's
+            # variable loading weighs most; the berth's self-loop hardly matters.
+            "sensitivity": [
+                _sensitive("transition", "dock", 0.61, (0.55, 0.67)),
+                _sensitive("transition", "gate", 0.50, (0.46, 0.54)),
+                _sensitive("transition", "yard", 0.57, (0.50, 0.64)),
+                _sensitive("transition", "depot", 0.52, (0.47, 0.57)),
+                _sensitive("place", 0, 0.55, (0.49, 0.61)),
+                _sensitive("place", 1, 0.50, (0.46, 0.54)),
+                _sensitive("place", 2, 0.54, (0.48, 0.60)),
+                _sensitive("place", 3, 0.50, (0.46, 0.54)),
+                _sensitive("place", 4, 0.02, (0.0, 0.05)),
+            ],
+            "bottleneck": {**_sensitive("transition", "dock", 0.61, (0.55, 0.67)),
+                           "cycle_time_if_10_percent_faster": 10.44,
+                           "cycle_time_if_10_percent_faster_ci": [10.23, 10.65]},
+            "unbounded_places": [],
         },
         # SimPy runs 5 replications of its own (fewer than the recursion's 10).
         "simulation": {
@@ -307,3 +350,161 @@ def wide_document() -> dict[str, Any]:
                                                     for t in document["model"]["transitions"]}}
     assert set(start) == set(names)
     return document
+
+
+def _frame(command: str, name: str, unit: str, random: bool, transitions: list[dict[str, Any]],
+           places: list[dict[str, Any]], results: dict[str, Any]) -> dict[str, Any]:
+    """A document of ``analyze`` with its results at the top level, as ``analyze --json``
+    prints them (the page maps them into the ``analysis`` section)."""
+    return {
+        "document": "cyclecheck-result", "schema_version": 1, "command": command,
+        "command_line": f"cyclecheck {command} models/example.toml",
+        "created": "2026-12-03T08:00:00Z", "versions": dict(_VERSIONS),
+        "model": {"name": name, "time_unit": unit, "n_transitions": len(transitions),
+                  "n_places": len(places), "is_random": random, "transitions": transitions,
+                  "places": places},
+        "settings": {"seed": 3, "precision": 0.01 if random else None},
+        **results,
+    }
+
+
+def press_document() -> dict[str, Any]:
+    """`analyze` of two presses in series with a buffer of two parts, random press B.
+
+    Mean durations worked by hand: press A's self-loop 10 / 1, press B's 9.5 / 1, the buffer
+    loop (10 + 9.5) / 2 = 9.75, so the mean durations put the bottleneck at press A (critical
+    circuit [A], λ 10 s). Under variability, B's exponential times and the small buffer make B
+    the element the cycle time depends on most. The estimate, intervals and sensitivities are
+    invented (plausible, not computed); utilization = mean duration / cycle time for a single
+    server (the utilization law U = X·D, Denning & Buzen, "The operational analysis of queueing
+    network models", Computing Surveys 10(3), 1978): 10 / 12.9 = 0.7752, 9.5 / 12.9 = 0.7364.
+    """
+    transitions = [{"id": "A", "label": "Press A", "duration": "10", "mean_duration": 10.0},
+                   {"id": "B", "label": "Press B", "duration": "exponential(mean=9.5)",
+                    "mean_duration": 9.5}]
+    places = [_place(0, "A", "A", 1, 0, 0.0, "press A free"),
+              _place(1, "B", "B", 1, 0, 0.0, "press B free"),
+              _place(2, "A", "B", 0, 0, 0.0, "buffer"),
+              _place(3, "B", "A", 2, 0, 0.0, "free slots")]
+    lam = 12.9
+    sensitivity = [_sensitive("transition", "A", 0.32, (0.26, 0.38)),
+                   _sensitive("transition", "B", 0.81, (0.74, 0.88)),
+                   _sensitive("place", 0, 0.31, (0.25, 0.37)),
+                   _sensitive("place", 1, 0.78, (0.71, 0.85)),
+                   _sensitive("place", 2, 0.05, (0.01, 0.09)),
+                   _sensitive("place", 3, 0.04, (0.0, 0.08))]
+    return _frame("analyze", "Two presses", "s", True, transitions, places, {
+        "cycle_time": lam, "cycle_time_ci": [12.7, 13.1], "throughput": 1 / lam,
+        "cycle_time_by_transition": {"A": lam, "B": lam}, "critical_circuits": [["A"]],
+        "critical_places": [0], "bounds": {"lower": 10.0, "upper": 14.2},
+        "firings_simulated": 200000, "exact": False, "strongly_connected": True,
+        "slack": {"transitions": {"A": 0.0, "B": 0.25}, "places": [0.0, 0.5, 0.5, 0.5]},
+        "utilization": {"A": 0.7752, "B": 0.7364}, "servers": {"A": 1, "B": 1},
+        "sensitivity": sensitivity,
+        "bottleneck": {**copy.deepcopy(sensitivity[1]), "cycle_time_if_10_percent_faster": 12.0,
+                       "cycle_time_if_10_percent_faster_ci": [11.8, 12.2]},
+        "unbounded_places": []})
+
+
+def unstable_document() -> dict[str, Any]:
+    """`analyze` of an open station fed faster than it serves (fixed durations).
+
+    Worked by hand: parts arrive every 12 s (a source with a self-loop), the station serves one
+    in 15 s, so the buffer between them gains 1/12 − 1/15 = 1/60 part per second, 60 per hour.
+    The station's cycle time is 15 s, the source's 12 s; shortening the service by 10 % gives
+    13.5 s; dλ/d(service) = 1 (the station's self-loop holds one token)."""
+    transitions = [{"id": "arrive", "label": "Arrivals", "duration": "12",
+                    "mean_duration": 12.0},
+                   {"id": "serve", "label": "Station", "duration": "15", "mean_duration": 15.0}]
+    places = [_place(0, "arrive", "arrive", 1, 0, 0.0), _place(1, "serve", "serve", 1, 0, 0.0),
+              _place(2, "arrive", "serve", 0, 0, 0.0, "queue")]
+    sensitivity = [_sensitive("transition", "arrive", 0.0), _sensitive("transition", "serve", 1.0),
+                   _sensitive("place", 0, 0.0), _sensitive("place", 1, 1.0),
+                   _sensitive("place", 2, 0.0)]
+    return _frame("analyze", "Open station", "s", False, transitions, places, {
+        "cycle_time": 15.0, "cycle_time_ci": [15.0, 15.0], "throughput": 1 / 15,
+        "cycle_time_by_transition": {"arrive": 12.0, "serve": 15.0},
+        "critical_circuits": [["serve"]], "cyclicity": 1, "firings_simulated": 0,
+        "exact": True, "strongly_connected": False,
+        "utilization": {"arrive": 1.0, "serve": 1.0}, "servers": {"arrive": 1, "serve": 1},
+        "sensitivity": sensitivity,
+        "bottleneck": {**copy.deepcopy(sensitivity[1]),
+                       "cycle_time_if_10_percent_faster": 13.5},
+        "unbounded_places": [{"index": 2, "from": "arrive", "to": "serve",
+                              "growth_rate": 1 / 12 - 1 / 15}]})
+
+
+def line_document(n: int) -> dict[str, Any]:
+    """`analyze` of a line of ``n`` single-server stations with buffers of two parts.
+
+    Station s17 takes 3 min, the others 1 to 1.75 min: its self-loop (3 / 1 token) is the
+    only critical circuit, since a buffer loop takes at most (3 + 1.75) / 2 = 2.375 per token
+    (Baccelli et al. 1992, §2.5: λ is the largest circuit ratio), so λ = 3 min, dλ/d(s17) = 1
+    and 0 for every other element. The slacks are invented (they label the drawing only).
+    """
+    ids = [f"s{i}" for i in range(1, n + 1)]
+    duration = {t: 3.0 if t == "s17" else 1.0 + 0.25 * (i % 4) for i, t in enumerate(ids)}
+    places: list[dict[str, Any]] = []
+    for t in ids:
+        places.append(_place(len(places), t, t, 1, 0, 0.0))
+    for a, b in pairwise(ids):
+        places.append(_place(len(places), a, b, 0, 0, 0.0))
+        places.append(_place(len(places), b, a, 2, 0, 0.0))
+    slack = [0.0 if p["from"] == p["to"] == "s17" else round(((i * 37) % 23) / 4, 2)
+             for i, p in enumerate(places)]
+    critical_place = ids.index("s17") if "s17" in ids else None
+    sensitivity = ([_sensitive("transition", t, 1.0 if t == "s17" else 0.0) for t in ids]
+                   + [_sensitive("place", p["index"], 1.0 if p["index"] == critical_place
+                                 else 0.0) for p in places])
+    transitions = [{"id": t, "duration": f"{duration[t]:g}", "mean_duration": duration[t]}
+                   for t in ids]
+    results: dict[str, Any] = {
+        "cycle_time": 3.0, "cycle_time_ci": [3.0, 3.0], "throughput": 1 / 3,
+        "cycle_time_by_transition": dict.fromkeys(ids, 3.0),
+        "critical_circuits": [["s17"]] if "s17" in ids else [],
+        "firings_simulated": 0, "exact": True, "strongly_connected": True,
+        "slack": {"transitions": {t: 0.0 if t == "s17" else 1.0 for t in ids},
+                  "places": slack},
+        "sensitivity": sensitivity, "unbounded_places": [],
+    }
+    if "s17" in ids:
+        results["critical_places"] = [critical_place]
+        results["bottleneck"] = {**copy.deepcopy(sensitivity[ids.index("s17")]),
+                                 "cycle_time_if_10_percent_faster": 2.7}
+    return _frame("analyze", f"Line of {n} stations", "min", False, transitions, places,
+                  results)
+
+
+def loop_document() -> dict[str, Any]:
+    """`check`-like `analyze` of the closed loop of models/closed_line_exponential.toml: five
+    exponential single-server stations, three pallets.
+
+    From the model's header (Buzen's convolution): throughput 0.38006 per min, cycle time
+    2.6311 min; lower bound the ring of the mean durations (1 + 1.25 + 0.8 + 1 + 1.5) / 3 =
+    1.85 min. Utilization = X·D (the utilization law, Denning & Buzen 1978): 0.3801, 0.4751,
+    0.3040, 0.3801, 0.5701. Interval, criticalities and sensitivities are invented.
+    """
+    means = {"s1": 1.0, "s2": 1.25, "s3": 0.8, "s4": 1.0, "s5": 1.5}
+    ids = list(means)
+    transitions = [{"id": t, "duration": f"exponential(mean={m:g})", "mean_duration": m}
+                   for t, m in means.items()]
+    places = [_place(i, t, t, 1, 0, 0.0) for i, t in enumerate(ids)]
+    for i, t in enumerate(ids):
+        nxt = ids[(i + 1) % 5]
+        places.append(_place(len(places), t, nxt, 3 if t == "s5" else 0, 0, 0.0,
+                             "pallets waiting at s1" if t == "s5" else ""))
+    lam = 2.6311
+    sensitivity = [_sensitive("transition", t, v, (v - 0.03, v + 0.03)) for t, v in
+                   zip(ids, (0.24, 0.31, 0.18, 0.24, 0.39), strict=True)]
+    return _frame("analyze", "Closed inspection loop", "min", True, transitions, places, {
+        "cycle_time": lam, "cycle_time_ci": [2.60, 2.66], "throughput": 1 / lam,
+        "critical_circuits": [ids], "bounds": {"lower": 1.85, "upper": 3.1},
+        "firings_simulated": 500000, "exact": False, "strongly_connected": True,
+        "criticality": {"places": [0.41, 0.48, 0.33, 0.41, 0.57, 0.52, 0.45, 0.60, 0.52, 0.38],
+                        "transitions": {"s1": 0.52, "s2": 0.48, "s3": 0.60, "s4": 0.52,
+                                        "s5": 0.57}},
+        "utilization": {"s1": 0.3801, "s2": 0.4751, "s3": 0.3040, "s4": 0.3801, "s5": 0.5701},
+        "servers": dict.fromkeys(ids, 1), "sensitivity": sensitivity,
+        "bottleneck": {**copy.deepcopy(sensitivity[4]),
+                       "cycle_time_if_10_percent_faster": 2.57},
+        "unbounded_places": []})

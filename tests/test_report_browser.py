@@ -396,3 +396,54 @@ def test_tools_are_where_ci_installs_them() -> None:
     _require(CHROMIUM, "chromium")
     _require(Path("/usr/bin/pdftotext"), "poppler-utils")
     assert shutil.which("pdfinfo") == "/usr/bin/pdfinfo"
+
+
+TEXT_BOXES = """JSON.stringify(Array.from(document.querySelectorAll("figure")).map(function (f) {
+  return {figure: f.id, texts: Array.from(f.querySelectorAll("svg text")).map(function (t) {
+    var r = t.getBoundingClientRect();
+    return {text: t.textContent, left: r.left, top: r.top, right: r.right, bottom: r.bottom};
+  })};
+}))"""
+
+
+def _overlapping(texts: list[dict[str, Any]]) -> list[tuple[str, str]]:
+    """Pairs of texts whose rendered boxes share an area (touching edges do not count)."""
+    pairs = []
+    for i, a in enumerate(texts):
+        for b in texts[i + 1:]:
+            if (min(a["right"], b["right"]) - max(a["left"], b["left"]) > 0.01
+                    and min(a["bottom"], b["bottom"]) - max(a["top"], b["top"]) > 0.01):
+                pairs.append((a["text"], b["text"]))
+    return pairs
+
+
+@pytest.mark.parametrize("name", ["line60", "line30", "loop5", "fixed", "random"])
+def test_graph_labels_do_not_overlap_in_the_browser(server: _Server, tmp_path: Path,
+                                                    name: str) -> None:
+    """In the event graph as Chromium renders it (the page's own fonts), no two text
+    elements overlap: transition ids, slack or criticality labels, token counts, tags and the
+    legend, measured with getBoundingClientRect. Cases: a line of 60 stations and 178 places
+    (folded into bands, every place labelled with its slack), a line of 30, the five-station
+    loop with criticality percentages beside places holding tokens, and the two samples."""
+    from tests.report_documents import line_document, loop_document
+
+    make = {"line60": lambda: line_document(60), "line30": lambda: line_document(30),
+            "loop5": loop_document, **DOCUMENTS}[name]
+    page = render_page(make())
+    server.pages[f"/graph-{name}.html"] = page.encode("utf-8")
+    browser = _Browser(tmp_path / "profile")
+    try:
+        session = open_page(browser, server.url(f"/graph-{name}.html"))
+        figures = json.loads(browser.call("Runtime.evaluate", session, expression=TEXT_BOXES,
+                                          returnByValue=True)["result"]["value"])
+    finally:
+        browser.close()
+    graph = next(f for f in figures if f["figure"] == "figure-graph")
+    texts = [t for t in graph["texts"] if t["text"].strip()]
+    model = make()["model"]
+    # Every transition id is drawn, and the labels are there (not all dropped to pass).
+    assert len(texts) >= len(model["transitions"]) + len(model["places"]) // 2, len(texts)
+    assert _overlapping(texts) == []
+    for figure in figures:
+        if figure["figure"] == "figure-components":
+            assert _overlapping(figure["texts"]) == []

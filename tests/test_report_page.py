@@ -130,7 +130,7 @@ RANDOM_TEXTS = [
     "upper 12.64 min",
     "40,000 firings in 5 replications,",  # SimPy's replications, on which paths were compared
     "same firing times on the same random draws",
-    "Firings simulated",
+    "max-plus: 80,000 SimPy: 40,000",  # the firings card counts both sides
     "gamma(mean=3, cv=0.5)",
     "lognormal(mean=4, cv=0.3)",
     "91.0 %",  # criticality of the dock
@@ -220,7 +220,7 @@ def test_side_by_side_shows_exact_values_as_the_cards_do() -> None:
     page = render_page(_exact(69.5 / 4))
     rows = {row[0]: row[1:] for row in table_rows(page, "Both engines side by side")}
     assert rows["Cycle time"] == ["17.375", "17.375"]
-    assert rows["95 % interval"] == ["17.375 – 17.375", "17.375 – 17.375"]
+    assert "95 % interval" not in rows  # fixed durations: no interval to speak of
     assert rows["Throughput"] == [fmt(4 / 69.5)] * 2  # as the throughput card
     assert "Cycle time λ 17.375 min" in section_text(page, "numbers")  # the card
     random_rows = {row[0]: row[1:] for row in table_rows(render_page(random_document()),
@@ -233,7 +233,7 @@ def test_exact_side_says_it_needed_no_firings(fixed_page: str, random_page: str)
     """The max-plus side of a fixed model computed no firings: the table says it is exact
     instead of showing 0; the SimPy side and random models show their counts."""
     rows = {row[0]: row[1:] for row in table_rows(fixed_page, "Both engines side by side")}
-    assert rows["Firings computed"] == ["exact (no simulation)", "12,000"]
+    assert rows["Firings computed"] == ["exact, no simulation", "12,000"]
     rows = {row[0]: row[1:] for row in table_rows(random_page, "Both engines side by side")}
     assert rows["Firings computed"] == ["80,000", "40,000"]
     document = fixed_document()
@@ -241,7 +241,7 @@ def test_exact_side_says_it_needed_no_firings(fixed_page: str, random_page: str)
         del document[key]
     document["command"] = "analyze"
     numbers = section_text(render_page(document), "numbers")
-    assert "Firings computed exact (no simulation)" in numbers
+    assert "Firings computed exact, no simulation" in numbers
     assert " 0 " not in numbers
 
 
@@ -321,7 +321,8 @@ def test_wide_tables_are_set_tighter() -> None:
 
     page = render_page(wide_document())
     headers = table_rows(page, "Transitions")[0]
-    assert headers[0] == "Transition" and headers[-1] == "Cycle time" and len(headers) == 10
+    # Utilization has its own table now (section "Where to act"): 8 columns here.
+    assert headers[0] == "Transition" and headers[-1] == "Cycle time" and len(headers) == 8
     assert '<table class="wide"><caption>Transitions' in page
     assert "exponential(<wbr>mean=2)" in page
     document = random_document()
@@ -726,7 +727,8 @@ def _large_document(n: int) -> dict[str, Any]:
                     cycle_time_by_transition=dict.fromkeys(ids, 30.0),
                     slack={"transitions": {t: (0.0 if t == "s17" else 29.0) for t in ids},
                            "places": [None] * n + [0.0 if t == "s17" else 29.0 for t in ids]},
-                    utilization=None, charpoly={"skipped": "too large"})
+                    utilization=None, charpoly={"skipped": "too large"}, sensitivity=None,
+                    bottleneck=None, servers=None)
     document["simulation"]["utilization"] = None
     document["figures"].update(schedule=None, transient=None)
     return document
@@ -739,8 +741,8 @@ def test_large_graph_is_drawn_in_part_and_says_so() -> None:
     text = visible_text(page)
     assert "Part of the graph:" in text
     assert "77 transitions and 155 places are not shown" in text  # s16, s17, s18 drawn
-    assert "Showing 40 of 80 transitions" in text
-    assert "Showing 40 of 160 places" in text
+    assert "Showing 40 of 80 transitions" in text and "and 40 more transitions" in text
+    assert "Showing 40 of 160 places" in text and "and 120 more places" in text
     assert "◆ s17" in text
 
 
@@ -756,7 +758,8 @@ def test_any_live_graph_renders(graph: Any, random_kind: bool) -> None:
         places=[{"index": p.index, "from": p.source, "to": p.target, "tokens": p.tokens}
                 for p in places])
     document["analysis"].update(critical_circuits=[], slack=None, eigenvector=None,
-                                utilization=None, cycle_time_by_transition=None)
+                                utilization=None, cycle_time_by_transition=None,
+                                sensitivity=None, bottleneck=None, servers=None)
     document["simulation"]["utilization"] = None
     document["figures"].update(schedule=None, transient=None)
     page = render_page(document)
