@@ -8,7 +8,9 @@ starting with Parquet's magic bytes) or a pandas table in memory. Other column n
 transition names and other time units are mapped by a :class:`~.logformat.LogFormat`.
 
 Reading checks every row and the rows together (known transition ids, integer firing numbers,
-finite times, no firing logged twice in a replication) and sorts the firings into an
+finite times, no firing logged twice in a replication), finds the log's time resolution (the
+coarsest grid its times lie on: a simulator that rounds its times, see
+:func:`time_resolution`) and sorts the firings into an
 :class:`EventLog`; judging the times against the model is :mod:`.tracecheck` and
 :mod:`.judge`. Rows are checked column by column with numpy (no Python loop over rows): a log
 of 10^7 rows reads in about the time pandas takes to parse it.
@@ -34,12 +36,16 @@ from .modelfile import Model
 if TYPE_CHECKING:
     import pandas as pd
 
-__all__ = ["MAX_FIRING", "EventLog", "read_log"]
+__all__ = ["MAX_FIRING", "EventLog", "read_log", "time_resolution"]
 
 MAX_FIRING = 2**53
 """Largest firing number: integers up to here survive a float64 column exactly."""
 KEY_LIMIT = 2**62
 """Largest ``units × (largest firing + 1)`` packed into one int64 sort key."""
+GRID_DIGITS = 9
+"""Finest decimal grid :func:`time_resolution` looks for: 10^-9 time units."""
+_GRID_BITS = 40  # a grid step must be at least 2^-40 of the largest time to be told apart
+_GRID_SAMPLE = 1000  # values tried first: a log of unrounded times fails on them at once
 _SUGGEST_LIMIT = 100_000  # difflib over more ids would make an error message slow
 _FORMAT = "transition,firing,time (optionally start and replication)"
 _PARQUET_MAGIC = b"PAR1"
@@ -97,6 +103,9 @@ class EventLog:
         the (replication, transition) pairs, the series of firings judged one by one.
     source : str
         ``"csv"``, ``"parquet"`` or ``"table"``.
+    resolution : float
+        The coarsest grid all its times (and starts) lie on, in model time units (after
+        ``--time-scale``); 0.0 when there is none (see :func:`time_resolution`).
     """
 
     transition: np.ndarray
@@ -110,6 +119,7 @@ class EventLog:
     n_transitions: int = 0
     source: str = "table"
     where: _Where = field(default_factory=lambda: _Where(None, None), repr=False)
+    resolution: float = 0.0
 
     @property
     def n_firings(self) -> int:
@@ -360,6 +370,46 @@ def _natural(label: str) -> tuple[int, float, str]:
         return (1, 0.0, label)
 
 
+def time_resolution(*columns: np.ndarray | None) -> float:
+    """The coarsest grid every value lies on, or 0.0 when there is none: a simulator that
+    writes its times rounded to 0.01 gives 0.01, to a quarter 0.25, to minutes in a log in
+    seconds 60.
+
+    The grid is ``g · 10^-j`` with ``j`` the fewest decimals, 0 to :data:`GRID_DIGITS`, the
+    values have (``value · 10^j`` is an integer to 64 units in the last place: decimal
+    fractions are not exact in binary) and ``g`` the greatest common divisor of those
+    integers. Grids finer than 2^-40 of the largest value are not tried: every float lies on
+    them.
+
+    >>> time_resolution(np.array([0.25, 12.5, 3.0]))
+    0.25
+    >>> time_resolution(np.array([0.31, 12.5, 3.0]))
+    0.01
+    >>> time_resolution(np.array([120.0, 60.0]), np.array([0.0, 300.0]))
+    60.0
+    >>> time_resolution(np.array([0.1234567891234]))
+    0.0
+    """
+    values = np.concatenate([c for c in columns if c is not None])
+    if values.size == 0:
+        return 0.0
+    top = float(np.abs(values).max())
+    sample = values[:_GRID_SAMPLE]
+    for j in range(GRID_DIGITS + 1):
+        scale = 10.0**j
+        if top * scale > 2.0**_GRID_BITS:
+            break
+        if _on_grid(sample, scale) and _on_grid(values, scale):
+            step = int(np.gcd.reduce(np.rint(np.abs(values) * scale).astype(np.int64)))
+            return max(step, 1) * float(10.0**-j)
+    return 0.0
+
+
+def _on_grid(values: np.ndarray, scale: float) -> bool:
+    y = values * scale
+    return bool(np.all(np.abs(y - np.rint(y)) <= 64 * np.finfo(np.float64).eps * np.abs(y)))
+
+
 def _sort_key(t: np.ndarray, k: np.ndarray, n: int) -> np.ndarray | None:
     """``t · (max k + 1) + k`` as int64, or None when it could overflow."""
     width = int(k.max()) + 1
@@ -384,6 +434,7 @@ def _events(model: Model, cols: dict[str, Any], n_rows: int, where: _Where, fmt:
         r = int(late[0])
         raise where.error(r, f"start {_fmt(s[r])} is after the completion time {_fmt(x[r])}",
                           late.size)
+    resolution = time_resolution(x, s) * fmt.time_scale  # on the log's own clock
     if fmt.time_scale != 1.0:
         x = x * fmt.time_scale
         s = None if s is None else s * fmt.time_scale
@@ -406,4 +457,5 @@ def _events(model: Model, cols: dict[str, Any], n_rows: int, where: _Where, fmt:
                           f"at {where.item(first)})", dup.size)
     return EventLog(t[order], ks, x[order], None if s is None else s[order],
                     order.astype(np.int64), where.path,
-                    None if rep is None else rep[order], labels, n, source, where)
+                    None if rep is None else rep[order], labels, n, source, where,
+                    resolution)

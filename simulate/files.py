@@ -2,16 +2,18 @@
 
 Outputs
 -------
-cyclecheck writes four kinds of file, and an existing file is replaced only by a file of the
+cyclecheck writes five kinds of file, and an existing file is replaced only by a file of the
 same kind that cyclecheck wrote, unless the user says ``force``. The kind is read from the
-file's first bytes, never guessed from its name:
+file's content (its first bytes; a Parquet file's footer), never guessed from its name:
 
 ========== ============================================================================
 kind       how a file of that kind written by cyclecheck is recognised
 ========== ============================================================================
 result     JSON whose top object holds ``"document": "cyclecheck-result"``
 page       HTML whose second line is the page marker (:data:`cyclecheck.reports.MARKER`)
-log        CSV whose first line is exactly :data:`LOG_HEADER` (``simulate --trace``)
+log        CSV whose first line is exactly :data:`LOG_HEADER` (``simulate --trace``, the
+           probe), or that followed by ``,replication`` (the probe's replications);
+           Parquet whose footer metadata holds :data:`PARQUET_MARK` (the probe)
 table      CSV whose first line starts with :data:`TABLE_HEADER_START` (``sweep --csv``)
 state      JSON whose top object holds ``"document": "cyclecheck-sweep-state"``
            (``sweep --resume``)
@@ -50,6 +52,7 @@ from .errors import ArgumentError, ModelError
 __all__ = [
     "KINDS",
     "LOG_HEADER",
+    "PARQUET_MARK",
     "STATE_DOCUMENT",
     "TABLE_HEADER_START",
     "Output",
@@ -67,8 +70,10 @@ KINDS = {"result": "a cyclecheck result document", "page": "a cyclecheck review 
 #: File-name suffixes that announce each kind (a new file named for another kind is refused).
 SUFFIXES = {"result": (".json",), "page": (".html", ".htm"), "log": (".csv", ".parquet"),
             "table": (".csv",), "state": (".json",)}
-#: First line of the event logs cyclecheck writes.
+#: First line of the event logs cyclecheck writes (``,replication`` may follow).
 LOG_HEADER = "transition,firing,start,time"
+#: Key and value of the footer metadata of the Parquet event logs cyclecheck writes.
+PARQUET_MARK = (b"cyclecheck", b"event log")
 #: Start of the first line of the sweep tables cyclecheck writes.
 TABLE_HEADER_START = "point,"
 #: The value of ``"document"`` in the state files of resumable sweeps.
@@ -146,6 +151,8 @@ def kind_of(path: PathLike) -> str | None:
             head = handle.read(4096)
     except OSError:
         return None
+    if head.startswith(b"PAR1"):
+        return "log" if _marked_parquet(path) else None
     text = head.decode("utf-8", errors="replace").lstrip("\ufeff")
     lines = text.splitlines()
     first = lines[0] if lines else ""
@@ -157,11 +164,24 @@ def kind_of(path: PathLike) -> str | None:
         return "result"
     if text.lstrip().startswith("{") and f'"document": "{STATE_DOCUMENT}"' in text:
         return "state"
-    if first.rstrip("\r") == LOG_HEADER:
+    if first.rstrip("\r") in (LOG_HEADER, f"{LOG_HEADER},replication"):
         return "log"
     if first.startswith(TABLE_HEADER_START):
         return "table"
     return None
+
+
+def _marked_parquet(path: PathLike) -> bool:
+    """A Parquet file whose footer metadata holds :data:`PARQUET_MARK`."""
+    import pyarrow as pa
+    import pyarrow.parquet as pq
+
+    try:
+        meta = pq.read_schema(path).metadata or {}
+    except (pa.ArrowException, OSError, ValueError):
+        return False
+    key, value = PARQUET_MARK
+    return meta.get(key) == value
 
 
 def _suffix_kind(path: Path, kind: str) -> str | None:

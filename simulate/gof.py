@@ -18,6 +18,15 @@ Means
     :math:`z = (\bar x - \mu) / (\sigma / \sqrt n)` with the model's own mean and standard
     deviation (under the model the variance is known), two-sided, normal by the central limit
     theorem.
+Rounded values
+    A value known only to within :math:`\pm w` (a duration between two times a simulator
+    rounded) moves its empirical CDF by at most the largest probability of a window of width
+    :math:`w`, :math:`\omega(w) = \sup_x F(x + w) - F(x)` (:func:`window_mass`): the KS
+    distance of the true values is at least the observed one less that, so
+    :math:`P(D_n \ge D_{\text{obs}} - \omega(w))` is a conservative p-value
+    (:func:`ks_p_value`). ``F`` must be unimodal (every continuous law of a model file is):
+    the widest window then holds the mode, which the narrowest of :data:`WINDOW_BINS`
+    equal-probability bins brackets.
 Family-wise error
     Holm's step-down procedure (Holm 1979) over every test of one judgement.
 Power
@@ -42,6 +51,7 @@ References
 from __future__ import annotations
 
 import math
+from collections.abc import Callable
 from dataclasses import dataclass
 
 import numpy as np
@@ -50,13 +60,17 @@ from numpy.typing import ArrayLike
 __all__ = [
     "MONTE_CARLO_DRAWS",
     "POWER",
+    "WINDOW_BINS",
     "GroupedKS",
+    "WindowMass",
     "chi_square",
     "detectable_change_mean",
     "detectable_change_t",
     "holm",
     "ks_grouped",
+    "ks_p_value",
     "welch_t",
+    "window_mass",
     "z_mean",
 ]
 
@@ -64,6 +78,9 @@ POWER = 0.8
 """Probability of detection the reported smallest detectable changes are computed for."""
 MONTE_CARLO_DRAWS = 20_000
 """Draws of the Monte Carlo p-value of a chi-square test with small expected counts."""
+WINDOW_BINS = 1000
+"""Equal-probability bins whose narrowest brackets the mode of a law (:func:`window_mass`)."""
+_WINDOW_POINTS = 100_000  # most points of the grid that bounds the widest window
 
 
 @dataclass(frozen=True)
@@ -107,6 +124,71 @@ def ks_grouped(u: ArrayLike, group: ArrayLike, n_groups: int) -> GroupedKS:
         stat[has] = np.maximum.reduceat(gap, starts[has])
         p[has] = kstwo.sf(stat[has], n[has])
     return GroupedKS(stat, n, np.clip(p, 0.0, 1.0))
+
+
+def ks_p_value(statistic: ArrayLike, n: ArrayLike, allowance: ArrayLike = 0.0) -> np.ndarray:
+    r"""KS p-value :math:`P(D_n \ge D - a)` of a distance ``D`` that may exceed the true
+    values' by at most the ``allowance`` ``a`` (rounded values, see the module doc): a
+    conservative test, the exact one when ``a = 0``.
+
+    >>> round(float(ks_p_value(0.05, 1000)), 4), round(float(ks_p_value(0.05, 1000, 0.02)), 4)
+    (0.013, 0.3227)
+    """
+    from scipy.stats import kstwo
+
+    d = np.maximum(np.asarray(statistic, dtype=np.float64) - allowance, 0.0)
+    return np.clip(kstwo.sf(d, np.asarray(n)), 0.0, 1.0)
+
+
+@dataclass(frozen=True)
+class WindowMass:
+    r"""The largest probability of a window of one width under a unimodal law: ``omega`` (an
+    upper bound of :math:`\sup_x F(x + w) - F(x)`), and ``decreasing_from``, a point beyond
+    which the density does not increase (beyond it the window at ``a`` is the largest of
+    those starting at ``a`` or later: :meth:`beyond`)."""
+
+    cdf: Callable[[np.ndarray], np.ndarray]
+    width: float
+    omega: float
+    decreasing_from: float
+
+    def beyond(self, a: ArrayLike) -> np.ndarray:
+        r"""Upper bounds of :math:`\sup_{x \ge a} F(x + w) - F(x)`, for each ``a``."""
+        a = np.asarray(a, dtype=np.float64)
+        tail = np.where(np.isfinite(a), a, self.decreasing_from)
+        local = self.cdf(tail + self.width) - self.cdf(tail)
+        return np.where(a >= self.decreasing_from, np.minimum(local, self.omega), self.omega)
+
+
+def window_mass(cdf: Callable[[np.ndarray], np.ndarray], ppf: Callable[[np.ndarray], np.ndarray],
+                width: float) -> WindowMass:
+    r"""The largest probability of a window of ``width`` under a unimodal continuous law given
+    by its ``cdf`` and ``ppf`` (see the module doc).
+
+    The narrowest of :data:`WINDOW_BINS` equal-probability bins lies next to or on the mode
+    (the bins widen away from it), so the widest window, which holds the mode, starts in
+    :math:`[q_{j-1} - w, q_{j+2}]`; on a grid :math:`x_i` of that range
+    :math:`\sup_x F(x + w) - F(x) \le \max_i F(x_{i+1} + w) - F(x_i)`, a bound whatever the
+    grid.
+
+    >>> from scipy.stats import expon
+    >>> bound = window_mass(expon.cdf, expon.ppf, 0.01).omega  # the window [0, 0.01]
+    >>> bool(expon.cdf(0.01) <= bound <= expon.cdf(0.0101))
+    True
+    """
+    with np.errstate(divide="ignore", over="ignore"):  # ppf(1) is inf for most laws
+        q = np.asarray(ppf(np.linspace(0.0, 1.0, WINDOW_BINS + 1)), dtype=np.float64)
+    widths = np.diff(q)
+    j = int(np.argmin(np.where(np.isfinite(widths), widths, np.inf)))
+    lo, hi = q[max(j - 1, 0)] - width, q[min(j + 2, WINDOW_BINS)]
+    if not (width > 0 and np.isfinite(lo) and np.isfinite(hi)):
+        return WindowMass(cdf, width, 0.0 if width <= 0 else 1.0, -math.inf)
+    # a step of w / 100 at most (while it takes no more than _WINDOW_POINTS): the bound is
+    # then at most the mass of a window of 1.01 w
+    points = int(min(_WINDOW_POINTS, max(1000.0, 100.0 * (hi - lo) / width))) + 1
+    x = np.linspace(lo, hi, points)
+    omega = float(np.max(cdf(x[1:] + width) - cdf(x[:-1]))) if points > 1 else 1.0
+    return WindowMass(cdf, width, min(max(omega, 0.0), 1.0), float(hi))
 
 
 def chi_square(observed: ArrayLike, prob: ArrayLike, seed: int | np.random.SeedSequence = 0,

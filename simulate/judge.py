@@ -32,7 +32,7 @@ from typing import TYPE_CHECKING, Any
 
 import numpy as np
 
-from .errors import ModelError
+from .errors import ArgumentError, ModelError
 from .eventlog import EventLog, read_log
 from .gof import POWER, detectable_change_mean, detectable_change_t, holm, welch_t
 from .logcycle import (
@@ -47,6 +47,7 @@ from .logcycle import (
 from .logformat import log_format
 from .logstats import Finding, Judged, figure_data, judge_durations, judge_holds
 from .modelfile import Model
+from .result import finite_or_none
 from .tracecheck import MAX_LISTED, ExactCheck, check_events, check_tolerance
 
 if TYPE_CHECKING:
@@ -169,7 +170,6 @@ def judge_events(model: Model, log: EventLog, *, alpha: float = DEFAULT_ALPHA,
     _power(judged, cycle_findings, level)
     for f, entry in cycle_findings:
         entry["test"] = f.to_dict()
-        entry.update({k: _plain(v) for k, v in entry.items() if isinstance(v, float)})
 
     reasons += certain
     reasons += [f'{f.element} "{f.id}": the {f.kind} test ({f.test}) rejects the model '
@@ -203,14 +203,15 @@ def judge_events(model: Model, log: EventLog, *, alpha: float = DEFAULT_ALPHA,
 
 
 def _json_ready(value: Any) -> Any:
-    """The document with every number JSON can hold: NaN and infinities become None (a log
-    with absurd times still gets a judgement, not a crash when it is printed)."""
+    """The document with every number JSON can hold (:func:`~.result.finite_or_none`: NaN and
+    infinities become None; a log with absurd times still gets a judgement, not a crash when
+    it is printed). The one pass over the whole document: its parts keep plain floats."""
     if isinstance(value, dict):
         return {k: _json_ready(v) for k, v in value.items()}
     if isinstance(value, list | tuple):
         return [_json_ready(v) for v in value]
     if isinstance(value, float | np.floating):
-        return float(value) if math.isfinite(value) else None
+        return finite_or_none(value)
     if isinstance(value, np.integer):
         return int(value)
     return value
@@ -226,8 +227,10 @@ def _agreement(model: Model, exact: ExactCheck, findings: list[Finding],
     n_unjudged = exact.log.n_firings - n_checked
     what = ("every bound the model's distributions allow" if model.is_random else
             "the model's equations")
-    out = [f"all {n_checked} judged firings obey {what} within a relative tolerance of "
-           f"{exact.tolerance:g}" + (f" ({n_unjudged} not judged)" if n_unjudged else "")]
+    rounded = (f" and the log's rounding of {exact.resolution:g}" if exact.resolution else "")
+    out = [f"all {n_checked} judged firings obey {what} within a tolerance of "
+           f"{exact.tolerance:g} relative to each duration or hold{rounded}"
+           + (f" ({n_unjudged} not judged)" if n_unjudged else "")]
     if findings:
         low = min(f.adjusted_p for f in findings)
         out.append(f"none of the {len(findings)} statistical tests rejects the model at the "
@@ -256,15 +259,9 @@ def _rows(judged: list[Judged], kind: str) -> list[dict[str, Any]]:
         if j.samples.kind != kind:
             continue
         for row in j.rows:
-            out.append({k: (v.to_dict() if isinstance(v, Finding) else _plain(v))
+            out.append({k: (v.to_dict() if isinstance(v, Finding) else v)
                         for k, v in row.items()})
     return out
-
-
-def _plain(v: Any) -> Any:
-    if isinstance(v, float):
-        return v if math.isfinite(v) else None
-    return v
 
 
 def _figures(model: Model, judged: list[Judged]) -> list[dict[str, Any]]:
@@ -318,7 +315,9 @@ def _cycle_time(model: Model, log: EventLog, exact: ExactCheck, *, precision: fl
                                           seed=seed, workers=workers, scheduler=scheduler,
                                           progress=progress)
     if not np.array_equal(model_estimate.labels, labels):
-        raise ValueError("the model estimate belongs to another model (components differ)")
+        raise ArgumentError(f"model_estimate belongs to another model: its strongly connected "
+                            f"components differ from those of \"{model.name}\" (compute it "
+                            "with logcycle.model_cycle_time of this model)")
     section["model"] = model_estimate.describe()
     random_c = [int(c) for c in with_circuit if model_estimate.random[c]]
     random_c.sort(key=lambda c: -model_estimate.estimate[c])

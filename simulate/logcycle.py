@@ -178,10 +178,16 @@ def _series(log: EventLog, labels: np.ndarray, wanted: np.ndarray, present: np.n
         members[r] = np.bincount(labels, weights=logged[r], minlength=n_comp)
     k = log.firing[rows]
     width = int(k.max()) + 1
-    if log.n_replications * n_comp * width >= KEY_LIMIT:  # pragma: no cover - huge numbers
-        raise ValueError("firing numbers too large to group")
-    key = series * width + k
-    size = log.n_replications * n_comp * width
+    n_series = log.n_replications * n_comp
+    if n_series * width < KEY_LIMIT:  # (series, firing) packed into one int64 key
+        key = series * width + k
+        series_of, firing_of = None, None
+    else:  # huge firing numbers: pack their ranks (at most rows² < 2^62 keys) instead
+        series_of, series = np.unique(series, return_inverse=True)
+        firing_of, k_rank = np.unique(k, return_inverse=True)
+        n_series, width = series_of.size, firing_of.size
+        key = series * width + k_rank
+    size = n_series * width
     if size <= 4 * rows.size + 1024:  # dense: two bincounts instead of a sort
         counts = np.bincount(key, minlength=size)
         cells = np.flatnonzero(counts)
@@ -191,6 +197,8 @@ def _series(log: EventLog, labels: np.ndarray, wanted: np.ndarray, present: np.n
         cells, inverse, counts = np.unique(key, return_inverse=True, return_counts=True)
         sums = np.bincount(inverse, weights=log.time[rows] / scale, minlength=cells.size)
     cell_series, cell_k = cells // width, cells % width
+    if series_of is not None and firing_of is not None:
+        cell_series, cell_k = series_of[cell_series], firing_of[cell_k]
     full = counts == members.ravel()[cell_series]
     out = []
     bounds = np.flatnonzero(np.r_[True, cell_series[1:] != cell_series[:-1], True])

@@ -15,6 +15,12 @@ and ``replication`` once there are several), ``probe.write(path)`` writes it (CS
 for a ``.parquet`` name) for ``cyclecheck trace``, and ``probe.judge(model)`` judges it in the
 same process and returns the same document as ``cyclecheck trace --json``.
 
+The written log is an output of kind ``log`` (:mod:`.files`): written atomically, and never
+over a file of another kind (a model file, a page) unless ``force=True``. A CSV log starts
+with the header ``transition,firing,start,time`` (``,replication`` after it when there are
+several); a Parquet log carries :data:`~.files.PARQUET_MARK` in its footer metadata, by
+which a later write recognises it as the probe's own.
+
 Firing numbers. In the event graph, firing ``k`` of ``t`` consumes token ``k − m_p`` of each
 input place: tokens are consumed in the order of the firing that made them, not in order of
 arrival, so a firing number is the number of the job (part, customer, vehicle) it serves. By
@@ -31,12 +37,14 @@ judge reports.
 
 from __future__ import annotations
 
+import io
 import os
-import tempfile
 from collections.abc import Iterator
 from contextlib import contextmanager
 from pathlib import Path
 from typing import TYPE_CHECKING, Any
+
+from .errors import ArgumentError
 
 if TYPE_CHECKING:
     import pandas as pd
@@ -90,11 +98,13 @@ class Probe:
         if firing is None:
             firing = self._started.get(transition, 0) + 1
         elif isinstance(firing, bool) or not isinstance(firing, int) or firing < 1:
-            raise ValueError(f"firing must be an integer >= 1, got {firing!r}")
-        self._started[transition] = max(self._started.get(transition, 0), firing)
+            raise ArgumentError(f'firing of "{transition}" must be an integer >= 1 (firings '
+                                f"count from 1), got {firing!r}")
         key = (transition, firing)
         if key in self._open:  # a number used twice after completion is caught by the judge
-            raise ValueError(f'firing {firing} of "{transition}" has started already')
+            raise ArgumentError(f'firing {firing} of "{transition}" has started already '
+                                "(and not finished): each firing number starts once")
+        self._started[transition] = max(self._started.get(transition, 0), firing)
         self._open[key] = float(self.env.now)
         return firing
 
@@ -102,8 +112,8 @@ class Probe:
         """Firing ``firing`` of ``transition`` completes now."""
         start = self._open.pop((transition, firing), None)
         if start is None:
-            raise ValueError(f'firing {firing} of "{transition}" was not started (call start '
-                             "first) or has finished already")
+            raise ArgumentError(f'firing {firing} of "{transition}" was not started (call '
+                                "start first) or has finished already")
         self._rows.append((self.replication, transition, firing, start, float(self.env.now)))
 
     @contextmanager
@@ -121,24 +131,36 @@ class Probe:
         frame = pd.DataFrame(self._rows, columns=["replication", "transition", "firing",
                                                   "start", "time"])
         frame = frame.sort_values(["replication", "time"], kind="stable", ignore_index=True)
-        if self.replication == 0:
-            frame = frame.drop(columns="replication")
-        return frame
+        columns = ["transition", "firing", "start", "time"]  # files.LOG_HEADER's order
+        return frame[columns + (["replication"] if self.replication else [])]
 
-    def write(self, path: str | os.PathLike[str]) -> Path:
-        """Write the log to ``path`` (Parquet for a ``.parquet`` name, else CSV), atomically."""
+    def write(self, path: str | os.PathLike[str], *, force: bool = False) -> Path:
+        """Write the log to ``path`` (Parquet for a ``.parquet`` name, else CSV), atomically.
+
+        Raises
+        ------
+        ModelError
+            When ``path`` exists and is not an event log cyclecheck wrote (a model file, a
+            page, another program's log), unless ``force``; or cannot be written.
+        """
+        from .files import PARQUET_MARK, Output, write_outputs
+
         path = Path(path)
-        fd, tmp = tempfile.mkstemp(prefix=f".{path.name}.", suffix=".tmp",
-                                   dir=path.parent if str(path.parent) else ".")
-        os.close(fd)
-        try:
-            if path.suffix.lower() == ".parquet":
-                self.log().to_parquet(tmp, index=False)
-            else:
-                self.log().to_csv(tmp, index=False)
-            os.replace(tmp, path)
-        finally:
-            Path(tmp).unlink(missing_ok=True)
+        frame = self.log()
+        if path.suffix.lower() in (".parquet", ".pq"):
+            import pyarrow as pa
+            import pyarrow.parquet as pq
+
+            table = pa.Table.from_pandas(frame, preserve_index=False)
+            key, value = PARQUET_MARK
+            table = table.replace_schema_metadata({**(table.schema.metadata or {}),
+                                                   key: value})
+            buffer = io.BytesIO()
+            pq.write_table(table, buffer)
+            content: str | bytes = buffer.getvalue()
+        else:
+            content = frame.to_csv(index=False)
+        write_outputs([Output(path, "log", content)], force=force)
         return path
 
     def judge(self, model: Model | str | os.PathLike[str], **options: Any) -> dict[str, Any]:

@@ -22,7 +22,17 @@ when all numbers are fixed, since firings of a transition then complete in order
 ones firing 7 may still run where the log ends: it is a violation only when a logged firing
 needed it and every logged transition has its firing 1 (the log was not cut at its beginning).
 
-Two times are equal when ``|a − b| <= tolerance · max(1, |a|, |b|)``.
+Tolerance. A logged time ``a`` and its bound ``b`` are both reached from one logged time
+``r``: the completion that made the binding token (0 for an initial token) for a start, the
+start for a completion. They agree when
+
+.. math::  |a - b| \le \text{tolerance} \cdot \max(1, |a - r|, |b - r|) + \epsilon,
+
+the tolerance being relative to the *durations* ``a − r`` and ``b − r`` (a hold, a duration,
+or both), not to the clock: a slip of 3 s in a 12 s fill is caught at time 10^7 as at time
+10. ``ε`` is :data:`FLOAT_ULPS` units in the last place of the larger time (the rounding of
+the simulator's sums, a time scale, a text round trip), plus the log's time resolution when
+its times are rounded (:func:`rounding`).
 
 References
 ----------
@@ -42,11 +52,11 @@ import numpy as np
 from ..algebra.spectral import howard
 from .durations import Distribution, Empirical, SpecTable, Triangular, Uniform
 from .errors import ModelError
-from .eventlog import MAX_FIRING, EventLog, _fmt, _sort_key, read_log
+from .eventlog import EventLog, _fmt, _sort_key
 from .modelfile import Model
 
-__all__ = ["MAX_FIRING", "MAX_LISTED", "MIN_RATE_FIRINGS", "RATE_NOTE_TOLERANCE", "EventLog",
-           "ExactCheck", "check_events", "check_tolerance", "read_log", "support_bounds"]
+__all__ = ["FLOAT_ULPS", "MAX_LISTED", "MIN_RATE_FIRINGS", "RATE_NOTE_TOLERANCE", "ExactCheck",
+           "check_events", "check_tolerance", "float_margin", "rounding", "support_bounds"]
 
 MAX_LISTED = 20
 """Violations spelled out in ``reasons`` and ``first_violations``; the rest are counted."""
@@ -56,6 +66,9 @@ RATE_NOTE_TOLERANCE = 0.01
 """Relative gap between the log's cycle time and the model's worth a note (common practice)."""
 DENSE_FACTOR = 4
 """A dense table of firings is used while it has at most this many cells per logged firing."""
+FLOAT_ULPS = 16
+"""Units in the last place of the larger time that two times may differ by and still be
+equal (floating-point error, whatever the tolerance)."""
 # violation kind -> (rule, whether the logged value lies below the expected one)
 _KINDS = {1: ("start", True), 2: ("start", False), 3: ("duration", True),
           4: ("duration", False), 5: ("completion", True), 6: ("completion", False)}
@@ -141,6 +154,18 @@ class _Index:
         return found, pos
 
 
+def rounding(model: Model, log: EventLog) -> float:
+    """The rounding of the log's times to allow for: its resolution (the coarsest decimal
+    grid its times lie on, :attr:`EventLog.resolution`) when the model has a continuous
+    random law, whose draws lie on no grid, so that times on one were rounded by the
+    simulator; else 0.0 (fixed or resampled numbers may put every time on a grid by
+    themselves)."""
+    laws = [*model.durations.laws, *model.holds.laws]
+    if any(law.is_random and law.is_continuous for law in laws):
+        return float(log.resolution)
+    return 0.0
+
+
 def check_tolerance(tolerance: float) -> float:
     """The tolerance as a float; a ModelError (item ``tolerance``) unless finite and >= 0."""
     if (isinstance(tolerance, bool) or not isinstance(tolerance, (int, float, np.floating))
@@ -149,14 +174,31 @@ def check_tolerance(tolerance: float) -> float:
     return float(tolerance)
 
 
-def _below(a: np.ndarray, b: np.ndarray, tol: float) -> np.ndarray:
+def float_margin(*times: np.ndarray | float) -> np.ndarray:
+    """The floating-point slack of a comparison of times: :data:`FLOAT_ULPS` units in the
+    last place of the largest of them (a time of 10^7 carries about 2·10^-9 of rounding from
+    the simulator's sums, a time scale, a CSV round trip)."""
+    scale = np.abs(np.asarray(times[0], dtype=np.float64))
+    for t in times[1:]:
+        scale = np.maximum(scale, np.abs(t))
+    with np.errstate(invalid="ignore"):
+        return FLOAT_ULPS * np.finfo(np.float64).eps * np.where(np.isfinite(scale), scale, 0.0)
+
+
+def _below(a: np.ndarray, b: np.ndarray, ref: np.ndarray, tol: float,
+           slack: float = 0.0) -> np.ndarray:
     """``a`` lies below ``b`` by more than the tolerance (never where either is infinite).
 
-    Times and their bounds are >= 0 here, so ``max(1, a, b)`` is the scale; an infinite one
-    makes ``b - a`` infinite or NaN and the scale infinite, and the comparison False.
+    ``a`` and ``b`` are a logged time and its bound, both reached from the logged time
+    ``ref`` (the completion that made the binding token, the firing's start, or 0 for an
+    initial token): the spans ``a − ref`` and ``b − ref`` are durations, and the tolerance is
+    relative to them, not to the clock. ``slack`` (absolute: the log's rounding) and the
+    floating-point margin of the times are added. An infinite bound makes ``b - a`` infinite
+    or NaN and the scale infinite, and the comparison False.
     """
     with np.errstate(invalid="ignore"):
-        return b - a > tol * np.maximum(np.maximum(a, b), 1.0)
+        span = np.maximum(np.maximum(np.abs(a - ref), np.abs(b - ref)), 1.0)
+        return b - a > tol * span + slack + float_margin(a, b)
 
 
 @dataclass
@@ -170,6 +212,7 @@ class _Pairs:
     pred: np.ndarray   # its firing number j = k − m_p
     found: np.ndarray  # it is logged
     pos: np.ndarray    # its position in the log (see _Index.find); -1 where not needed
+    origin: np.ndarray  # completion of the predecessor firing (0 for an initial token)
     low: np.ndarray    # earliest availability of the token (0 for an initial token)
     high: np.ndarray   # latest availability (inf when the hold is unbounded)
     src: np.ndarray    # the unit (replication, transition) of the predecessor firing
@@ -193,11 +236,20 @@ def _pairs(model: Model, log: EventLog, index: _Index, hold_lo: np.ndarray,
     found, pos = index.find(src, np.maximum(pred, 1))
     found &= need
     pos[~need] = -1
-    taken = log.time[np.where(found, pos, 0)]
-    low = np.where(found, taken + hold_lo[place], 0.0)
+    origin = np.where(found, log.time[np.where(found, pos, 0)], 0.0)
+    low = np.where(found, origin + hold_lo[place], 0.0)
     same = np.array_equal(hold_lo, hold_hi)
-    high = low if same else np.where(found, taken + hold_hi[place], 0.0)
-    return _Pairs(place, offsets, need, pred, found, pos, low, high, src)
+    high = low if same else np.where(found, origin + hold_hi[place], 0.0)
+    return _Pairs(place, offsets, need, pred, found, pos, origin, low, high, src)
+
+
+def _origin(pairs: _Pairs, bound: np.ndarray, reached: np.ndarray) -> np.ndarray:
+    """Per firing, the completion its start bound was reached from: the ``origin`` of the
+    input pair whose availability ``reached`` attains the firing's ``bound`` (the latest such
+    completion when several tie)."""
+    rows = np.repeat(np.arange(bound.size), np.diff(np.r_[pairs.offsets, reached.size]))
+    binding = np.where(reached == bound[rows], pairs.origin, -np.inf)
+    return np.maximum.reduceat(binding, pairs.offsets)
 
 
 def _holes(model: Model, log: EventLog, pairs: _Pairs, first: np.ndarray) -> tuple[Any, ...]:
@@ -236,7 +288,8 @@ class ExactCheck:
     Arrays are aligned with the firings of :attr:`log` (sorted order). ``ready_low`` and
     ``ready_high`` bound the start of each firing from the logged completions it waits for
     (equal where every input hold is fixed: the start is then known exactly, log column or not);
-    ``judged`` is False where a firing it waits for is not logged.
+    ``judged`` is False where a firing it waits for is not logged. ``resolution`` is the
+    rounding of the log's times allowed for (:func:`rounding`; 0.0 when none).
     """
 
     log: EventLog
@@ -252,6 +305,7 @@ class ExactCheck:
     from_one: bool
     present: np.ndarray  # (units,) each (replication, transition) has a logged firing
     cycle_time_from_log: float | None
+    resolution: float = 0.0
 
     @property
     def firings_checked(self) -> int:
@@ -280,6 +334,7 @@ class ExactCheck:
         return {
             "log": None if log.path is None else str(log.path),
             "tolerance": self.tolerance,
+            "time_resolution": self.resolution or None,
             "checks": "bounds" if model.is_random else "exact",
             "firings_logged": log.n_firings,
             "firings_checked": self.firings_checked,
@@ -308,6 +363,7 @@ def check_events(model: Model, log: EventLog, *, tolerance: float = 1e-6,
                  max_listed: int = MAX_LISTED) -> ExactCheck:
     """The exact part of the judge on a checked :class:`EventLog` (see the module doc)."""
     tol = check_tolerance(tolerance)
+    resolution = rounding(model, log)
     ids = model.transition_ids
     hold_lo, hold_hi = _bounds(model.holds)
     dur_lo, dur_hi = _bounds(model.durations)
@@ -320,18 +376,23 @@ def check_events(model: Model, log: EventLog, *, tolerance: float = 1e-6,
     judged = np.add.reduceat((pairs.need & ~pairs.found).astype(np.int64), pairs.offsets) == 0
     low = np.maximum.reduceat(pairs.low, pairs.offsets)
     high = np.maximum.reduceat(pairs.high, pairs.offsets)
+    ref_low = _origin(pairs, low, pairs.low)
+    ref_high = ref_low if pairs.high is pairs.low else _origin(pairs, high, pairs.high)
     dlo, dhi = dur_lo[t], dur_hi[t]
     kind = np.zeros(n_rows, dtype=np.int8)
     expected, when = np.full(n_rows, np.nan), np.full(n_rows, np.nan)
     with np.errstate(invalid="ignore"):  # inf - inf where a bound is unbounded
-        # (code, a, b, logged value, its lower bound): a below b is a violation. A violation
-        # is dated by the lower of the logged value and its lower bound: a firing that waits
-        # for a wrong time is dated no earlier, so the cause comes first in the list.
-        checks = ([(1, s, low, s, low), (2, high, s, s, low), (3, x, s + dlo, x, s + dlo),
-                   (4, s + dhi, x, x, s + dlo)] if s is not None else
-                  [(5, x, low + dlo, x, low + dlo), (6, high + dhi, x, x, low + dlo)])
-        for code, a, b, value, lower in checks:  # the first violation found is kept
-            hit = np.flatnonzero(_below(a, b, tol) & judged & (kind == 0))
+        # (code, a, b, the logged time both are reached from, logged value, its lower
+        # bound): a below b is a violation. A violation is dated by the lower of the logged
+        # value and its lower bound: a firing that waits for a wrong time is dated no
+        # earlier, so the cause comes first in the list.
+        checks = ([(1, s, low, ref_low, s, low), (2, high, s, ref_high, s, low),
+                   (3, x, s + dlo, s, x, s + dlo), (4, s + dhi, x, s, x, s + dlo)]
+                  if s is not None else
+                  [(5, x, low + dlo, ref_low, x, low + dlo),
+                   (6, high + dhi, x, ref_high, x, low + dlo)])
+        for code, a, b, ref, value, lower in checks:  # the first violation found is kept
+            hit = np.flatnonzero(_below(a, b, ref, tol, resolution) & judged & (kind == 0))
             if hit.size:
                 kind[hit], expected[hit] = code, (b if code % 2 else a)[hit]
                 when[hit] = np.minimum(value[hit], lower[hit])
@@ -350,6 +411,11 @@ def check_events(model: Model, log: EventLog, *, tolerance: float = 1e-6,
         for *_, i, timing in sorted(entries)[:max_listed]]
 
     notes = []
+    if resolution:
+        notes.append(f"the log's times all lie on a grid of {_fmt(resolution)} (the simulator "
+                     "rounds them): the exact checks allow that much between two logged "
+                     "times, and the tests of durations and holds are made conservative for it"
+                     " (see each test)")
     n_checked, n_unjudged = int(judged.sum()), int((~judged).sum())
     if n_checked == 0 and n_violations == 0:
         raise ModelError("no firing of the event log can be judged: every firing needs an "
@@ -379,7 +445,7 @@ def check_events(model: Model, log: EventLog, *, tolerance: float = 1e-6,
                          f"{_fmt(lam)} by {100 * rel:+.3g} %: over few firings or a long "
                          "transient the growth rate of the log has not settled")
     return ExactCheck(log, pairs, judged, low, high, tol, n_violations, first_violations, notes,
-                      int(gap.sum()), from_one, present, from_log)
+                      int(gap.sum()), from_one, present, from_log, resolution)
 
 
 def _earliest(rows: np.ndarray, when: np.ndarray, t: np.ndarray, k: np.ndarray,

@@ -2,7 +2,7 @@
 
 from __future__ import annotations
 
-__all__ = ["CONVEYOR", "PRESS_LINE"]
+__all__ = ["CONVEYOR", "PRESS_LINE", "late"]
 
 # An invented press line: random arrivals, a conveyor with a random travel time into a single
 # press (the only random input hold of the press: its holds are judged, censored by the press
@@ -61,3 +61,13 @@ label = "bins"
 
 
 CONVEYOR = '{ dist = "uniform", low = 0.5, high = 3.0 }'
+
+
+def late(frame, firings, clock):
+    """The same firings numbered ``firings`` later and ``clock`` time units later: a stretch
+    of a long run's log far from its start (the firings that needed the initial tokens are
+    then not judged: the firings they waited for are not in the log)."""
+    out = frame.assign(firing=frame["firing"] + firings, time=frame["time"] + clock)
+    if "start" in frame:
+        out["start"] = frame["start"] + clock
+    return out

@@ -14,7 +14,9 @@ from cyclecheck.simulate.gof import (
     detectable_change_t,
     holm,
     ks_grouped,
+    ks_p_value,
     welch_t,
+    window_mass,
     z_mean,
 )
 from scipy import stats
@@ -165,3 +167,58 @@ def test_detectable_change_has_the_power_it_claims():
     t_change = detectable_change_t(0.1, 20, 5.0, 0.05)
     q = stats.t.ppf(0.975, 20) + stats.t.ppf(0.8, 20)
     assert t_change == pytest.approx(q * 0.1 / 5.0)
+
+
+# Laws with an unbounded density at 0 besides those above (gamma cv > 1, Weibull shape < 1).
+SPIKED = [
+    ({"dist": "gamma", "mean": 1.0, "cv": 2.0}, lambda: stats.gamma(0.25, scale=4.0)),
+    ({"dist": "weibull", "scale": 1.0, "shape": 0.7}, lambda: stats.weibull_min(0.7)),
+]
+
+
+def _widest(ref, width, lo, hi):
+    """Brute-force twin: the largest F(x + w) - F(x) over a grid of step w / 50 (scipy's
+    CDF), which finds it to 2 % of the window's mass."""
+    x = np.linspace(lo, hi, int(min(200_000, 50 * (hi - lo) / width)) + 2)
+    return float(np.max(ref.cdf(x + width) - ref.cdf(x)))
+
+
+@pytest.mark.parametrize("spec, reference", LAWS + SPIKED,
+                         ids=[f"{s['dist']}{i}" for i, (s, _) in enumerate(LAWS + SPIKED)])
+@pytest.mark.parametrize("width", [0.01, 0.3])
+def test_window_mass_bounds_the_widest_window(spec, reference, width):
+    """omega bounds sup_x F(x + w) - F(x) (a dense-grid search with scipy's CDF as the twin)
+    and is tight (at most the widest window of 1.05 w); beyond ``decreasing_from`` the
+    window at a point is the widest of those after it (unimodal laws, derived in
+    gof.py)."""
+    law, ref = parse_spec(spec), reference()
+    lo, hi = float(ref.ppf(0.0)) - width, float(ref.ppf(0.999))
+    mass = window_mass(law.cdf, law.ppf, width)
+    assert _widest(ref, width, lo, hi) <= mass.omega + 1e-12
+    assert mass.omega <= _widest(ref, 1.05 * width, lo, hi) + 1e-9
+    for a in (mass.decreasing_from, mass.decreasing_from + 0.5, float(ref.ppf(0.9))):
+        if a >= mass.decreasing_from:
+            after = _widest(ref, width, a, max(hi, a + 1.0))
+            assert after <= float(mass.beyond(a)) + 1e-12
+    assert float(mass.beyond(-math.inf)) == mass.omega
+
+
+@pytest.mark.parametrize("spec, reference", [LAWS[0], LAWS[6], SPIKED[0]],
+                         ids=["exponential", "uniform", "gamma-spiked"])
+def test_rounding_moves_the_ks_distance_by_at_most_the_window(spec, reference):
+    """Values known to within ±w (here rounded to a grid of w, or shifted by up to w): the
+    KS distance (scipy.stats.kstest, the reference) exceeds the true values' by at most
+    omega(w), so the p-value with that allowance is at least the true values' p-value: a
+    conservative test (derived in gof.py from the monotonicity of the empirical CDF)."""
+    law, ref = parse_spec(spec), reference()
+    rng = np.random.default_rng(np.random.SeedSequence(5))
+    for w in (0.01, 0.2):
+        omega = window_mass(law.cdf, law.ppf, w).omega
+        for _ in range(20):
+            x = ref.rvs(size=2000, random_state=rng)
+            true = stats.kstest(x, ref.cdf).statistic
+            for blurred in (np.round(x / w) * w, x + rng.uniform(-w, w, x.size),
+                            x + w * np.sign(np.median(x) - x)):  # pushed towards the middle
+                d = stats.kstest(blurred, ref.cdf).statistic
+                assert d <= true + omega + 1e-12
+                assert ks_p_value(d, x.size, omega) >= ks_p_value(true, x.size) - 1e-12

@@ -12,6 +12,8 @@ import pytest
 import simpy
 from click.testing import CliRunner
 from cyclecheck.simulate.cli import main
+from cyclecheck.simulate.errors import ArgumentError, ModelError
+from cyclecheck.simulate.files import LOG_HEADER, kind_of
 from cyclecheck.simulate.probe import Probe
 
 from tests.simpy_lines import closed_line_probe
@@ -46,20 +48,75 @@ def test_firings_are_numbered_by_start_unless_given():
 
 
 def test_replications_and_misuse():
+    """A call outside the probe's rules is an ArgumentError (a ValueError) naming the
+    transition and the firing."""
     probe = Probe(simpy.Environment())
     k = probe.start("press")
-    with pytest.raises(ValueError, match='firing 1 of "press" has started already'):
+    with pytest.raises(ArgumentError) as info:
         probe.start("press", firing=1)
+    assert str(info.value) == ('firing 1 of "press" has started already (and not finished): '
+                               "each firing number starts once")
     probe.finish("press", k)
-    with pytest.raises(ValueError, match="was not started"):
+    with pytest.raises(ArgumentError) as info:
         probe.finish("press", k)
-    with pytest.raises(ValueError, match="firing must be an integer >= 1"):
+    assert str(info.value) == ('firing 1 of "press" was not started (call start first) or '
+                               "has finished already")
+    with pytest.raises(ValueError) as info:
         probe.start("press", firing=0)
+    assert str(info.value) == ('firing of "press" must be an integer >= 1 (firings count from '
+                               "1), got 0")
     probe.restart(simpy.Environment())
     assert probe.start("press") == 1  # numbers count again in the new replication
     probe.finish("press", 1)
     log = probe.log()
+    assert list(log.columns) == ["transition", "firing", "start", "time", "replication"]
     assert log["replication"].tolist() == [0, 1] and log["firing"].tolist() == [1, 1]
+
+
+def _probe(replications):
+    probe = Probe(simpy.Environment())
+    for r in range(replications):
+        if r:
+            probe.restart(simpy.Environment())
+        probe.finish("press", probe.start("press"))
+    return probe
+
+
+@pytest.mark.parametrize("replications", [1, 2])
+@pytest.mark.parametrize("suffix", [".csv", ".parquet"])
+def test_write_is_an_output_of_kind_log(tmp_path, suffix, replications):
+    """probe.write goes through the one writer of outputs (simulate/files.py): a log the
+    probe wrote is recognised as an event log and replaced; a file of another kind (a model
+    file) is left untouched unless force; nothing half-written is left behind."""
+    probe = _probe(replications)
+    path = tmp_path / f"log{suffix}"
+    probe.write(path)
+    assert kind_of(path) == "log"
+    if suffix == ".csv":
+        header = path.read_text(encoding="utf-8").splitlines()[0]
+        assert header == LOG_HEADER + (",replication" if replications > 1 else "")
+    probe.write(path)  # its own earlier log: replaced
+    back = pd.read_parquet(path) if suffix == ".parquet" else pd.read_csv(path)
+    assert back.shape == probe.log().shape
+    model = tmp_path / f"line{suffix}.toml"
+    model.write_text('[model]\nname = "line"\n', encoding="utf-8")
+    with pytest.raises(ModelError, match="exists and is not a cyclecheck output") as info:
+        probe.write(model)
+    assert info.value.file == model
+    assert model.read_text(encoding="utf-8") == '[model]\nname = "line"\n'
+    probe.write(model, force=True)
+    assert kind_of(model) == "log"
+    assert sorted(p.name for p in tmp_path.iterdir() if p.name.startswith(".")) == []
+
+
+def test_a_foreign_parquet_file_is_not_a_log_of_ours(tmp_path):
+    """A Parquet file written by another program has no cyclecheck mark in its footer: it
+    is not replaced without force."""
+    path = tmp_path / "theirs.parquet"
+    pd.DataFrame({"transition": ["press"], "firing": [1], "time": [1.0]}).to_parquet(path)
+    assert kind_of(path) is None
+    with pytest.raises(ModelError, match="not a cyclecheck output"):
+        _probe(1).write(path)
 
 
 def test_an_interrupted_firing_is_not_complete():

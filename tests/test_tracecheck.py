@@ -33,16 +33,14 @@ from cyclecheck.simulate.cli import main
 from cyclecheck.simulate.durations import parse_spec
 from cyclecheck.simulate.engine import simulate_event_graph
 from cyclecheck.simulate.errors import ModelError
+from cyclecheck.simulate.eventlog import EventLog, read_log
 from cyclecheck.simulate.judge import judge_events, judge_log
 from cyclecheck.simulate.modelfile import load_model, write_csv_model
-from cyclecheck.simulate.tracecheck import (
-    EventLog,
-    read_log,
-    support_bounds,
-)
+from cyclecheck.simulate.tracecheck import support_bounds
 from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
 
+from tests.judge_models import late
 from tests.strategies import live_event_graphs
 
 MODELS = sorted((Path(__file__).resolve().parent.parent / "models").glob("*.toml"))
@@ -282,18 +280,43 @@ def test_shifted_completion_with_start_is_a_duration_violation(tmp_path):
     assert "took 10.75" in first["message"] and "its duration is 10" in first["message"]
 
 
-def test_relative_tolerance(tmp_path):
-    """|a - b| <= tolerance * max(1, |a|, |b|) is equal; twice the tolerance is not."""
+@pytest.mark.parametrize("clock", [0.0, 1e7])
+def test_tolerance_is_relative_to_the_duration_not_the_clock(clock, tmp_path):
+    """A completion is compared with start + duration within tolerance · max(1, duration):
+    the packer's 14 s completes 0.5 tolerance late (equal) or 2 tolerances late (not), at
+    time 10^3 as at time 10^7 (its last firing: no logged firing waits for it)."""
     model = load_model(PACKAGING)
-    frame = engine_log(model, 60).drop(columns="start")
-    i = row_of(frame, "pack", 50)
+    frame = engine_log(model, 60)
+    if clock:
+        frame = late(frame, 600_000, clock)
+    i = row_of(frame, "pack", frame.loc[frame["transition"] == "pack", "firing"].max())
     x = float(frame.loc[i, "time"])
     for factor, verdict in ((0.5, "agrees"), (2.0, "disagrees")):
         shifted = frame.copy()
-        shifted.loc[i, "time"] = x + factor * 1e-6 * x
+        shifted.loc[i, "time"] = x + factor * 1e-6 * 14.0
         assert judge_frame(model, shifted, tmp_path)["verdict"] == verdict
-    shifted.loc[i, "time"] = x + 2e-6 * x
     assert judge_frame(model, shifted, tmp_path, tolerance=1e-5)["verdict"] == "agrees"
+
+
+def test_a_slip_is_caught_late_in_a_long_run(tmp_path):
+    """A filler of 15 s in a log of the 12 s cell, 1000 firings each near time 10^7 (the last
+    firings of a run of 6·10^5): every judged fill is a duration violation, as early in a run.
+    Its control, the 12 s cell's own log at the same clock, agrees."""
+    model = load_model(PACKAGING)
+    text = PACKAGING.read_text(encoding="utf-8")
+    assert text.count("duration = 12.0") == 1
+    (tmp_path / "slow.toml").write_text(text.replace("duration = 12.0", "duration = 15.0"),
+                                        encoding="utf-8")
+    slow = load_model(tmp_path / "slow.toml")
+    for source, verdict in ((model, "agrees"), (slow, "disagrees")):
+        frame = late(engine_log(source, 1000), 600_000, 1e7 - 1e4)
+        doc = judge_frame(model, frame, tmp_path)
+        assert doc["verdict"] == verdict, doc["reasons"][:2]
+        if verdict == "disagrees":
+            rules = {(v["transition"], v["rule"]) for v in doc["first_violations"]}
+            assert rules == {("fill", "duration")}
+            assert doc["violations"] >= 990
+            assert "took 15" in doc["reasons"][0] and "its duration is 12" in doc["reasons"][0]
 
 
 def test_missing_firing_is_a_violation(tmp_path):
@@ -603,8 +626,13 @@ def test_cli_exit_codes(tmp_path):
 # the slow twin
 
 
-def close(a, b, tol):
-    return abs(a - b) <= tol * max(1.0, abs(a), abs(b))
+ULPS = 16 * 2.0**-52  # tracecheck.FLOAT_ULPS units in the last place
+
+
+def close(a, b, ref, tol):
+    """The rule of the module doc: a and b are reached from the logged time ref; equal when
+    |a - b| <= tol * max(1, |a - ref|, |b - ref|) + 16 ulps of the larger time."""
+    return abs(a - b) <= tol * max(1.0, abs(a - ref), abs(b - ref)) + ULPS * max(abs(a), abs(b))
 
 
 def twin_judge(graph, rows, with_start, tol):
@@ -619,26 +647,28 @@ def twin_judge(graph, rows, with_start, tol):
         inputs[int(graph.target[p])].append(p)
     violations, unjudged = set(), set()
     for (t, k), (x, s) in logged.items():
-        terms = []
+        terms = []  # (availability of the token, the completion it came from)
         for p in inputs[t]:
             u, m = int(graph.source[p]), int(graph.tokens[p])
             if k <= m:
-                terms.append(0.0)
+                terms.append((0.0, 0.0))
             elif (u, k - m) in logged:
-                terms.append(logged[(u, k - m)][0] + float(graph.hold[p]))
+                done = logged[(u, k - m)][0]
+                terms.append((done + float(graph.hold[p]), done))
             else:
                 terms = None
                 break
         if terms is None:
             unjudged.add((t, k))
             continue
-        ready, d = max(terms), float(graph.duration[t])
+        ready, d = max(a for a, _ in terms), float(graph.duration[t])
+        ref = max(r for a, r in terms if a == ready)  # the binding token's origin
         if with_start:
-            if not close(s, ready, tol):
+            if not close(s, ready, ref, tol):
                 violations.add((t, k, "start"))
-            elif not close(x, s + d, tol):
+            elif not close(x, s + d, s, tol):
                 violations.add((t, k, "duration"))
-        elif not close(x, ready + d, tol):
+        elif not close(x, ready + d, ref, tol):
             violations.add((t, k, "completion"))
     missing = set()
     for t in range(graph.n_transitions):
