@@ -339,15 +339,16 @@ class LineageSweep:
             a, b = k - lo, end - lo + 1  # rows of snap
             w = snap[a:b]
             rows = slice(k - first, end - first + 1)
-            _add_in_turn(self.dur_w[j], w * dur[rows][..., None])
-            _add_in_turn(self.dur_m[j], w)
+            # from the newest firing, as the sweep visits them
+            _add_in_turn(self.dur_w[j], (w * dur[rows][..., None])[::-1])
+            _add_in_turn(self.dur_m[j], w[::-1])
             slots = record[rows]
             through = self.tok_all[slots] < (k + np.arange(b - a))[:, None, None]
             wt = w * through[..., None]
-            _add_in_turn(self.hold_m[j], _by_slot(wt, slots, P))
+            _add_in_turn(self.hold_m[j], _by_slot(wt, slots, P)[::-1])
             if hold is not None:
                 chosen = np.take_along_axis(hold[rows], slots, axis=1)[..., None]
-                _add_in_turn(self.hold_w[j], _by_slot(wt * chosen, slots, P))
+                _add_in_turn(self.hold_w[j], _by_slot(wt * chosen, slots, P)[::-1])
             k = end + 1
 
 
@@ -356,12 +357,11 @@ _NO_HOLD = np.empty((0, 0, 0))
 
 
 def _add_in_turn(total: np.ndarray, parts: np.ndarray) -> None:
-    """``total += parts[c-1]``, then ``parts[c-2]``, … ``parts[0]``: one addition at a time,
-    from the newest firing, as the compiled sweep adds them (a sum over the axis may add
-    pairwise, which rounds differently)."""
+    """``total += parts[0]``, then ``parts[1]``, …: one addition at a time, in the order of
+    the compiled kernels (a sum over the axis may add pairwise, which rounds differently)."""
     stack = np.empty((parts.shape[0] + 1, *total.shape))
     stack[0] = total
-    stack[1:] = parts[::-1]
+    stack[1:] = parts
     total[...] = np.add.accumulate(stack, axis=0)[-1]
 
 

@@ -59,7 +59,7 @@ import numpy as np
 
 from .eventgraph import EventGraph, check_live
 from .exceptions import InvalidArray
-from .lineage import LineageSweep
+from .lineage import LineageSweep, _add_in_turn
 
 __all__ = [
     "KERNELS",
@@ -95,6 +95,7 @@ _HISTORY_ELEMENTS = 1 << 30
 _NO_F3 = np.empty((0, 0, 0))
 _NO_I3 = np.empty((0, 0, 0), dtype=np.int32)
 _NO_I2 = np.empty((0, 0), dtype=np.int64)
+_NO_F2 = np.empty((0, 0))
 #: Largest precomputed table of ring-buffer read positions (elements).
 _INDEX_TABLE_ELEMENTS = 1 << 22
 _INDEX_TABLE_ARRAYS = 1 << 16
@@ -729,9 +730,13 @@ class RandomRecursion:
         width: int,
         what: str,
         columns: np.ndarray,
+        busy: np.ndarray | None = None,
     ) -> np.ndarray | None:
-        """Call a source, check its block, return it as (count, len(columns), R); None if 0."""
-        R = self._engine.R
+        """Call a source, check its block, return it as (count, len(columns), R) (a fresh
+        array: the lineage keeps it); None for holds that are all 0. ``busy`` (len(columns),
+        R), when given, gets the draws added firing after firing."""
+        eng = self._engine
+        R = eng.R
         raw = np.asarray(source(first, count), dtype=np.float64)
         try:
             block = np.broadcast_to(raw, (count, R, width))
@@ -740,15 +745,27 @@ class RandomRecursion:
                 f"{what} source returned shape {raw.shape} for firings {first}.."
                 f"{first + count - 1}, expected ({count}, {R}, {width})"
             ) from None
+        bad = InvalidArray(f"{what} source returned negative, NaN or infinite values for "
+                           f"firings {first}..{first + count - 1}")
+        if (eng.kernel is not None and raw.shape == block.shape and raw.flags.writeable
+                and raw.flags.c_contiguous):
+            # one compiled pass: the checks, the copy to the internal layout, the busy sums
+            out = np.empty((count, columns.size, R))
+            flags = eng.kernel.gather(raw, columns, out, _NO_F2 if busy is None else busy,
+                                      busy is not None)
+            if flags == 1:
+                raise bad
+            return None if what == "hold" and flags == 0 else out
         if raw.size and not (raw.min() >= 0 and raw.max() < np.inf):
-            raise InvalidArray(
-                f"{what} source returned negative, NaN or infinite values for firings "
-                f"{first}..{first + count - 1}"
-            )
+            raise bad
         if what == "hold" and not raw.any():
             return None  # zero holds: skip the additions
-        # internal layout: (firing, element in internal order, replication), contiguous
-        return np.ascontiguousarray(block.transpose(0, 2, 1)[:, columns, :])
+        # internal layout: (firing, element in internal order, replication), contiguous (take
+        # is faster than fancy indexing here)
+        out = np.ascontiguousarray(np.take(block.transpose(0, 2, 1), columns, axis=1))
+        if busy is not None:
+            _add_in_turn(busy, out)
+        return out
 
     def run(
         self,
@@ -808,7 +825,8 @@ class RandomRecursion:
         while eng.k < k0 + K:
             first = eng.k + 1
             count = min(chunk, k0 + K - eng.k)
-            dur = self._draws(self.duration_source, first, count, n, "duration", eng.perm)
+            dur = self._draws(self.duration_source, first, count, n, "duration", eng.perm,
+                              busy)
             hold = self._draws(self.hold_source, first, count, m, "hold", eng.pslot)
             assert dur is not None
             r = rec[:count] if rec is not None else None
@@ -819,7 +837,6 @@ class RandomRecursion:
             at_marks = np.empty((j1 - j0, n, R))
             eng.step(count, dur, hold, r, argmax, counts, marks, at_marks)
             xs[1 + j0 : 1 + j1] = at_marks[:, rows, :].transpose(0, 2, 1)
-            busy += dur.sum(axis=0)
             pos = first - 1 - k0
             if times is not None and r is not None:
                 times[pos : pos + count] = r[:, eng.inv, :].transpose(0, 2, 1)

@@ -50,8 +50,8 @@ import numba
 import numpy as np
 from numba.core.caching import NullCache
 
-__all__ = ["CACHED", "PREPARED", "advance", "compiled_on_disk", "disable_cache", "prepare",
-           "sweep_chunk"]
+__all__ = ["CACHED", "PREPARED", "advance", "compiled_on_disk", "disable_cache", "gather",
+           "prepare", "sweep_chunk"]
 
 
 def _cache_available() -> bool:
@@ -221,6 +221,32 @@ def sweep_chunk(mass, record, dur, hold, has_hold, first, lo, hi, settle, segmen
                                 hold_w[j, s, r, f] += w * hold[i, s, r]
 
 
+@_jit
+def gather(raw, columns, out, busy, want_busy):  # type: ignore[no-untyped-def]
+    """Copy draws ``raw`` (c, R, w) to ``out`` (c, len(columns), R) in the
+    recursion's order (``out[i, j, r] = raw[i, r, columns[j]]``); with ``want_busy`` add them,
+    firing after firing, to ``busy`` (len(columns), R). Returns 1 when a value is negative,
+    NaN or infinite (nothing is added then), else 2 when some value is not 0, else 0."""
+    c, R, _ = raw.shape
+    nonzero = False
+    for i in range(c):
+        for j in range(columns.size):
+            col = columns[j]
+            for r in range(R):
+                v = raw[i, r, col]
+                if not (v >= 0.0 and v < np.inf):
+                    return 1
+                if v != 0.0:
+                    nonzero = True
+                out[i, j, r] = v
+    if want_busy:
+        for i in range(c):
+            for j in range(columns.size):
+                for r in range(R):
+                    busy[j, r] += out[i, j, r]
+    return 2 if nonzero else 0
+
+
 _I8, _F8, _B = numba.int64, numba.float64, numba.boolean
 _SIGNATURES = {
     advance: (numba.void(
@@ -231,6 +257,7 @@ _SIGNATURES = {
         _F8[:, :, ::1], numba.int32[:, :, ::1], _F8[:, :, ::1], _F8[:, :, ::1], _B, _I8, _I8,
         _I8, _I8, _I8[::1], _I8, _I8, _I8[::1], _I8[::1], _I8[:, ::1], _F8[:, :, :, ::1],
         _F8[:, :, :, ::1], _F8[:, :, :, ::1], _F8[:, :, :, ::1]),),
+    gather: (numba.int64(_F8[:, :, ::1], _I8[::1], _F8[:, :, ::1], _F8[:, ::1], _B),),
 }
 
 

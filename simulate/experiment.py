@@ -242,11 +242,16 @@ def _recursion_batch(model: Model, seed: int, replications: Sequence[int], firin
     def holds(first: int, count: int) -> np.ndarray:
         return np.stack([s.hold_block(first, count) for s in samplers], axis=1)
 
-    def filled(kind: str, width: int) -> _AlignedDraws:
-        """Fetches of one kind into one reused buffer (fresh memory costs a page fault per
-        4 KiB on first touch)."""
-        chunk = _chunk_firings(len(reps), width)
-        buffer = np.empty((chunk, len(reps), width))
+    def filled(kind: str, table: Any) -> Callable[[int, int], np.ndarray]:
+        """The draws of one kind for the recursion. Fixed values are handed out as they are
+        (they broadcast over firings and replications); random ones are fetched in aligned
+        chunks into one reused buffer (fresh memory costs a page fault per 4 KiB on first
+        touch)."""
+        if not table.is_random:
+            fixed = np.asarray(table.values, dtype=np.float64)[None, None, :]
+            return lambda first, count: fixed
+        chunk = _chunk_firings(len(reps), len(table))
+        buffer = np.empty((chunk, len(reps), len(table)))
 
         def fetch(first: int, count: int) -> np.ndarray:
             out = buffer[:count]
@@ -257,8 +262,8 @@ def _recursion_batch(model: Model, seed: int, replications: Sequence[int], firin
         return _AlignedDraws(fetch, chunk)
 
     rec = RandomRecursion(within(graph, firings),
-                          filled("duration_block", graph.n_transitions),
-                          filled("hold_block", graph.n_places), len(reps),
+                          filled("duration_block", samplers[0].durations),
+                          filled("hold_block", samplers[0].holds), len(reps),
                           criticality=True, kernel=kernel, firings=firings)
     depth = min(firings, max(1, int(graph.tokens.max(initial=0))))
     points = _checkpoints(firings, block)

@@ -227,12 +227,13 @@ def test_each_kernel_is_compiled_for_one_signature():
 
     g = EventGraph([1.0], [0], [0], [1], [0.0])
     rec = RandomRecursion(g, lambda f, c: np.ones((c, 2, 1)), lambda f, c: np.ones((c, 2, 1)),
-                          2, kernel="numba")
+                          2, kernel="numba")  # fresh, writable blocks: the compiled gather
     rec.track_lineage([[0]], [0, 5])
     rec.run(5, setters=True)
     assert recursion_kernel.PREPARED
-    assert len(recursion_kernel.advance.signatures) == 1
-    assert len(recursion_kernel.sweep_chunk.signatures) == 1
+    for kernel in (recursion_kernel.advance, recursion_kernel.sweep_chunk,
+                   recursion_kernel.gather):
+        assert len(kernel.signatures) == 1, kernel
 
 
 def test_auto_compiles_only_when_it_pays(monkeypatch):
@@ -352,3 +353,23 @@ def test_unwritable_cache_still_runs(tmp_path, numpy_only):
     reference = analyze(LOOP, workers=1, quiet=True, **options)
     for key in ("cycle_time", "cycle_time_ci", "sensitivity", "firings_simulated"):
         assert doc[key] == reference[key], key
+
+
+def test_help_and_the_numpy_path_do_not_import_numba():
+    """``cyclecheck --help``, the recursion's module and a small run on the numpy twin leave
+    numba unimported (about 0.6 s that small models must not pay)."""
+    code = textwrap.dedent("""
+        import sys
+        import numpy as np
+        import cyclecheck.simulate.cli
+        from cyclecheck.algebra.eventgraph import EventGraph
+        from cyclecheck.algebra.recursion import RandomRecursion
+        g = EventGraph([1.0], [0], [0], [1], [0.0])
+        rec = RandomRecursion(g, lambda f, c: np.ones((c, 1, 1)),
+                              lambda f, c: np.zeros((c, 1, 1)), 1, firings=10)
+        rec.run(10)
+        print(rec.kernel, "numba" in sys.modules)
+    """)
+    out = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True,
+                         check=True)
+    assert out.stdout.split() == ["numpy", "False"]
