@@ -218,8 +218,8 @@ class _Engine:
             ]
         self.slot = [self.H[s * n : (s + 1) * n] for s in range(S)]
         # For the compiled kernel: the real slots (no padding) of each transition, by
-        # increasing place index, transitions in internal order (CSR), and the token-free
-        # levels as an array. Slot j of the group's i-th transition is at ga + j·T + i.
+        # increasing place index, transitions in internal order (CSR). Slot j of the group's
+        # i-th transition is at ga + j·T + i.
         pos, owner = [], []
         for a, b, D, ga, _ in groups:
             T = b - a
@@ -230,7 +230,6 @@ class _Engine:
         self.k_slots = np.concatenate(pos)[by_owner].astype(np.int64)
         self.k_starts = np.zeros(n + 1, dtype=np.int64)
         np.cumsum(indeg[perm], out=self.k_starts[1:])
-        self.k_levels = np.array(self.levels[1:], dtype=np.int64).reshape(-1, 2)
         self.kernel: Any = None  # the compiled kernels module, when this engine uses them
         self.chunk_terms = np.empty((0, self.P, R))  # the terms of a chunk (numpy)
         self.tok_all = np.ascontiguousarray(tok, dtype=np.int64)

@@ -118,29 +118,26 @@ def advance(H, n, S, k0, starts, slots, tokens, sources, place, dur, hold, has_h
                     for r in range(R):
                         best[r] = H[row, r]
                         arg[r] = s
-            # ... and a later one replaces it only with a larger term: ties to the first.
+            # ... and a later one replaces it only with a larger term: ties to the first. (An
+            # initial token's 0 never does: every term is >= 0, the draws are checked.)
             for j in range(lo + 1, hi):
                 s = slots[j]
                 m = tokens[s]
                 if m >= k:
+                    continue
+                row = ((k - m) % S) * n + sources[s]
+                if has_hold:
                     for r in range(R):
-                        if 0.0 > best[r]:
-                            best[r] = 0.0
+                        v = H[row, r] + hold[i, s, r]
+                        if v > best[r]:
+                            best[r] = v
                             arg[r] = s
                 else:
-                    row = ((k - m) % S) * n + sources[s]
-                    if has_hold:
-                        for r in range(R):
-                            v = H[row, r] + hold[i, s, r]
-                            if v > best[r]:
-                                best[r] = v
-                                arg[r] = s
-                    else:
-                        for r in range(R):
-                            v = H[row, r]
-                            if v > best[r]:
-                                best[r] = v
-                                arg[r] = s
+                    for r in range(R):
+                        v = H[row, r]
+                        if v > best[r]:
+                            best[r] = v
+                            arg[r] = s
             out = base + t
             for r in range(R):
                 H[out, r] = best[r] + dur[i, t, r]
