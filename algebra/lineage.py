@@ -188,6 +188,8 @@ class LineageSweep:
         self.tok_all = np.asarray(eng.tok_all, dtype=np.int64)
         self.src_all = np.asarray(eng.src_all, dtype=np.int64)
         self.upper_levels = eng.levels[1:]  # levels >= 1: those with token-free input places
+        self.kernel = getattr(eng, "kernel", None)  # the compiled sweep, when the engine has it
+        self.level_array = np.array(self.upper_levels, dtype=np.int64).reshape(-1, 2)
         fronts = []
         for f in frontiers:
             arr = np.unique(np.asarray(f, dtype=np.int64))
@@ -275,7 +277,12 @@ class LineageSweep:
             last = first + record.shape[0] - 1
             hi = min(last, top)
             lo = max(first, low + 1)
-            if hi >= lo:
+            if hi >= lo and self.kernel is not None:
+                self.kernel.sweep_chunk(
+                    mass, record, dur, _NO_HOLD if hold is None else hold, hold is not None,
+                    first, lo, hi, settle, self.segments, n, S, self.tok_all, self.src_all,
+                    self.level_array, self.dur_w, self.dur_m, self.hold_w, self.hold_m)
+            elif hi >= lo:
                 snap = self._sweep_chunk(mass, first, record[lo - first : hi - first + 1], lo)
                 self._sum_chunk(snap, lo, min(hi, settle), record, dur, hold, first)
             if first <= low + 1:
@@ -322,10 +329,9 @@ class LineageSweep:
     def _sum_chunk(self, snap: np.ndarray, lo: int, hi: int, record: np.ndarray,
                    dur: np.ndarray, hold: np.ndarray | None, first: int) -> None:
         """Add the node masses ``snap`` of firings ``lo .. hi`` (rows from ``lo``) to the sums
-        of their segments."""
-        R, F, P = self.R, snap.shape[3], self.P
+        of their segments, one firing at a time from the newest (:func:`_add_in_turn`)."""
+        P = self.P
         seg = self.segments
-        keys = (np.arange(R)[:, None] * F + np.arange(F)).ravel()  # (r, f) pairs
         k = max(lo, int(seg[0]) + 1)
         while k <= min(hi, int(seg[-1])):
             j = int(np.searchsorted(seg, k, side="left")) - 1
@@ -333,15 +339,36 @@ class LineageSweep:
             a, b = k - lo, end - lo + 1  # rows of snap
             w = snap[a:b]
             rows = slice(k - first, end - first + 1)
-            self.dur_w[j] += np.einsum("inrf,inr->nrf", w, dur[rows])
-            self.dur_m[j] += w.sum(axis=0)
+            # from the newest firing, as the sweep visits them
+            _add_in_turn(self.dur_w[j], (w * dur[rows][..., None])[::-1])
+            _add_in_turn(self.dur_m[j], w[::-1])
             slots = record[rows]
             through = self.tok_all[slots] < (k + np.arange(b - a))[:, None, None]
-            idx = (slots[..., None] * (R * F) + keys.reshape(R, F)).ravel()
-            wt = (w * through[..., None]).ravel()
-            self.hold_m[j] += np.bincount(idx, wt, minlength=P * R * F).reshape(P, R, F)
+            wt = w * through[..., None]
+            _add_in_turn(self.hold_m[j], _by_slot(wt, slots, P)[::-1])
             if hold is not None:
                 chosen = np.take_along_axis(hold[rows], slots, axis=1)[..., None]
-                self.hold_w[j] += np.bincount(idx, (w * through[..., None] * chosen).ravel(),
-                                              minlength=P * R * F).reshape(P, R, F)
+                _add_in_turn(self.hold_w[j], _by_slot(wt * chosen, slots, P)[::-1])
             k = end + 1
+
+
+#: Stand-in for the holds when they are all zero (the kernel takes an array of fixed type).
+_NO_HOLD = np.empty((0, 0, 0))
+
+
+def _add_in_turn(total: np.ndarray, parts: np.ndarray) -> None:
+    """``total += parts[0]``, then ``parts[1]``, …: one addition at a time, in the order of
+    the compiled kernels (a sum over the axis may add pairwise, which rounds differently)."""
+    stack = np.empty((parts.shape[0] + 1, *total.shape))
+    stack[0] = total
+    stack[1:] = parts
+    total[...] = np.add.accumulate(stack, axis=0)[-1]
+
+
+def _by_slot(values: np.ndarray, slots: np.ndarray, P: int) -> np.ndarray:
+    """Values (c, n, R, F) of each transition moved to the slot that set it: (c, P, R, F),
+    zeros elsewhere (slots belong to one transition each, so none is written twice)."""
+    c, _, R, F = values.shape
+    out = np.zeros((c, P, R, F))
+    out[np.arange(c)[:, None, None], slots, np.arange(R)] = values
+    return out

@@ -48,21 +48,29 @@ References
 
 from __future__ import annotations
 
+import importlib.util
+import sys
 from collections.abc import Callable, Sequence
 from dataclasses import dataclass
 from itertools import pairwise
+from typing import Any
 
 import numpy as np
 
 from .eventgraph import EventGraph, check_live
 from .exceptions import InvalidArray
-from .lineage import LineageSweep
+from .lineage import LineageSweep, _add_in_turn
 
 __all__ = [
+    "KERNELS",
+    "KERNEL_MIN_WORK",
     "BlockSource",
     "RandomRecursion",
     "RecursionRun",
+    "choose_kernel",
     "firing_times",
+    "kernel_loaded",
+    "load_kernel",
     "transient",
     "within",
 ]
@@ -72,10 +80,22 @@ __all__ = [
 #: broadcasts to that shape).
 BlockSource = Callable[[int, int], np.ndarray]
 
+#: The implementations of :class:`RandomRecursion`: ``"numba"`` (compiled), ``"numpy"``
+#: (vectorized, its twin) and ``"auto"`` (:func:`choose_kernel`).
+KERNELS = ("auto", "numba", "numpy")
+#: ``kernel="auto"`` compiles from this much work on (firings × replications × (transitions +
+#: places)): below it the numpy version is done before numba is imported and its kernels
+#: loaded from the cache (measured: see tests/bench/README.md).
+KERNEL_MIN_WORK = 5_000_000
 #: Memory budget (float elements) of one chunk of draws and outputs in :meth:`RandomRecursion.run`.
 _CHUNK_ELEMENTS = 1 << 21
 #: Largest history (ring buffer) of firing times the recursion keeps, in float elements (8 GiB).
 _HISTORY_ELEMENTS = 1 << 30
+#: Stand-ins for the kernel's outputs that are not wanted (it takes arrays of fixed types).
+_NO_F3 = np.empty((0, 0, 0))
+_NO_I3 = np.empty((0, 0, 0), dtype=np.int32)
+_NO_I2 = np.empty((0, 0), dtype=np.int64)
+_NO_F2 = np.empty((0, 0))
 #: Largest precomputed table of ring-buffer read positions (elements).
 _INDEX_TABLE_ELEMENTS = 1 << 22
 _INDEX_TABLE_ARRAYS = 1 << 16
@@ -197,6 +217,24 @@ class _Engine:
                 for s in range(S)
             ]
         self.slot = [self.H[s * n : (s + 1) * n] for s in range(S)]
+        # For the compiled kernel: the real slots (no padding) of each transition, by
+        # increasing place index, transitions in internal order (CSR). Slot j of the group's
+        # i-th transition is at ga + j·T + i.
+        pos, owner = [], []
+        for a, b, D, ga, _ in groups:
+            T = b - a
+            flat = np.flatnonzero(np.arange(D)[:, None] < indeg[perm[a:b]][None, :])
+            pos.append(ga + flat)
+            owner.append(a + flat % T)
+        by_owner = np.argsort(np.concatenate(owner), kind="stable")
+        self.k_slots = np.concatenate(pos)[by_owner].astype(np.int64)
+        self.k_starts = np.zeros(n + 1, dtype=np.int64)
+        np.cumsum(indeg[perm], out=self.k_starts[1:])
+        self.kernel: Any = None  # the compiled kernels module, when this engine uses them
+        self.chunk_terms = np.empty((0, self.P, R))  # the terms of a chunk (numpy)
+        self.tok_all = np.ascontiguousarray(tok, dtype=np.int64)
+        self.src_all = np.ascontiguousarray(src, dtype=np.int64)
+        self.pslot = np.ascontiguousarray(pslot, dtype=np.int64)
 
     def current(self) -> np.ndarray:
         """x(k) of the last firing, shape (n, R), internal order (zeros before the first)."""
@@ -211,13 +249,16 @@ class _Engine:
         hold: np.ndarray | None,
         rec: np.ndarray | None,
         terms: np.ndarray | None,
+        marks: np.ndarray | None = None,
+        xs: np.ndarray | None = None,
     ) -> None:
-        """Compute ``count`` firings.
+        """Compute ``count`` firings with numpy.
 
         ``dur``: (count, n, R) per firing or (n, 1) fixed, internal order. ``hold``: (count,
         P, R) per firing or (P, 1) fixed, in slot order; ``None`` for zero holds. ``rec``
         (count, n, R) receives x(k); ``terms`` (count, P, R) receives the terms of every slot
-        (for the criticality counts).
+        (for the argmax record); ``xs[j]`` (n, R) receives x(k) of the ``marks[j]``-th firing
+        of the call (``marks`` increasing).
         """
         add, maximum = np.add, np.maximum
         H, n, S = self.H, self.n, self.S
@@ -225,6 +266,8 @@ class _Engine:
         fixed_d = dur.ndim == 2
         fixed_h = hold is not None and hold.ndim == 2
         k = self.k
+        next_mark = 0
+        n_marks = 0 if marks is None else len(marks)
         for i in range(count):
             k += 1
             s = k % S
@@ -255,7 +298,42 @@ class _Engine:
                 add(mv, d[a:b], out=out_s[a:b])
             if rec is not None:
                 rec[i] = self.slot[s]
+            if next_mark < n_marks and marks[next_mark] == i:  # type: ignore[index]
+                xs[next_mark] = self.slot[s]  # type: ignore[index]
+                next_mark += 1
         self.k = k
+
+    def step(self, count: int, dur: np.ndarray, hold: np.ndarray | None,
+             times: np.ndarray | None, record: np.ndarray | None, counts: np.ndarray | None,
+             marks: np.ndarray, xs: np.ndarray) -> None:
+        """Compute ``count`` firings on this engine's implementation (numpy or compiled: the
+        same numbers bit for bit).
+
+        ``dur`` (count, n, R) and ``hold`` (count, P, R) or None, as for :meth:`advance`.
+        Written when not None: ``times`` (count, n, R) the firing times, ``record`` (count, n,
+        R) int32 the argmax record in slot positions; ``counts`` (m, R) += the firings each
+        place set. ``xs[j]`` (n, R) = x(k) of the ``marks[j]``-th firing of the call.
+        """
+        if self.kernel is not None:
+            self.kernel.advance(
+                self.H, self.n, self.S, self.k, self.k_starts, self.k_slots, self.tok_all,
+                self.src_all, self.pslot, dur, _NO_F3 if hold is None else hold,
+                hold is not None, _NO_F3 if times is None else times, times is not None,
+                _NO_I3 if record is None else record, record is not None,
+                _NO_I2 if counts is None else counts, counts is not None, marks, xs)
+            self.k += count
+            return
+        if record is None and counts is None:
+            self.advance(count, dur, hold, times, None, marks, xs)
+            return
+        if self.chunk_terms.shape[0] < count:
+            self.chunk_terms = np.empty((count, self.P, self.R))
+        terms = self.chunk_terms[:count]
+        self.advance(count, dur, hold, times, terms, marks, xs)
+        rec = record if record is not None else np.empty((count, self.n, self.R), np.int32)
+        self.setters(terms, rec)
+        if counts is not None:
+            self.count_critical(rec, counts)
 
     def setters(self, terms: np.ndarray, out: np.ndarray) -> None:
         """Write to ``out`` (c, n, R) the argmax record of ``terms`` (c, P, R).
@@ -284,6 +362,51 @@ class _Engine:
         R = self.R
         places = self.pslot[record] * R + np.arange(R)
         counts += np.bincount(places.ravel(), minlength=self.m * R).reshape(self.m, R)
+
+
+def kernel_loaded() -> bool:
+    """Whether the compiled kernels are loaded in this process (nothing is imported)."""
+    mod = sys.modules.get(f"{__package__}.recursion_kernel")
+    return mod is not None and bool(getattr(mod, "PREPARED", False))
+
+
+def load_kernel(announce: Callable[[str], None] | None = None) -> Any:
+    """The compiled kernels (:mod:`~cyclecheck.algebra.recursion_kernel`), compiled or loaded
+    from numba's cache; None when numba cannot be imported.
+
+    ``announce(text)`` is called first when they must be compiled (a cold cache: the first
+    run after an install), which takes seconds.
+    """
+    try:
+        from . import recursion_kernel
+    except ImportError:
+        return None
+    if not recursion_kernel.PREPARED:
+        if announce is not None and not recursion_kernel.compiled_on_disk():
+            announce("compiling the recursion kernels (first run only)")
+        recursion_kernel.prepare()
+    return recursion_kernel
+
+
+def choose_kernel(graph: EventGraph, replications: int, firings: int | None = None,
+                  kernel: str = "auto") -> str:
+    """The implementation of the random recursion for a run: ``"numba"`` or ``"numpy"``.
+
+    ``kernel="auto"`` picks the compiled loop when numba can be imported and either the
+    kernels are loaded in this process already or the run's work, ``firings × replications ×
+    (transitions + places)``, is at least :data:`KERNEL_MIN_WORK`; else numpy, which is done
+    before numba would be ready. Other values are returned as they are.
+    """
+    if kernel not in KERNELS:
+        raise ValueError(f"kernel must be one of {KERNELS}, got {kernel!r}")
+    if kernel != "auto":
+        return kernel
+    if kernel_loaded():
+        return "numba"
+    if firings is None or importlib.util.find_spec("numba") is None:
+        return "numpy"
+    work = int(firings) * int(replications) * (graph.n_transitions + graph.n_places)
+    return "numba" if work >= KERNEL_MIN_WORK else "numpy"
 
 
 def firing_times(graph: EventGraph, n_firings: int) -> np.ndarray:
@@ -490,6 +613,17 @@ class RandomRecursion:
         ``R``.
     criticality : bool
         Count, for every place, the firings it set (a few numpy calls more per firing).
+    kernel : {"auto", "numba", "numpy"}
+        The implementation: ``"numba"`` the compiled loop of
+        :mod:`~cyclecheck.algebra.recursion_kernel`, ``"numpy"`` the vectorized one of this
+        module, ``"auto"`` (default) as :func:`choose_kernel` decides. Both give the same
+        numbers bit for bit (firing times, argmax record, counts, path sums).
+    firings : int, optional
+        How many firings the caller means to run, for ``"auto"``: the compiled loop pays from
+        :data:`KERNEL_MIN_WORK` on.
+
+    Attributes
+    ----------
     lineage : LineageSweep, optional
         Receives every chunk of the argmax record with its draws
         (:class:`~cyclecheck.algebra.lineage.LineageSweep`, built by :meth:`track_lineage`).
@@ -531,8 +665,15 @@ class RandomRecursion:
         replications: int,
         *,
         criticality: bool = True,
+        kernel: str = "auto",
+        firings: int | None = None,
     ) -> None:
         self._engine = _Engine(graph, replications)
+        name = choose_kernel(graph, replications, firings, kernel)
+        if name == "numba":
+            self._engine.kernel = load_kernel()
+            if self._engine.kernel is None and kernel == "numba":
+                raise ImportError("kernel='numba' needs numba: pip install numba")
         self.graph = graph
         self.duration_source = duration_source
         self.hold_source = hold_source
@@ -561,6 +702,11 @@ class RandomRecursion:
         return self.lineage
 
     @property
+    def kernel(self) -> str:
+        """The implementation in use: ``"numba"`` or ``"numpy"``."""
+        return "numpy" if self._engine.kernel is None else "numba"
+
+    @property
     def replications(self) -> int:
         """Number of replications ``R``."""
         return self._engine.R
@@ -583,9 +729,13 @@ class RandomRecursion:
         width: int,
         what: str,
         columns: np.ndarray,
+        busy: np.ndarray | None = None,
     ) -> np.ndarray | None:
-        """Call a source, check its block, return it as (count, len(columns), R); None if 0."""
-        R = self._engine.R
+        """Call a source, check its block, return it as (count, len(columns), R) (a fresh
+        array: the lineage keeps it); None for holds that are all 0. ``busy`` (len(columns),
+        R), when given, gets the draws added firing after firing."""
+        eng = self._engine
+        R = eng.R
         raw = np.asarray(source(first, count), dtype=np.float64)
         try:
             block = np.broadcast_to(raw, (count, R, width))
@@ -594,15 +744,27 @@ class RandomRecursion:
                 f"{what} source returned shape {raw.shape} for firings {first}.."
                 f"{first + count - 1}, expected ({count}, {R}, {width})"
             ) from None
+        bad = InvalidArray(f"{what} source returned negative, NaN or infinite values for "
+                           f"firings {first}..{first + count - 1}")
+        if (eng.kernel is not None and raw.shape == block.shape and raw.flags.writeable
+                and raw.flags.c_contiguous):
+            # one compiled pass: the checks, the copy to the internal layout, the busy sums
+            out = np.empty((count, columns.size, R))
+            flags = eng.kernel.gather(raw, columns, out, _NO_F2 if busy is None else busy,
+                                      busy is not None)
+            if flags == 1:
+                raise bad
+            return None if what == "hold" and flags == 0 else out
         if raw.size and not (raw.min() >= 0 and raw.max() < np.inf):
-            raise InvalidArray(
-                f"{what} source returned negative, NaN or infinite values for firings "
-                f"{first}..{first + count - 1}"
-            )
+            raise bad
         if what == "hold" and not raw.any():
             return None  # zero holds: skip the additions
-        # internal layout: (firing, element in internal order, replication), contiguous
-        return np.ascontiguousarray(block.transpose(0, 2, 1)[:, columns, :])
+        # internal layout: (firing, element in internal order, replication), contiguous (take
+        # is faster than fancy indexing here)
+        out = np.ascontiguousarray(np.take(block.transpose(0, 2, 1), columns, axis=1))
+        if busy is not None:
+            _add_in_turn(busy, out)
+        return out
 
     def run(
         self,
@@ -644,47 +806,45 @@ class RandomRecursion:
             raise InvalidArray(f"observe must list transition indices in 0..{n - 1}")
         rows = eng.inv[obs]
         k0 = eng.k
-        ends = [*range(k0 + b, k0 + K, b), k0 + K] if K else []
-        checkpoints = np.array([k0, *ends], dtype=np.int64)
+        ends = np.array([*range(k0 + b, k0 + K, b), k0 + K] if K else [], dtype=np.int64)
+        checkpoints = np.r_[k0, ends].astype(np.int64)
         xs = np.empty((len(checkpoints), R, obs.size))
         xs[0] = eng.current()[rows].T
         times = np.empty((K, R, n)) if record else None
         busy = np.zeros((n, R))
         counts = np.zeros((m, R), dtype=np.int64) if self.criticality else None
-        record_setters = setters or counts is not None or self.lineage is not None
+        want_record = setters or self.lineage is not None
         setter_out = np.empty((K, R, n), dtype=np.int64) if setters else None
         P = eng.P
-        per_firing = R * (2 * n + P + (n if record else 0) + (P + n if record_setters else 0))
-        chunk = max(1, min(max(b, 1), _CHUNK_ELEMENTS // per_firing))
-        rec = np.empty((chunk, n, R)) if record else None
-        terms = np.empty((chunk, P, R)) if record_setters else None
-        for j, end in enumerate(ends, start=1):
-            while eng.k < end:
-                first = eng.k + 1
-                count = min(chunk, end - eng.k)
-                dur = self._draws(self.duration_source, first, count, n, "duration", eng.perm)
-                hold = self._draws(self.hold_source, first, count, m, "hold", eng.pslot)
-                r = rec[:count] if rec is not None else None
-                tv = terms[:count] if terms is not None else None
-                assert dur is not None
-                eng.advance(count, dur, hold, r, tv)
-                busy += dur.sum(axis=0)
-                if times is not None and r is not None:
-                    pos = first - 1 - k0
-                    times[pos : pos + count] = r[:, eng.inv, :].transpose(0, 2, 1)
-                if tv is not None:
-                    # a fresh array per chunk: the lineage keeps it until its paths are summed
-                    argmax = np.empty((count, n, R), dtype=np.int32)
-                    eng.setters(tv, argmax)
-                    if counts is not None:
-                        eng.count_critical(argmax, counts)
-                    if setter_out is not None:
-                        pos = first - 1 - k0
-                        setter_out[pos : pos + count] = (
-                            eng.pslot[argmax][:, eng.inv, :].transpose(0, 2, 1))
-                    if self.lineage is not None:
-                        self.lineage.feed(first, argmax, dur, hold)
-            xs[j] = eng.current()[rows].T
+        # Chunks do not depend on the engine (nor on the checkpoints): the lineage sweep and
+        # the busy sums see the same pieces whichever engine computes them.
+        per_firing = R * (2 * n + P + (n if record else 0) + (P + n))
+        chunk = max(1, _CHUNK_ELEMENTS // per_firing)
+        rec = np.empty((min(chunk, K), n, R)) if record else None
+        while eng.k < k0 + K:
+            first = eng.k + 1
+            count = min(chunk, k0 + K - eng.k)
+            dur = self._draws(self.duration_source, first, count, n, "duration", eng.perm,
+                              busy)
+            hold = self._draws(self.hold_source, first, count, m, "hold", eng.pslot)
+            assert dur is not None
+            r = rec[:count] if rec is not None else None
+            # a fresh array per chunk: the lineage keeps it until its paths are summed
+            argmax = np.empty((count, n, R), dtype=np.int32) if want_record else None
+            j0, j1 = np.searchsorted(ends, [first, first + count], side="left")
+            marks = np.ascontiguousarray(ends[j0:j1] - first)
+            at_marks = np.empty((j1 - j0, n, R))
+            eng.step(count, dur, hold, r, argmax, counts, marks, at_marks)
+            xs[1 + j0 : 1 + j1] = at_marks[:, rows, :].transpose(0, 2, 1)
+            pos = first - 1 - k0
+            if times is not None and r is not None:
+                times[pos : pos + count] = r[:, eng.inv, :].transpose(0, 2, 1)
+            if argmax is not None:
+                if setter_out is not None:
+                    setter_out[pos : pos + count] = (
+                        eng.pslot[argmax][:, eng.inv, :].transpose(0, 2, 1))
+                if self.lineage is not None:
+                    self.lineage.feed(first, argmax, dur, hold)
         critical = counts.T.copy() if counts is not None else None
         return RecursionRun(
             checkpoints=checkpoints,

@@ -33,7 +33,7 @@ import numpy as np
 from ..algebra.critical import cyclicity
 from ..algebra.eventgraph import self_loop_servers, strongly_connected_components
 from ..algebra.lineage import PathSums
-from ..algebra.recursion import RandomRecursion, within
+from ..algebra.recursion import RandomRecursion, choose_kernel, load_kernel, within
 from ..algebra.spectral import howard
 from ..algebra.stability import components as graph_components
 from .durations import BLOCK
@@ -57,6 +57,7 @@ __all__ = [
     "estimate_cycle_time",
     "estimate_with_executor",
     "open_executor",
+    "prepare_kernel",
     "run_replications",
     "sensitivity_on_same_draws",
     "servers_horizon",
@@ -171,29 +172,46 @@ def _clearing_time(graph: Any, last: np.ndarray, future_holds: np.ndarray) -> np
     return np.maximum(z, 0.0)
 
 
-#: Firings fetched from the samplers at a time by the recursion: a divisor of the sampler's
-#: ``BLOCK``, small enough that a chunk of all replications stays a few MB.
-CHUNK = 1024
-assert BLOCK % CHUNK == 0, "a chunk must not straddle two blocks of draws"
+#: Most bytes of draws fetched from the samplers at a time by the recursion, per kind.
+DRAW_BYTES = 16 * 2**20
+#: Fewest firings fetched at a time (a divisor of the sampler's ``BLOCK``).
+MIN_CHUNK = 64
+assert BLOCK % MIN_CHUNK == 0, "a chunk must not straddle two blocks of draws"
+
+
+def _chunk_firings(replications: int, width: int) -> int:
+    """Firings per fetch: the largest power of two dividing the sampler's ``BLOCK`` whose
+    draws of all replications fit :data:`DRAW_BYTES` (a call of the samplers has a fixed cost
+    per replication and element, so few large fetches are cheapest), at least
+    :data:`MIN_CHUNK`."""
+    chunk = BLOCK
+    while chunk > MIN_CHUNK and chunk * replications * max(width, 1) * 8 > DRAW_BYTES:
+        chunk //= 2
+    return chunk
 
 
 class _AlignedDraws:
     """Serves a recursion's sequential requests for draws from chunks aligned on the sampler's
-    blocks: one fetch per ``CHUNK`` firings, however finely the run is checkpointed."""
+    blocks: one fetch per ``chunk`` firings, however finely the run is checkpointed. A fetch
+    may reuse the memory of the previous one: what is handed out is valid until the next
+    request."""
 
-    def __init__(self, fetch: Callable[[int, int], np.ndarray]) -> None:
+    def __init__(self, fetch: Callable[[int, int], np.ndarray], chunk: int) -> None:
         self.fetch = fetch
+        self.chunk = chunk
         self.start = 0
         self.data: np.ndarray | None = None
 
     def __call__(self, first: int, count: int) -> np.ndarray:
         parts = []
         k, end = first, first + count
+        chunk = self.chunk
         while k < end:
-            start = (k - 1) // CHUNK * CHUNK + 1
+            start = (k - 1) // chunk * chunk + 1
             if self.data is None or self.start != start:
-                self.data, self.start = self.fetch(start, CHUNK), start
-            take = min(end, start + CHUNK) - k
+                parts = [p.copy() for p in parts]  # the fetch may overwrite them
+                self.data, self.start = self.fetch(start, chunk), start
+            take = min(end, start + chunk) - k
             parts.append(self.data[k - start : k - start + take])
             k += take
         return parts[0] if len(parts) == 1 else np.concatenate(parts)
@@ -212,7 +230,8 @@ def servers_horizon(graph: Any, last: np.ndarray) -> np.ndarray:
 
 
 def _recursion_batch(model: Model, seed: int, replications: Sequence[int], firings: int,
-                     block: int, record: bool, lineage: bool = True) -> Batch:
+                     block: int, record: bool, lineage: bool = True,
+                     kernel: str = "auto") -> Batch:
     reps = np.asarray(replications, dtype=np.int64)
     samplers = [model.sampler(seed, int(r)) for r in reps]
     # Markings above the run's firings deliver nothing within it: the same firing times with
@@ -220,14 +239,32 @@ def _recursion_batch(model: Model, seed: int, replications: Sequence[int], firin
     graph = model.graph()
     marking = max(1, int(model.tokens.max(initial=0)))
 
-    def durations(first: int, count: int) -> np.ndarray:
-        return np.stack([s.duration_block(first, count) for s in samplers], axis=1)
-
     def holds(first: int, count: int) -> np.ndarray:
         return np.stack([s.hold_block(first, count) for s in samplers], axis=1)
 
-    rec = RandomRecursion(within(graph, firings), _AlignedDraws(durations),
-                          _AlignedDraws(holds), len(reps), criticality=True)
+    def filled(kind: str, table: Any) -> Callable[[int, int], np.ndarray]:
+        """The draws of one kind for the recursion. Fixed values are handed out as they are
+        (they broadcast over firings and replications); random ones are fetched in aligned
+        chunks into one reused buffer (fresh memory costs a page fault per 4 KiB on first
+        touch)."""
+        if not table.is_random:
+            fixed = np.asarray(table.values, dtype=np.float64)[None, None, :]
+            return lambda first, count: fixed
+        chunk = _chunk_firings(len(reps), len(table))
+        buffer = np.empty((chunk, len(reps), len(table)))
+
+        def fetch(first: int, count: int) -> np.ndarray:
+            out = buffer[:count]
+            for i, s in enumerate(samplers):
+                out[:, i, :] = getattr(s, kind)(first, count)
+            return out
+
+        return _AlignedDraws(fetch, chunk)
+
+    rec = RandomRecursion(within(graph, firings),
+                          filled("duration_block", samplers[0].durations),
+                          filled("hold_block", samplers[0].holds), len(reps),
+                          criticality=True, kernel=kernel, firings=firings)
     depth = min(firings, max(1, int(graph.tokens.max(initial=0))))
     points = _checkpoints(firings, block)
     sweep = None
@@ -239,15 +276,19 @@ def _recursion_batch(model: Model, seed: int, replications: Sequence[int], firin
     busy = np.zeros((len(reps), graph.n_transitions))
     critical = np.zeros((len(reps), graph.n_places), dtype=np.int64)
     recorded = []
-    for i in range(1, points.size):
-        a, b = int(points[i - 1]), int(points[i])
-        # The last `depth` firings are always kept: Z(K) needs them.
-        out = rec.run(b - a, record=record or b > firings - depth)
+    # Two runs at most, checkpointed every `block` firings: the last `depth` firings are
+    # always recorded (Z(K) needs them), from the checkpoint before them on.
+    cut = 0 if record else int(points[np.searchsorted(points, firings - depth, "right") - 1])
+    for a, b in ((0, cut), (cut, firings)):
+        if b <= a:
+            continue
+        out = rec.run(b - a, block, record=record or b > cut)
         busy += out.busy
         critical += out.critical
         if out.times is not None:
             recorded.append(out.times)
-        x[i] = rec.state()
+        i = int(np.searchsorted(points, a))
+        x[i + 1 : i + out.checkpoints.size] = out.x[1:]
     kept = np.concatenate(recorded)
     clearing = (_clearing_time(graph, kept[-depth:], holds(firings + 1, marking))
                 if _clearing_fits(graph, marking, len(reps)) else None)
@@ -286,9 +327,10 @@ def _simpy_batch(model: Model, seed: int, replications: Sequence[int], firings: 
 
 
 def _run_chunk(engine: str, model: Model, seed: int, replications: Sequence[int], firings: int,
-               block: int, record: bool, lineage: bool = True) -> Batch:
+               block: int, record: bool, lineage: bool = True, kernel: str = "auto") -> Batch:
     if engine == "recursion":
-        return _recursion_batch(model, seed, replications, firings, block, record, lineage)
+        return _recursion_batch(model, seed, replications, firings, block, record, lineage,
+                                kernel)
     return _simpy_batch(model, seed, replications, firings, block, record)
 
 
@@ -330,19 +372,21 @@ def open_executor(workers: int = 1, scheduler: str | None = None, *,
 def run_replications(model: Model, engine: str, seed: int, replications: Sequence[int],
                      firings: int, *, block: int | None = None, record: bool = False,
                      executor: Executor | None = None, chunks: int = 1,
-                     lineage: bool = True) -> Batch:
+                     lineage: bool = True, kernel: str = "auto") -> Batch:
     """Run replications on one engine, split into ``chunks`` tasks on ``executor``;
-    ``lineage``: sum along the critical paths too (recursion only), for the derivatives."""
+    ``lineage``: sum along the critical paths too (recursion only), for the derivatives;
+    ``kernel``: the recursion's implementation (``RandomRecursion``'s ``kernel``: the same
+    numbers either way)."""
     if engine not in ENGINES:
         raise ArgumentError(f"engine must be one of {ENGINES}, got {engine!r}")
     _check_memory(model, len(replications), firings, record)
     block = block or max(1, firings // 200)
     reps = list(replications)
     if executor is None or chunks <= 1 or len(reps) < 2:
-        return _run_chunk(engine, model, seed, reps, firings, block, record, lineage)
+        return _run_chunk(engine, model, seed, reps, firings, block, record, lineage, kernel)
     parts = [p.tolist() for p in np.array_split(np.asarray(reps), min(chunks, len(reps)))]
     futures = [executor.submit(_run_chunk, engine, model, seed, p, firings, block, record,
-                               lineage)
+                               lineage, kernel)
                for p in parts if p]
     return Batch.concatenate([f.result() for f in futures])
 
@@ -598,13 +642,16 @@ def estimate_with_executor(model: Model, engine: str, settings: RunSettings, *,
     estimate (``check`` runs the SimPy side to a fixed number of replications); the defaults
     that depend on the model are filled in here.
     """
+    firings = firings or settings.firings or default_firings(model, engine)
+    replications = replications or settings.replications or DEFAULT_REPLICATIONS
+    if engine == "recursion" or model.is_random:  # the derivatives of SimPy run it too
+        prepare_kernel(model, firings, replications, getattr(progress, "stage", None))
     executor, close = open_executor(settings.workers, settings.scheduler)
-    firings = firings or settings.firings
     try:
         return estimate_cycle_time(
             model, engine, seed=settings.seed,
-            firings=firings or default_firings(model, engine),
-            replications=replications or settings.replications or DEFAULT_REPLICATIONS,
+            firings=firings,
+            replications=replications,
             precision=settings.precision if precision == "settings" else precision,
             executor=executor,
             # A cluster gets one task per replication; a local pool one per worker.
@@ -615,6 +662,23 @@ def estimate_with_executor(model: Model, engine: str, settings: RunSettings, *,
         )
     finally:
         close()
+
+
+def prepare_kernel(model: Model, firings: int, replications: int,
+                   announce: Callable[..., None] | None = None) -> bool:
+    """Load the compiled recursion (or compile it, saying so through ``announce``, a progress
+    line's ``stage``) when a round of ``replications`` × ``firings`` is large enough for it
+    to pay, before local worker processes are started: forked from this process, they find it
+    loaded. Returns whether it is loaded."""
+    graph = model.graph()
+    if choose_kernel(graph, replications, firings) != "numba":
+        return False
+
+    def say(text: str) -> None:
+        if announce is not None:
+            announce(text, now=True)
+
+    return load_kernel(say) is not None
 
 
 def sensitivity_on_same_draws(model: Model, est: Estimate) -> SensitivityEstimate:
