@@ -63,6 +63,7 @@ from .lineage import LineageSweep, _add_in_turn
 
 __all__ = [
     "KERNELS",
+    "DETERMINISTIC_MIN_STEPS",
     "KERNEL_MIN_WORK",
     "BlockSource",
     "RandomRecursion",
@@ -87,6 +88,9 @@ KERNELS = ("auto", "numba", "numpy")
 #: places)): below it the numpy version is done before numba is imported and its kernels
 #: loaded from the cache (measured: see tests/bench/README.md).
 KERNEL_MIN_WORK = 5_000_000
+#: :func:`firing_times` compiles from this many (firing, level) steps on: numpy takes 3-5 µs a
+#: step, so about a second on the 2-core machine, what loading numba and the kernels costs.
+DETERMINISTIC_MIN_STEPS = 300_000
 #: Memory budget (float elements) of one chunk of draws and outputs in :meth:`RandomRecursion.run`.
 _CHUNK_ELEMENTS = 1 << 21
 #: Largest history (ring buffer) of firing times the recursion keeps, in float elements (8 GiB).
@@ -409,7 +413,7 @@ def choose_kernel(graph: EventGraph, replications: int, firings: int | None = No
     return "numba" if work >= KERNEL_MIN_WORK else "numpy"
 
 
-def firing_times(graph: EventGraph, n_firings: int) -> np.ndarray:
+def firing_times(graph: EventGraph, n_firings: int, *, kernel: str = "auto") -> np.ndarray:
     r"""Firing times ``x_t(k)`` of the deterministic recursion, ``k = 1 .. n_firings``.
 
     Parameters
@@ -418,6 +422,11 @@ def firing_times(graph: EventGraph, n_firings: int) -> np.ndarray:
         A live event graph; its fixed durations and holds are used.
     n_firings : int
         Number ``K`` of firings of every transition.
+    kernel : {"auto", "numba", "numpy"}
+        The compiled loop or the vectorized one (the same numbers bit for bit). ``"auto"``
+        compiles as :func:`choose_kernel` does, and also from
+        :data:`DETERMINISTIC_MIN_STEPS` (firing, level) steps on, a level being one of the
+        token-free subgraph's (:func:`_zero_token_levels`), which numpy computes in turn.
 
     Returns
     -------
@@ -448,7 +457,30 @@ def firing_times(graph: EventGraph, n_firings: int) -> np.ndarray:
     K = _count(n_firings, "n_firings")
     eng = _Engine(within(graph, K), 1)
     rec = np.empty((K, eng.n, 1))
-    eng.advance(K, eng.d_const, eng.h_const, rec, None)
+    # numpy spends a few calls per level of the token-free subgraph and firing: a ring of 1000
+    # stations and one pallet is 1000 levels deep (2000 firings: 11 s with holds, compiled 0.2 s)
+    name = choose_kernel(graph, 1, K, kernel)
+    if kernel == "auto" and K * len(eng.groups) >= DETERMINISTIC_MIN_STEPS and (
+            importlib.util.find_spec("numba") is not None):
+        name = "numba"
+    if name == "numba":
+        eng.kernel = load_kernel()
+        if eng.kernel is None:
+            raise ImportError("kernel='numba' needs numba: pip install numba")
+    if eng.kernel is not None:
+        # The compiled loop reads one row of durations and holds per firing: the fixed ones
+        # repeated over a chunk of firings, reused for every chunk.
+        chunk = max(1, min(K, _CHUNK_ELEMENTS // (eng.n + eng.P)))
+        dur = np.repeat(eng.d_const[None], chunk, axis=0)
+        hold = None if eng.h_const is None else np.repeat(eng.h_const[None], chunk, axis=0)
+        no_marks = np.empty(0, dtype=np.int64)
+        for first in range(0, K, chunk):
+            count = min(chunk, K - first)
+            eng.step(count, dur[:count], None if hold is None else hold[:count],
+                     rec[first : first + count], None, None, no_marks,
+                     np.empty((0, eng.n, 1)))
+    else:
+        eng.advance(K, eng.d_const, eng.h_const, rec, None)
     return rec[:, eng.inv, 0]
 
 

@@ -220,6 +220,45 @@ def test_markings_above_the_run_are_lowered_as_within_does():
     assert first.critical[:, 1].tolist() == [1, 1]
 
 
+@TWIN
+@given(live_event_graphs(max_transitions=7, max_places=16), st.integers(1, 60))
+def test_compiled_firing_times_equal_numpy(g, K):
+    """The deterministic recursion (fixed durations and holds, repeated over chunks of
+    firings for the compiled loop) gives the same bits on both engines."""
+    assert same_bits(recursion.firing_times(g, K, kernel="numba"),
+                     recursion.firing_times(g, K, kernel="numpy"))
+
+
+def test_deep_token_free_paths_compile_and_chunks_change_nothing(monkeypatch):
+    """A ring of 400 stations and one pallet is 400 levels deep, which numpy computes level
+    after level: ``kernel="auto"`` compiles from DETERMINISTIC_MIN_STEPS (firing, level)
+    steps on, and chunks of a few firings give the same bits as one."""
+    n = 400
+    rng = np.random.default_rng(np.random.SeedSequence(12))
+    tokens = np.zeros(n, dtype=np.int64)
+    tokens[-1] = 1
+    g = EventGraph(rng.uniform(1.0, 2.0, n), np.arange(n), (np.arange(n) + 1) % n, tokens,
+                   rng.uniform(0.0, 1.0, n))
+    steps = -(-recursion.DETERMINISTIC_MIN_STEPS // n)  # firings that reach the threshold
+    chosen = []
+    monkeypatch.setattr(recursion, "load_kernel",
+                        lambda *a, real=recursion.load_kernel: chosen.append(1) or real(*a))
+    monkeypatch.setattr(recursion, "kernel_loaded", lambda: False)
+    recursion.firing_times(g, steps - 1)
+    assert chosen == []
+    compiled = recursion.firing_times(g, steps)
+    assert chosen == [1]
+    numpy = recursion.firing_times(g, steps, kernel="numpy")
+    assert same_bits(compiled, numpy)
+    # The ring's one circuit holds one token: from the first round on the pallet comes
+    # round every (sum of durations and holds), λ = weight / tokens (Baccelli et al. 1992,
+    # §2.5 and Thm 3.23).
+    period = float(np.sum(g.duration) + np.sum(g.hold))
+    assert np.allclose(np.diff(compiled[-10:, 0]), period, rtol=1e-12)
+    monkeypatch.setattr(recursion, "_CHUNK_ELEMENTS", 3 * (2 * n))
+    assert same_bits(recursion.firing_times(g, steps, kernel="numba"), numpy)
+
+
 def test_each_kernel_is_compiled_for_one_signature():
     """After all the calls above, each kernel has exactly the signature it was prepared for:
     no array of another type or layout slipped through (which would compile again)."""
