@@ -44,13 +44,13 @@ adds ``mass × draw`` to its element. Per firing this costs ``O(n + m)`` numpy w
 calls per token-free level of the graph), about what the recursion itself costs.
 
 Memory is bounded by keeping only a **window**: when the kept firings exceed their budget
-(:data:`LINEAGE_MEMORY`), the mass is swept from the newest firing ``b`` and only the firings
-``<= b − L`` are summed and dropped; the last ``L`` (the *look-ahead*) are summed by a later
-sweep from a later frontier. This relies on the paths from the far future and from ``b``
-having merged, or at least forgotten where they started, within ``L`` firings (critical paths
-coalesce backward: every path that reaches a node continues identically). When the whole run
-fits — the usual case for models of up to a few hundred elements — there is a single sweep
-from the last firing and the sums are exactly the path sums. Each firing is swept
+(:data:`LINEAGE_MEMORY` per replication), the mass is swept from the newest firing ``b`` and
+only the firings ``<= b − L`` are summed and dropped; the last ``L`` (the *look-ahead*) are
+summed by a later sweep from a later frontier. This relies on the paths from the far future and
+from ``b`` having merged, or at least forgotten where they started, within ``L`` firings
+(critical paths coalesce backward: every path that reaches a node continues identically). When
+the whole run fits — the usual case for models of up to a few hundred elements — there is a
+single sweep from the last firing and the sums are exactly the path sums. Each firing is swept
 ``(window + L) / window`` times, 1.33 by default.
 
 References
@@ -73,7 +73,8 @@ from .exceptions import InvalidArray
 
 __all__ = ["LINEAGE_MEMORY", "MIN_LOOKAHEAD", "LineageSweep", "PathSums", "path_estimates"]
 
-#: Bytes the kept argmax record and draws may take before the oldest firings are summed.
+#: Bytes the kept argmax record and draws of one replication may take before the oldest
+#: firings are summed.
 LINEAGE_MEMORY = 256 * 2**20
 #: Fewest firings of look-ahead; a window that cannot hold four times as many is not swept.
 MIN_LOOKAHEAD = 64
@@ -110,13 +111,34 @@ class PathSums:
 
     @staticmethod
     def concatenate(parts: Sequence[PathSums]) -> PathSums:
-        """Join sums over replications (same segments and frontiers)."""
+        """Join sums over replications.
+
+        Raises
+        ------
+        InvalidArray
+            Unless every part has the same segments, look-ahead and frontiers (sums of
+            windows of another size are other estimates: joining them would make the result
+            depend on how the replications were split).
+        """
         first = parts[0]
-        skipped = next((p.skipped for p in parts if p.skipped), None)
-        looks = [p.lookahead for p in parts if p.lookahead is not None]
+        for p in parts[1:]:
+            if (not np.array_equal(p.segments, first.segments) or p.lookahead != first.lookahead
+                    or p.skipped != first.skipped
+                    or p.weighted.shape[1:] != first.weighted.shape[1:]):
+                raise InvalidArray("path sums of other segments, windows or frontiers cannot "
+                                   "be joined")
         return PathSums(first.segments, np.concatenate([p.weighted for p in parts]),
-                        np.concatenate([p.mass for p in parts]),
-                        max(looks) if looks else None, skipped)
+                        np.concatenate([p.mass for p in parts]), first.lookahead, first.skipped)
+
+    def after(self, start: int) -> PathSums:
+        """The sums from the first segment boundary at or after ``start`` on, as one segment:
+        what :func:`path_estimates` reads for that ``start`` (the same numbers), in a fraction
+        of the memory."""
+        seg = self.segments
+        j = min(int(np.searchsorted(seg, start, side="left")), seg.size - 2)
+        return PathSums(seg[[j, -1]], self.weighted[:, :, j:].sum(axis=2, keepdims=True),
+                        self.mass[:, :, j:].sum(axis=2, keepdims=True), self.lookahead,
+                        self.skipped)
 
 
 def path_estimates(sums: PathSums, means: np.ndarray, start: int,
@@ -173,7 +195,9 @@ class LineageSweep:
         Firing numbers ``s_0 < … < s_J`` splitting the sums; firings outside
         ``(s_0, s_J]`` are not summed.
     memory : int, optional
-        Byte budget of the kept record and draws (default :data:`LINEAGE_MEMORY`).
+        Byte budget of the kept record and draws of each replication (default
+        :data:`LINEAGE_MEMORY`; a batch of ``R`` replications keeps up to ``R`` times as
+        much: callers bound ``R``).
     lookahead : int, optional
         Look-ahead in firings when the run does not fit (default: a quarter of what fits,
         at least :data:`MIN_LOOKAHEAD`).
@@ -204,7 +228,10 @@ class LineageSweep:
             raise InvalidArray("segments must be increasing firing numbers, at least two")
         self.segments = seg
         F, J = len(fronts), seg.size - 1
-        per_firing = self.R * (self.n * (4 + 8) + self.P * 8)  # record, durations, holds
+        # The windows are fixed per replication (a budget per replication, not per batch):
+        # sums over windows of another size are other numbers, and a result must not depend
+        # on how many replications share a batch.
+        per_firing = self.bytes_per_firing(self.n, self.P)
         capacity = max(1, int(memory or LINEAGE_MEMORY) // per_firing)
         span = int(seg[-1])
         self.skipped: str | None = None
@@ -225,6 +252,12 @@ class LineageSweep:
         self.chunks: list[tuple[int, np.ndarray, np.ndarray, np.ndarray | None]] = []
         self.top = 0  # the last firing fed
         self.settled = 0  # firings up to here are summed
+
+    @staticmethod
+    def bytes_per_firing(n: int, slots: int) -> int:
+        """Bytes kept per firing and replication: the record (int32) and the durations of the
+        ``n`` transitions, the holds of the ``slots`` input slots."""
+        return n * (4 + 8) + slots * 8
 
     def feed(self, first: int, record: np.ndarray, dur: np.ndarray,
              hold: np.ndarray | None) -> None:

@@ -62,8 +62,8 @@ from .exceptions import InvalidArray
 from .lineage import LineageSweep, _add_in_turn
 
 __all__ = [
-    "KERNELS",
     "DETERMINISTIC_MIN_STEPS",
+    "KERNELS",
     "KERNEL_MIN_WORK",
     "BlockSource",
     "RandomRecursion",

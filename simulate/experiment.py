@@ -32,7 +32,7 @@ import numpy as np
 
 from ..algebra.critical import cyclicity
 from ..algebra.eventgraph import self_loop_servers, strongly_connected_components
-from ..algebra.lineage import PathSums
+from ..algebra.lineage import LINEAGE_MEMORY, LineageSweep, PathSums
 from ..algebra.recursion import RandomRecursion, choose_kernel, load_kernel, within
 from ..algebra.spectral import howard
 from ..algebra.stability import components as graph_components
@@ -47,7 +47,14 @@ from .estimate import (
     sequential_precision,
 )
 from .modelfile import Model
-from .sensitivity import SensitivityEstimate, from_paths, frontiers, segment_bounds
+from .sensitivity import (
+    MAX_SEGMENTS,
+    SEGMENT_MEMORY,
+    SensitivityEstimate,
+    from_paths,
+    frontiers,
+    segment_bounds,
+)
 from .settings import RunSettings
 
 __all__ = [
@@ -72,6 +79,8 @@ DEFAULT_REPLICATIONS = 10
 MAX_REPLICATIONS = 2000
 #: Default target relative half-width for random models.
 DEFAULT_PRECISION = 0.01
+#: Bytes the path sums of the replications run together may take while they run.
+GROUP_SUMS_MEMORY = 64 * 2**20
 #: Longest cyclicity that runs are aligned to (they are made at least 10 periods long).
 MAX_ALIGNED_PERIOD = 10_000
 
@@ -232,6 +241,33 @@ def servers_horizon(graph: Any, last: np.ndarray) -> np.ndarray:
 def _recursion_batch(model: Model, seed: int, replications: Sequence[int], firings: int,
                      block: int, record: bool, lineage: bool = True,
                      kernel: str = "auto") -> Batch:
+    """The replications on the recursion; with ``lineage``, in groups small enough for the
+    memory of the critical paths (each replication's numbers are its own whatever the group:
+    the windows and segments of the sums are fixed per replication)."""
+    reps = list(replications)
+    size = _lineage_group(model, firings) if lineage and firings > 0 else len(reps)
+    if len(reps) <= size:
+        return _recursion_group(model, seed, reps, firings, block, record, lineage, kernel)
+    return Batch.concatenate([
+        _recursion_group(model, seed, reps[i : i + size], firings, block, record, lineage,
+                         kernel)
+        for i in range(0, len(reps), size)])
+
+
+def _lineage_group(model: Model, firings: int) -> int:
+    """Replications run together while their critical paths are summed: as many as keep the
+    record (:data:`~cyclecheck.algebra.lineage.LINEAGE_MEMORY`) and the path sums
+    (:data:`~.sensitivity.SEGMENT_MEMORY`) of one replication, at least one."""
+    n, m = model.n_transitions, model.n_places
+    per_firing = LineageSweep.bytes_per_firing(n, m)  # places stand for the engine's slots
+    kept = min(firings, max(1, LINEAGE_MEMORY // per_firing)) * per_firing
+    sums = max(1, min(SEGMENT_MEMORY, 4 * 8 * (2 * m + n) * MAX_SEGMENTS))
+    return max(1, min(LINEAGE_MEMORY // kept, GROUP_SUMS_MEMORY // sums))
+
+
+def _recursion_group(model: Model, seed: int, replications: Sequence[int], firings: int,
+                     block: int, record: bool, lineage: bool = True,
+                     kernel: str = "auto") -> Batch:
     reps = np.asarray(replications, dtype=np.int64)
     samplers = [model.sampler(seed, int(r)) for r in reps]
     # Markings above the run's firings deliver nothing within it: the same firing times with
@@ -271,7 +307,7 @@ def _recursion_batch(model: Model, seed: int, replications: Sequence[int], firin
     if lineage and firings > 0:
         fronts = frontiers(graph, graph_components(graph))
         sweep = rec.track_lineage(fronts, segment_bounds(
-            points, 2 * graph.n_places + graph.n_transitions, len(reps) * len(fronts)))
+            points, 2 * graph.n_places + graph.n_transitions, len(fronts)))
     x = np.zeros((points.size, len(reps), graph.n_transitions))
     busy = np.zeros((len(reps), graph.n_transitions))
     critical = np.zeros((len(reps), graph.n_places), dtype=np.int64)
@@ -554,6 +590,8 @@ def estimate_cycle_time(model: Model, engine: str = "recursion", *, seed: int = 
         if state["warmup"] < 0:
             state["warmup"], at_limit = _warmup(batch, components)
             state["at_limit"] = int(at_limit)
+        if batch.paths is not None:  # only the sums after the warm-up are read: keep those
+            batch.paths = batch.paths.after(state["warmup"])
         batches.append(batch)
         values = components.headline(_growth(batch, state["warmup"]))
         so_far.append(values)

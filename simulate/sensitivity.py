@@ -117,14 +117,18 @@ def frontiers(graph: EventGraph, parts: Components) -> list[np.ndarray]:
     return [sinks[i] for i in sorted(ranked[:MAX_FRONTIERS])]
 
 
-#: Bytes the path sums of one batch may take (their segments are reduced to fit).
-SEGMENT_MEMORY = 64 * 2**20
+#: Bytes the path sums of one replication may take while it runs (their segments are reduced
+#: to fit; once the warm-up is known they are added into one, :meth:`PathSums.after`).
+SEGMENT_MEMORY = 8 * 2**20
 
 
 def segment_bounds(checkpoints: np.ndarray, elements: int = 1, columns: int = 1) -> np.ndarray:
     """At most :data:`MAX_SEGMENTS` + 1 of the checkpoints, the first and last included, fewer
-    when the sums of ``elements`` for ``columns`` (replications × frontiers) would exceed
-    :data:`SEGMENT_MEMORY`: with a single segment the warm-up is not cut from the sums."""
+    when the sums of ``elements`` for ``columns`` frontiers of one replication would exceed
+    :data:`SEGMENT_MEMORY`: with a single segment the warm-up is not cut from the sums.
+
+    Per replication, so that the segments, and the numbers summed in them, do not depend on
+    how many replications share a batch."""
     fit = SEGMENT_MEMORY // max(1, 4 * 8 * elements * columns)  # two sums, kept twice
     count = int(np.clip(fit, 1, MAX_SEGMENTS))
     picks = np.unique(np.round(np.linspace(0, checkpoints.size - 1,

@@ -95,3 +95,31 @@ def test_unreachable_scheduler_is_an_input_error() -> None:
                          capture_output=True, text=True, timeout=120, check=False)
     assert out.returncode == 2, out.stderr
     assert "scheduler" in out.stderr and "Traceback" not in out.stderr
+
+
+def test_derivatives_do_not_depend_on_how_replications_are_split(monkeypatch) -> None:
+    """The path sums behind the derivatives are fixed per replication (windows, look-ahead,
+    segments): five replications run together, split 2 + 3 as two workers would get them, or
+    one by one give the same bits, also when the record of a replication does not fit its
+    budget and the sums are taken over windows (budget lowered here to force them)."""
+    from cyclecheck.algebra import lineage
+    from cyclecheck.simulate import experiment
+    from cyclecheck.simulate.experiment import Batch
+
+    ring = load_model(MODELS / "closed_line_exponential.toml")
+    default = lineage.LINEAGE_MEMORY
+    for budget in (default, 300 * lineage.LineageSweep.bytes_per_firing(5, 10)):
+        monkeypatch.setattr(lineage, "LINEAGE_MEMORY", budget)
+        monkeypatch.setattr(experiment, "LINEAGE_MEMORY", budget)
+        whole = run_replications(ring, "recursion", 3, range(5), 2000)
+        parts = Batch.concatenate([run_replications(ring, "recursion", 3, r, 2000)
+                                   for r in (range(2), range(2, 5))])
+        singles = Batch.concatenate([run_replications(ring, "recursion", 3, [r], 2000)
+                                     for r in range(5)])
+        windowed = budget < default
+        assert (whole.paths.lookahead is not None) == windowed
+        for other in (parts, singles):
+            assert other.paths.lookahead == whole.paths.lookahead
+            np.testing.assert_array_equal(other.paths.segments, whole.paths.segments)
+            assert other.paths.weighted.tobytes() == whole.paths.weighted.tobytes()
+            assert other.paths.mass.tobytes() == whole.paths.mass.tobytes()

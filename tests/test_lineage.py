@@ -19,6 +19,7 @@ import math
 
 import numpy as np
 from cyclecheck.algebra.eventgraph import EventGraph
+from cyclecheck.algebra.exceptions import InvalidArray
 from cyclecheck.algebra.lineage import PathSums, path_estimates
 from cyclecheck.algebra.recursion import RandomRecursion
 from hypothesis import given, settings
@@ -183,7 +184,7 @@ def test_windows_agree_with_the_exact_sums_when_paths_coalesce():
     hold = np.zeros((K, 1, 10))
     exact, sums = _derivatives(g, dur, hold, R, K)
     assert sums.lookahead is None
-    per_firing = R * (5 * 12 + 10 * 8)
+    per_firing = 5 * 12 + 10 * 8  # bytes per firing and replication
     windowed, wsums = _derivatives(g, dur, hold, R, K, memory=200 * per_firing, lookahead=50)
     assert wsums.lookahead == 50
     np.testing.assert_allclose(windowed, exact, rtol=1e-9, atol=1e-12)
@@ -196,8 +197,33 @@ def test_a_window_too_small_for_memory_says_so():
     rng = np.random.default_rng(np.random.SeedSequence(6))
     dur = rng.exponential(1.0, size=(1000, 2, 2))
     rec = RandomRecursion(g, source(dur), source(np.zeros((1000, 1, 4))), 2)
-    sweep = rec.track_lineage([[0, 1]], [0, 1000], memory=10_000)
+    sweep = rec.track_lineage([[0, 1]], [0, 1000], memory=5_000)
     rec.run(1000)
     sums = sweep.finish()
     assert sums.skipped is not None and "MiB" in sums.skipped
     assert not sums.weighted.any()
+
+
+def test_path_sums_of_other_windows_are_not_joined():
+    """Sums over windows of another size are other numbers: joining them would make a result
+    depend on how replications were split, so concatenate refuses; ``after`` keeps what
+    path_estimates reads."""
+    seg = np.array([0, 10, 20, 30])
+    rng = np.random.default_rng(3)
+    a = PathSums(seg, rng.random((2, 1, 3, 4)), rng.random((2, 1, 3, 4)), None)
+    b = PathSums(seg, rng.random((1, 1, 3, 4)), rng.random((1, 1, 3, 4)), 50)
+    try:
+        PathSums.concatenate([a, b])
+    except InvalidArray as exc:
+        assert "cannot be joined" in str(exc)
+    else:
+        raise AssertionError("sums with another look-ahead were joined")
+    joined = PathSums.concatenate([a, a])
+    assert joined.weighted.shape == (4, 1, 3, 4)
+    means = np.array([1.0, 2.0, 0.0, 0.5])
+    for start in (0, 5, 10, 25, 40):
+        full = path_estimates(a, means, start, np.array([0, 0]))
+        short = path_estimates(a.after(start), means, start, np.array([0, 0]))
+        np.testing.assert_allclose(short[0], full[0], rtol=1e-15)
+        np.testing.assert_allclose(short[1], full[1], rtol=1e-15)
+        assert short[2] == full[2]
