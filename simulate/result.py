@@ -713,9 +713,23 @@ def _command_line(argv: list[str]) -> str:
     return f"the Python interface (cyclecheck.simulate), called from {script}"
 
 
+#: Documents whose compact text is longer than this are written one top-level key per line.
+PRETTY_LIMIT = 1_000_000
+
+
 def dumps(document: Mapping[str, Any]) -> str:
-    """JSON text of a document: ``allow_nan=False`` proves no inf or NaN slipped through."""
-    return json.dumps(document, indent=2, allow_nan=False, default=_json_default)
+    """JSON text of a document: ``allow_nan=False`` proves no inf or NaN slipped through.
+
+    Indented (two spaces) for people to read; a large document (the analysis of 10^5
+    transitions, tens of MB) puts each top-level key on its own line with a compact value:
+    Python's encoder is compiled only for unindented text, which is 5-10 times faster there.
+    """
+    options: dict[str, Any] = {"allow_nan": False, "default": _json_default}
+    lines = [f"  {json.dumps(str(key))}: {json.dumps(value, separators=(',', ':'), **options)}"
+             for key, value in document.items()]
+    if sum(map(len, lines)) <= PRETTY_LIMIT:
+        return json.dumps(document, indent=2, **options)
+    return "{\n" + ",\n".join(lines) + "\n}"
 
 
 def _json_default(value: object) -> object:

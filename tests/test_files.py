@@ -253,3 +253,21 @@ def test_check_output_names_the_option(tmp_path: Path) -> None:
     with pytest.raises(ModelError) as caught:
         check_output(mine, "page", option="--report")
     assert "--report" in str(caught.value)
+
+
+def test_large_documents_keep_one_key_per_line_and_their_kind(tmp_path, monkeypatch):
+    """A document past PRETTY_LIMIT is written one top-level key per line with compact values
+    (the compiled encoder): the same JSON for a reader, still recognised as a result."""
+    from cyclecheck.simulate import result
+
+    doc = dict(fixed_document())
+    small = result.dumps(doc)
+    monkeypatch.setattr(result, "PRETTY_LIMIT", 10)
+    large = result.dumps(doc)
+    assert json.loads(large) == json.loads(small)
+    lines = large.splitlines()
+    assert lines[0] == "{" and lines[-1] == "}" and len(lines) == len(doc) + 2
+    assert lines[1] == '  "document": "cyclecheck-result",'
+    target = tmp_path / "big.json"
+    target.write_text(large + "\n", encoding="utf-8")
+    assert kind_of(target) == "result"
