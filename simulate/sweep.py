@@ -70,7 +70,14 @@ import numpy as np
 from ..algebra.eventgraph import self_loop_servers
 from .errors import ModelError
 from .estimate import Interval, replication_interval
-from .experiment import DEFAULT_PRECISION, MAX_REPLICATIONS, _aligned, _Components, default_firings
+from .experiment import (
+    DEFAULT_PRECISION,
+    MAX_REPLICATIONS,
+    _aligned,
+    _Components,
+    default_firings,
+    prepare_kernel,
+)
 from .files import STATE_DOCUMENT
 from .grid import Grid, point_model
 from .modelfile import Model
@@ -490,6 +497,11 @@ def run_sweep(model: Model, grid: Grid, settings: RunSettings, *,
         Tasks taken from the state file instead of being run.
     """
     state = _State(state_path, state_key(model, grid, settings), force)
+    if model.is_random and not settings.scheduler:
+        # Loaded here, the compiled recursion is inherited by the local workers forked from
+        # this process, instead of being loaded by each of them.
+        prepare_kernel(model, settings.firings or default_firings(model, "recursion"),
+                       settings.replications or 10)
     with TaskRunner(settings.workers, settings.scheduler, note=note) as runner:
         sweep = _Sweep(model, grid, settings, runner, state, progress)
         try:
