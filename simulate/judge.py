@@ -177,10 +177,17 @@ def judge_events(model: Model, log: EventLog, *, alpha: float = DEFAULT_ALPHA,
                 f"{f.summary}" for f in sorted(findings, key=lambda f: f.adjusted_p)
                 if f.rejected]
     verdict = "agrees" if not reasons else "disagrees"
+    section = exact.section(model)
     if verdict == "agrees":
         reasons = _agreement(model, exact, findings, alpha)
+    else:
+        notes += _unit_hint(model, section, judged)
+    if partial and absent and len(absent) * 2 >= model.n_transitions:
+        notes.append(f"--partial: {len(absent)} of the model's {model.n_transitions} "
+                     "transitions have no row in the log, so this verdict rests on the "
+                     f"{model.n_transitions - len(absent)} logged ones only")
     doc: dict[str, Any] = {"verdict": verdict, "reasons": reasons, "notes": notes}
-    doc.update(exact.section(model))
+    doc.update(section)
     doc.update({
         "alpha": alpha,
         "partial": partial,
@@ -200,6 +207,41 @@ def judge_events(model: Model, log: EventLog, *, alpha: float = DEFAULT_ALPHA,
         "certain_disagreements": certain,
     })
     return _json_ready(doc)
+
+
+#: Ratios of time units a log may be written in against the model's: seconds, minutes,
+#: hours and days to one another, milliseconds to seconds.
+UNIT_FACTORS = {60.0: "minutes and seconds, or hours and minutes", 3600.0: "hours and seconds",
+                1000.0: "seconds and milliseconds", 24.0: "days and hours",
+                1440.0: "days and minutes"}
+#: How far every ratio of the log's durations to the model's may stray from one factor.
+UNIT_SPREAD = 0.05
+
+
+def _unit_hint(model: Model, section: dict[str, Any], judged: list[Judged]) -> list[str]:
+    """A note when the log looks written in another time unit: every judged transition's mean
+    duration (random laws; else the log's cycle time against the model's, fixed numbers) is
+    one of :data:`UNIT_FACTORS` times the model's, or its inverse, to :data:`UNIT_SPREAD`."""
+    ratios = [row["observed_mean"] / row["model_mean"]
+              for j in judged if j.samples.kind == "duration" for row in j.rows
+              if row.get("observed_mean") and row.get("model_mean")]
+    if not ratios and not model.is_random:
+        seen, expected = section.get("cycle_time_from_log"), section.get("cycle_time")
+        if isinstance(seen, float) and isinstance(expected, float) and expected > 0:
+            ratios = [seen / expected]
+    if not ratios or min(ratios) <= 0:
+        return []
+    ratio = float(np.median(ratios))
+    if any(abs(r / ratio - 1.0) > UNIT_SPREAD for r in ratios):
+        return []
+    for factor, units in UNIT_FACTORS.items():
+        for scale in (factor, 1.0 / factor):
+            if abs(ratio / scale - 1.0) <= UNIT_SPREAD:
+                return [f"the log's times are about {ratio:.4g} times the model's "
+                        f"({'every judged mean duration' if model.is_random else 'cycle time'}"
+                        f"): if the log and the model count time in other units ({units}), "
+                        f"judge it again with --time-scale {1.0 / scale:.10g}"]
+    return []
 
 
 def _json_ready(value: Any) -> Any:

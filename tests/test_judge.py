@@ -468,6 +468,45 @@ def test_absurd_time_units_give_a_judgement(press, factor):
     dumps(doc)
 
 
+@pytest.mark.parametrize(("factor", "scale"), [(60.0, "0.01666666667"), (1 / 60, "60")])
+def test_a_log_in_another_time_unit_gets_a_hint(press, factor, scale):
+    """A log in seconds of a model in minutes (or the reverse): every mean duration is 60
+    times the model's, the verdict disagrees, and a note names the --time-scale that would
+    convert the log; judged again with it, the log agrees."""
+    model, estimate = press
+    frame = engine_log(model, 600, seed=4)
+    frame[["start", "time"]] *= factor
+    doc = judge_log(model, frame, model_estimate=estimate)
+    assert doc["verdict"] == "disagrees"
+    hint = [n for n in doc["notes"] if "--time-scale" in n]
+    assert len(hint) == 1 and hint[0].endswith(f"--time-scale {scale}"), doc["notes"]
+    again = judge_log(model, frame, model_estimate=estimate, time_scale=1 / factor)
+    assert again["verdict"] == "agrees", again["reasons"]
+
+
+def test_a_slower_station_gets_no_unit_hint(press):
+    """Only one station slower (the others as the model says): no common factor, no hint."""
+    model, estimate = press
+    frame = engine_log(model, 600, seed=4)
+    slow = frame["transition"] == "press"
+    frame.loc[slow, "time"] = frame.loc[slow, "start"] + 60 * (
+        frame.loc[slow, "time"] - frame.loc[slow, "start"])
+    doc = judge_log(model, frame, model_estimate=estimate, tolerance=1e9)
+    assert doc["verdict"] == "disagrees"
+    assert not [n for n in doc["notes"] if "--time-scale" in n]
+
+
+def test_partial_says_when_most_of_the_model_is_not_logged(press):
+    """--partial on a log of one transition out of three: the verdict may agree, and a note
+    says how little it rests on."""
+    model, estimate = press
+    frame = engine_log(model, 600, seed=5)
+    kept = frame[frame["transition"] == "arrive"]
+    doc = judge_log(model, kept, model_estimate=estimate, partial=True)
+    assert any("--partial:" in n and "rests on the 1 logged" in n for n in doc["notes"]), \
+        doc["notes"]
+
+
 # ------------------------------------------------------------------------ rounded times
 
 
