@@ -46,7 +46,7 @@ import numpy as np
 from numba.core.caching import NullCache
 
 __all__ = ["CACHED", "STATUS_NOT_CONVERGED", "STATUS_OK", "STATUS_OVERFLOW",
-           "STATUS_TOKEN_FREE", "disable_cache", "howard_iterate", "path_sums",
+           "STATUS_TOKEN_FREE", "cache_available", "disable_cache", "howard_iterate", "path_sums",
            "policy_circuits"]
 
 _BIG = float(np.finfo(np.float64).max)  # the scales of the tolerances saturate here
@@ -55,8 +55,9 @@ _BIG = float(np.finfo(np.float64).max)  # the scales of the tolerances saturate 
 STATUS_OK, STATUS_NOT_CONVERGED, STATUS_TOKEN_FREE, STATUS_OVERFLOW = 0, 1, 2, 3
 
 
-def _cache_available() -> bool:
-    """True when numba finds a writable place for its on-disk cache of this module."""
+def cache_available() -> bool:
+    """True when numba finds a writable place for its on-disk cache of the modules of this
+    folder (the compiled recursion asks too)."""
     try:
         numba.njit(cache=True)(_probe)
     except RuntimeError:  # "cannot cache function ...: no locator available"
@@ -69,7 +70,7 @@ def _probe() -> int:
 
 
 #: Whether the kernels are cached on disk (False: compiled in memory on every run).
-CACHED = _cache_available()
+CACHED = cache_available()
 
 
 def _jit(fn):  # type: ignore[no-untyped-def]

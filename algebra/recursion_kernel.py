@@ -50,25 +50,14 @@ import numba
 import numpy as np
 from numba.core.caching import NullCache
 
+from .kernels import cache_available
+
 __all__ = ["CACHED", "PREPARED", "advance", "compiled_on_disk", "disable_cache", "gather",
            "prepare", "sweep_chunk"]
 
 
-def _cache_available() -> bool:
-    """True when numba finds a writable place for its on-disk cache of this module."""
-    try:
-        numba.njit(cache=True)(_probe)
-    except RuntimeError:  # "cannot cache function ...: no locator available"
-        return False
-    return True
-
-
-def _probe() -> int:
-    return 0
-
-
 #: Whether the kernels are cached on disk (False: compiled in memory on every run).
-CACHED = _cache_available()
+CACHED = cache_available()
 
 
 def _jit(fn):  # type: ignore[no-untyped-def]
