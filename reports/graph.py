@@ -107,6 +107,11 @@ def _components(document: Mapping[str, Any], figs: Figures, ids: list[str],
     digits = 4 if is_random(document) else 6
     values = {t: f"λ {fmt(v, digits)}" for t, v in by_t.items() if v is not None}
     critical = {t for c in circuits for t in c}
+    listed = int(document["model"].get("n_transitions") or len(ids))
+    whole = analysis.get("components")  # counted on the whole graph by the analysis
+    if listed > len(ids) and whole == 1:  # the listed part alone would look disconnected
+        return (f'<p class="note">The graph is strongly connected: one component of '
+                f"{count(listed, 'transition')}.</p>\n")
     found = component_map(ids, specs, values, critical)
     n = len(found.names) + found.hidden_components
     if n == 1:
@@ -124,8 +129,9 @@ def _components(document: Mapping[str, Any], figs: Figures, ids: list[str],
     if found.hidden_components:
         caption += (f" Drawn: the {fmt(len(found.names))} largest and the critical one; "
                     f"{count(found.hidden_components, 'smaller component')} left out.")
-    listed = int(document["model"].get("n_transitions") or len(ids))
     if listed > len(ids):
         caption += (f" Built from the {fmt(len(ids))} transitions the document lists (of "
-                    f"{fmt(listed)}).")
+                    f"{fmt(listed)}) and the places between them"
+                    + (f"; the whole graph has {fmt(whole)} components" if whole else "")
+                    + ".")
     return figs.wrap("components", "Strongly connected components", svg, caption)

@@ -97,7 +97,8 @@ def _select(transitions: Sequence[str], places: Sequence[PlaceSpec], focus: Sequ
             neighbours.add(place.target)
         if place.target in kept:
             neighbours.add(place.source)
-    extra = sorted(neighbours - kept, key=order.__getitem__)
+    # (a large model lists only its first transitions: neighbours not listed are not drawn)
+    extra = sorted((neighbours - kept) & order.keys(), key=order.__getitem__)
     return keep + extra[: max(0, limit - len(keep))]
 
 

@@ -350,7 +350,7 @@ def _sections(ids: set[str], n_places: int, complete: bool = True) -> dict[str, 
         "cycle_time_ci": interval,
         "throughput": number,
         "cycle_time_by_transition": by_id,
-        "critical_circuits": list_of(list_of(transition)),
+        "critical_circuits": list_of(list_of(named)),
         "critical_places": list_of(index_below(n_places, "must be the index of a place of "
                                                          "model.places")),
         "cyclicity": integer(1),
@@ -516,11 +516,14 @@ def _structure(document: Any) -> None:
             raise ReportError(f"model.transitions[{i}].id",
                               f"the id {t['id']!r} is used twice; ids must be unique")
         seen.add(t["id"])
+    # A large model lists only its first transitions and places (model.elements_listed):
+    # a listed place may then join transitions that are not listed.
+    complete = model.get("n_transitions") in (None, len(model["transitions"]))
     for i, p in enumerate(model["places"]):
         if not isinstance(p, Mapping):
             raise ReportError(f"model.places[{i}]", "every place is an object")
         for end in ("from", "to"):
-            if not isinstance(p.get(end), str) or p[end] not in seen:
+            if not isinstance(p.get(end), str) or (complete and p[end] not in seen):
                 raise ReportError(f"model.places[{i}].{end}",
                                   "must name a transition of model.transitions")
         tokens = p.get("tokens")

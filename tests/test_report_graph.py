@@ -258,3 +258,38 @@ def test_igraph_gets_layers_and_one_layer_steps_only(monkeypatch: Any) -> None:
     drawing = layout.layout_graph(ids, places, [["s17"]])
     assert calls and calls[0] > len(ids)  # dummy vertices were added
     assert set(drawing.nodes) == set(ids)
+
+
+def _ring_toml(path: Path, n: int, rings: int = 1) -> Path:
+    """``rings`` rings of ``n`` stations and one pallet each, ring i feeding ring i + 1."""
+    lines = ['[model]', 'name = "rings"', 'time_unit = "s"', '']
+    for r in range(rings):
+        for i in range(n):
+            lines += ["[[transitions]]", f'id = "r{r}s{i}"', f"duration = {1 + (i % 3)}", ""]
+    for r in range(rings):
+        for i in range(n):
+            lines += ["[[places]]", f'from = "r{r}s{i}"', f'to = "r{r}s{(i + 1) % n}"',
+                      f"tokens = {1 if i == n - 1 else 0}", ""]
+        if r:
+            lines += ["[[places]]", f'from = "r{r - 1}s0"', f'to = "r{r}s0"', ""]
+    path.write_text("\n".join(lines), encoding="utf-8")
+    return path
+
+
+def test_a_model_listed_in_part_renders_with_the_whole_graph_s_components(
+        tmp_path: Path, monkeypatch: Any) -> None:
+    """A document lists at most MAX_LISTED transitions and places (lowered here to 30): its
+    places and critical circuits may name transitions it does not list. The page renders, and
+    the components are those the analysis counted on the whole graph, not those of the listed
+    part (which alone would look cut into pieces)."""
+    from cyclecheck.simulate import analyze, result
+
+    monkeypatch.setattr(result, "MAX_LISTED", 30)
+    ring = analyze(_ring_toml(tmp_path / "ring.toml", 80), quiet=True)
+    assert len(ring["model"]["transitions"]) == 30 and ring["components"] == 1
+    text = visible_text(render_page(ring))
+    assert "The graph is strongly connected: one component of 80 transitions." in text
+    two = analyze(_ring_toml(tmp_path / "two.toml", 40, rings=2), quiet=True)
+    assert two["components"] == 2
+    text = visible_text(render_page(two))
+    assert "the whole graph has 2 components" in text
