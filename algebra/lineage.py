@@ -231,8 +231,8 @@ class LineageSweep:
         # The windows are fixed per replication (a budget per replication, not per batch):
         # sums over windows of another size are other numbers, and a result must not depend
         # on how many replications share a batch.
-        per_firing = self.bytes_per_firing(self.n, self.P)
-        capacity = max(1, int(memory or LINEAGE_MEMORY) // per_firing)
+        per_firing = self.bytes_per_firing(self.n, self.m)
+        capacity = self.capacity(self.n, self.m, memory)
         span = int(seg[-1])
         self.skipped: str | None = None
         self.lookahead: int | None = None
@@ -254,10 +254,18 @@ class LineageSweep:
         self.settled = 0  # firings up to here are summed
 
     @staticmethod
-    def bytes_per_firing(n: int, slots: int) -> int:
-        """Bytes kept per firing and replication: the record (int32) and the durations of the
-        ``n`` transitions, the holds of the ``slots`` input slots."""
-        return n * (4 + 8) + slots * 8
+    def bytes_per_firing(n: int, m: int) -> int:
+        """Bytes counted per firing and replication against the budget: the record (int32)
+        and the durations of the ``n`` transitions, the holds of the ``m`` places. (The
+        holds are kept per input slot, up to about twice as many as places; counting places
+        keeps the windows a function of the model alone.)"""
+        return n * (4 + 8) + m * 8
+
+    @staticmethod
+    def capacity(n: int, m: int, memory: int | None = None) -> int:
+        """Firings of one replication that the budget ``memory`` (default
+        :data:`LINEAGE_MEMORY`) keeps: a run of more is summed over windows."""
+        return max(1, int(memory or LINEAGE_MEMORY) // LineageSweep.bytes_per_firing(n, m))
 
     def feed(self, first: int, record: np.ndarray, dur: np.ndarray,
              hold: np.ndarray | None) -> None:

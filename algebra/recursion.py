@@ -465,7 +465,7 @@ def firing_times(graph: EventGraph, n_firings: int, *, kernel: str = "auto") -> 
         name = "numba"
     if name == "numba":
         eng.kernel = load_kernel()
-        if eng.kernel is None:
+        if eng.kernel is None and kernel == "numba":
             raise ImportError("kernel='numba' needs numba: pip install numba")
     if eng.kernel is not None:
         # The compiled loop reads one row of durations and holds per firing: the fixed ones

@@ -227,7 +227,7 @@ def _random(model: Model, exact: GraphAnalysis, settings: RunSettings,
                                      cyclicity_of_mean=exact.cyclicity, progress=progress)
     sim_times = sim_est.batch.times
     rec_batch = run_replications(model, "recursion", seed, sim_est.batch.replications.tolist(),
-                                 sim_est.firings, record=True)
+                                 sim_est.firings, record=True, lineage=False)  # paths only
     diff = _path_difference(sim_times, rec_batch.times)
     identical = diff <= PATH_RTOL
     lower = exact.cycle_time

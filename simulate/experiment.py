@@ -245,29 +245,40 @@ def _recursion_batch(model: Model, seed: int, replications: Sequence[int], firin
     memory of the critical paths (each replication's numbers are its own whatever the group:
     the windows and segments of the sums are fixed per replication)."""
     reps = list(replications)
-    size = _lineage_group(model, firings) if lineage and firings > 0 else len(reps)
+    fronts = None
+    size = len(reps)
+    if lineage and firings > 0:
+        graph = model.graph()
+        fronts = frontiers(graph, graph_components(graph))
+        size = _lineage_group(model, firings, len(fronts))
     if len(reps) <= size:
-        return _recursion_group(model, seed, reps, firings, block, record, lineage, kernel)
+        return _recursion_group(model, seed, reps, firings, block, record, fronts, kernel)
     return Batch.concatenate([
-        _recursion_group(model, seed, reps[i : i + size], firings, block, record, lineage,
+        _recursion_group(model, seed, reps[i : i + size], firings, block, record, fronts,
                          kernel)
         for i in range(0, len(reps), size)])
 
 
-def _lineage_group(model: Model, firings: int) -> int:
+def _lineage_group(model: Model, firings: int, n_frontiers: int) -> int:
     """Replications run together while their critical paths are summed: as many as keep the
     record (:data:`~cyclecheck.algebra.lineage.LINEAGE_MEMORY`) and the path sums
-    (:data:`~.sensitivity.SEGMENT_MEMORY`) of one replication, at least one."""
+    (:data:`~.sensitivity.SEGMENT_MEMORY`) of one replication each, at least one; exactly one
+    when a replication's run does not fit and is summed over windows (the windows' sweeps are
+    started by the chunks fed, whose length depends on the replications run together)."""
     n, m = model.n_transitions, model.n_places
-    per_firing = LineageSweep.bytes_per_firing(n, m)  # places stand for the engine's slots
-    kept = min(firings, max(1, LINEAGE_MEMORY // per_firing)) * per_firing
-    sums = max(1, min(SEGMENT_MEMORY, 4 * 8 * (2 * m + n) * MAX_SEGMENTS))
+    capacity = LineageSweep.capacity(n, m)
+    if firings > capacity:
+        return 1
+    kept = firings * LineageSweep.bytes_per_firing(n, m)
+    sums = max(1, min(SEGMENT_MEMORY, 4 * 8 * (2 * m + n) * n_frontiers * MAX_SEGMENTS))
     return max(1, min(LINEAGE_MEMORY // kept, GROUP_SUMS_MEMORY // sums))
 
 
 def _recursion_group(model: Model, seed: int, replications: Sequence[int], firings: int,
-                     block: int, record: bool, lineage: bool = True,
+                     block: int, record: bool, fronts: list[np.ndarray] | None = None,
                      kernel: str = "auto") -> Batch:
+    """Replications run together on the recursion; with ``fronts`` (the frontiers), the sums
+    along their critical paths too."""
     reps = np.asarray(replications, dtype=np.int64)
     samplers = [model.sampler(seed, int(r)) for r in reps]
     # Markings above the run's firings deliver nothing within it: the same firing times with
@@ -304,8 +315,7 @@ def _recursion_group(model: Model, seed: int, replications: Sequence[int], firin
     depth = min(firings, max(1, int(graph.tokens.max(initial=0))))
     points = _checkpoints(firings, block)
     sweep = None
-    if lineage and firings > 0:
-        fronts = frontiers(graph, graph_components(graph))
+    if fronts is not None:
         sweep = rec.track_lineage(fronts, segment_bounds(
             points, 2 * graph.n_places + graph.n_transitions, len(fronts)))
     x = np.zeros((points.size, len(reps), graph.n_transitions))

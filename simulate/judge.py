@@ -107,7 +107,7 @@ def judge_log(model: Model, log: str | os.PathLike[str] | pd.DataFrame, *,
         progress.stage("reading the event log", now=big)
     events = (EventLog.from_frame(model, log, fmt) if isinstance(log, pd.DataFrame)
               else read_log(model, log, fmt))
-    doc = judge_events(model, events, **options)
+    doc = judge_events(model, events, time_scale=fmt.time_scale, **options)
     doc["log_format"] = {**fmt.describe(), "format": events.source}
     return doc
 
@@ -116,8 +116,11 @@ def judge_events(model: Model, log: EventLog, *, alpha: float = DEFAULT_ALPHA,
                  partial: bool = False, tolerance: float = 1e-6, seed: int = 1,
                  precision: float | None = None, model_estimate: ModelCycleTime | None = None,
                  workers: int = 1, scheduler: str | None = None, max_listed: int = MAX_LISTED,
-                 progress: Any = None) -> dict[str, Any]:
+                 progress: Any = None, time_scale: float = 1.0) -> dict[str, Any]:
     """Judge a checked :class:`~.eventlog.EventLog` (see the module doc).
+
+    ``time_scale`` is the scale the log was read with (``--time-scale``), for the note that
+    suggests another one.
 
     ``precision`` is the relative half-width asked of the model's cycle-time estimate (default:
     several times tighter than the log's, see :func:`~.logcycle.model_precision`);
@@ -181,7 +184,7 @@ def judge_events(model: Model, log: EventLog, *, alpha: float = DEFAULT_ALPHA,
     if verdict == "agrees":
         reasons = _agreement(model, exact, findings, alpha)
     else:
-        notes += _unit_hint(model, section, judged)
+        notes += _unit_hint(model, exact.log, section, judged, time_scale)
     if partial and absent and len(absent) * 2 >= model.n_transitions:
         notes.append(f"--partial: {len(absent)} of the model's {model.n_transitions} "
                      "transitions have no row in the log, so this verdict rests on the "
@@ -218,17 +221,31 @@ UNIT_FACTORS = {60.0: "minutes and seconds, or hours and minutes", 3600.0: "hour
 UNIT_SPREAD = 0.05
 
 
-def _unit_hint(model: Model, section: dict[str, Any], judged: list[Judged]) -> list[str]:
-    """A note when the log looks written in another time unit: every judged transition's mean
-    duration (random laws; else the log's cycle time against the model's, fixed numbers) is
-    one of :data:`UNIT_FACTORS` times the model's, or its inverse, to :data:`UNIT_SPREAD`."""
+def _unit_hint(model: Model, log: EventLog, section: dict[str, Any], judged: list[Judged],
+               time_scale: float) -> list[str]:
+    """A note when the log looks written in another time unit: the mean logged duration of
+    every transition (at least two) is one of :data:`UNIT_FACTORS` times the model's mean, or
+    its inverse, to :data:`UNIT_SPREAD` (without durations in the log: the log's cycle time
+    against a fixed model's). The scale suggested includes ``time_scale``, the one used."""
     ratios = [row["observed_mean"] / row["model_mean"]
               for j in judged if j.samples.kind == "duration" for row in j.rows
               if row.get("observed_mean") and row.get("model_mean")]
-    if not ratios and not model.is_random:
+    fixed = model.graph().duration
+    if not ratios and log.start is not None and np.any(fixed > 0):
+        # fixed durations (random laws judged above): each transition's mean logged duration
+        count = np.bincount(log.transition, minlength=model.n_transitions)
+        total = np.bincount(log.transition, weights=log.time - log.start,
+                            minlength=model.n_transitions)
+        has = (count > 0) & (fixed > 0)
+        has[model.durations.random_elements] = False
+        ratios = (total[has] / count[has] / fixed[has]).tolist()
+    what = "every judged mean duration"
+    if len(ratios) < 2 and log.start is None and not model.is_random:
         seen, expected = section.get("cycle_time_from_log"), section.get("cycle_time")
         if isinstance(seen, float) and isinstance(expected, float) and expected > 0:
-            ratios = [seen / expected]
+            ratios, what = [seen / expected], "the cycle time"
+    elif len(ratios) < 2:  # one transition alone may just be slow
+        return []
     if not ratios or min(ratios) <= 0:
         return []
     ratio = float(np.median(ratios))
@@ -237,10 +254,9 @@ def _unit_hint(model: Model, section: dict[str, Any], judged: list[Judged]) -> l
     for factor, units in UNIT_FACTORS.items():
         for scale in (factor, 1.0 / factor):
             if abs(ratio / scale - 1.0) <= UNIT_SPREAD:
-                return [f"the log's times are about {ratio:.4g} times the model's "
-                        f"({'every judged mean duration' if model.is_random else 'cycle time'}"
-                        f"): if the log and the model count time in other units ({units}), "
-                        f"judge it again with --time-scale {1.0 / scale:.10g}"]
+                return [f"the log's times are about {ratio:.4g} times the model's ({what}): "
+                        f"if the log and the model count time in other units ({units}), "
+                        f"judge it again with --time-scale {time_scale / scale:.10g}"]
     return []
 
 

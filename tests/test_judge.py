@@ -566,3 +566,35 @@ def test_a_log_on_a_grid_of_its_own_is_not_rounded(tmp_path):
     assert log.resolution == 0.5
     doc = judge_log(model, frame, precision=0.02)
     assert doc["time_resolution"] is None and not any("grid" in n for n in doc["notes"])
+
+
+def test_the_unit_hint_of_a_fixed_model_reads_each_duration(tmp_path):
+    """A fixed model: the hint reads each transition's logged durations, so one truly slow
+    station (the others exactly as the model says) gets none, a whole log in seconds of a
+    model in minutes does, and a log already read with a scale gets the scale that converts it
+    from there (Baccelli et al. 1992, §2.5: the firing times of a fixed model are exact)."""
+    path = tmp_path / "pair.toml"
+    path.write_text('[model]\nname = "pair"\ntime_unit = "min"\n'
+                    '[[transitions]]\nid = "a"\nduration = 2\n'
+                    '[[transitions]]\nid = "b"\nduration = 3\n'
+                    '[[places]]\nfrom = "a"\nto = "b"\n'
+                    '[[places]]\nfrom = "b"\nto = "a"\ntokens = 1\n', encoding="utf-8")
+    model = load_model(path)
+    frame = engine_log(model, 50, seed=1)
+    assert judge_log(model, frame)["verdict"] == "agrees"
+    in_seconds = frame.copy()
+    in_seconds[["start", "time"]] *= 60
+    doc = judge_log(model, in_seconds)
+    assert doc["verdict"] == "disagrees"
+    assert [n for n in doc["notes"] if n.endswith("--time-scale 0.01666666667")], doc["notes"]
+    in_hours_read_as_minutes = frame.copy()
+    in_hours_read_as_minutes[["start", "time"]] *= 3600  # seconds, read with a minute scale
+    doc = judge_log(model, in_hours_read_as_minutes, time_scale=1 / 60)
+    assert [n for n in doc["notes"] if n.endswith(f"--time-scale {1 / 3600:.10g}")], \
+        doc["notes"]
+    slow = frame.copy()
+    b = slow["transition"] == "b"
+    slow.loc[b, "time"] = slow.loc[b, "start"] + 180.0
+    doc = judge_log(model, slow)
+    assert doc["verdict"] == "disagrees"
+    assert not [n for n in doc["notes"] if "--time-scale" in n], doc["notes"]

@@ -127,7 +127,7 @@ def test_compiled_windows_equal_numpy_windows(setup, capacity, lookahead):
     additions."""
     g, R = setup[0], setup[1]
     eng = RandomRecursion(g, source(setup[3]), source(setup[4]), R, kernel="numpy")._engine
-    per_firing = eng.n * 12 + eng.P * 8  # bytes per firing and replication
+    per_firing = eng.n * 12 + eng.m * 8  # bytes per firing and replication
     lineage = {"memory": capacity * per_firing, "lookahead": min(lookahead, capacity)}
     assert_twins(run_engine(setup, "numba", **lineage), run_engine(setup, "numpy", **lineage))
 
