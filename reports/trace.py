@@ -257,8 +257,7 @@ def _not_judged(document: Mapping[str, Any]) -> str:
              f"{e(str(n.get('reason', '')))}" for n in document.get("not_judged") or []]
     absent = [str(a.get("id", a)) if isinstance(a, Mapping) else str(a)
               for a in document.get("absent_transitions") or []]
-    notes_ = [str(n) for n in document.get("notes") or []]
-    if not (items or absent or notes_):
+    if not (items or absent):
         return ""
     out = ""
     if absent:
@@ -272,9 +271,17 @@ def _not_judged(document: Mapping[str, Any]) -> str:
         out += ("<p>Not judged by this log:</p>\n<ul>\n"
                 + "".join(f"<li>{item}</li>\n" for item in items[:MAX_LISTED]) + "</ul>\n"
                 + _more(min(len(items), MAX_LISTED), len(items), "elements"))
-    if notes_:
-        out += "<ul>\n" + "".join(f"<li>{e(n)}</li>\n" for n in notes_) + "</ul>\n"
     return section("not-judged", "What was not judged", out)
+
+
+def _notes(document: Mapping[str, Any]) -> str:
+    """The judge's notes (a time unit to try, what --partial left out, the log's rounding),
+    next to the verdict they qualify."""
+    items = [str(n) for n in document.get("notes") or []]
+    if not items:
+        return ""
+    return section("notes", "Notes on this log",
+                   "<ul>\n" + "".join(f"<li>{e(n)}</li>\n" for n in items) + "</ul>\n")
 
 
 def _log(document: Mapping[str, Any]) -> str:
@@ -301,6 +308,7 @@ def body(document: Mapping[str, Any]) -> str:
         masthead(document),
         "<main>\n",
         _verdict(document),
+        _notes(document),
         section("log", "The log", _log(document)),
         _cycle_time(document),
         _transitions(document),

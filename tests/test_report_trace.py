@@ -77,6 +77,9 @@ def judged(tmp_path_factory: pytest.TempPathFactory) -> dict[str, dict[str, obje
                                            n_firings=1500).event_log(),
     }
     logs["missing pack"] = logs["consistent"][logs["consistent"]["transition"] != "pack"]
+    in_seconds = logs["consistent"].copy()
+    in_seconds[["start", "time"]] *= 60  # a log in seconds of a model in minutes
+    logs["in seconds"] = in_seconds
     docs = {name: trace(model_path, log, model_estimate=estimate, quiet=True)
             for name, log in logs.items()}
     docs["partial"] = trace(model_path, logs["missing pack"], model_estimate=estimate,
@@ -84,7 +87,8 @@ def judged(tmp_path_factory: pytest.TempPathFactory) -> dict[str, dict[str, obje
     return docs
 
 
-@pytest.mark.parametrize("name", ["consistent", "slow press", "missing pack", "partial"])
+@pytest.mark.parametrize("name", ["consistent", "slow press", "missing pack", "partial",
+                                  "in seconds"])
 def test_every_judgement_passes_the_checker_and_renders(judged: dict[str, dict[str, object]],
                                                         name: str) -> None:
     """Each judgement is a result document that renders, the same bytes every time."""
@@ -127,6 +131,19 @@ def test_missing_transition_and_partial(judged: dict[str, dict[str, object]]) ->
     assert "Inconsistent" in text and "pack" in text
     text, ids = _read(render_page(judged["partial"]))
     assert "not-judged" in ids and "listed as not judged (--partial)" in text
+
+
+def test_notes_stand_next_to_the_verdict(judged: dict[str, dict[str, object]]) -> None:
+    """The judge's notes (here: the --time-scale to try) have a section of their own after the
+    verdict, not among what was not judged."""
+    page = render_page(judged["in seconds"])
+    text, ids = _read(page)
+    assert "Inconsistent" in text and "notes" in ids
+    assert ids.index("notes") < ids.index("log")
+    assert "judge it again with --time-scale 0.01666666667" in text
+    if "not-judged" in ids:
+        start = page.index('id="not-judged"')
+        assert "--time-scale" not in page[start:]
 
 
 def test_trace_report_from_the_command_line(tmp_path: Path) -> None:
