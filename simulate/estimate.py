@@ -53,6 +53,7 @@ __all__ = [
     "mser5",
     "replication_interval",
     "sequential_precision",
+    "student_quantile",
     "welch_average",
 ]
 
@@ -127,13 +128,24 @@ class Interval:
         return asdict(self)
 
 
+def student_quantile(p: float, df: ArrayLike) -> np.ndarray:
+    """Quantile ``p`` of Student's t with ``df`` degrees of freedom: ``scipy.special.stdtrit``,
+    which ``scipy.stats.t.ppf`` calls (the same numbers) without the 0.9 s that importing
+    scipy.stats costs every run of ``analyze``, ``check`` and ``sweep``.
+
+    >>> round(float(student_quantile(0.975, 9)), 4)
+    2.2622
+    """
+    from scipy.special import stdtrit
+
+    return stdtrit(df, p)
+
+
 def _t_interval(values: NDArray[np.float64], level: float, method: str) -> Interval:
     n = values.size
     mean = float(values.mean())
     sd = float(values.std(ddof=1))
-    from scipy import stats  # 0.5 s to import: only when an interval is built
-
-    half = float(stats.t.ppf(0.5 + level / 2.0, n - 1)) * sd / math.sqrt(n)
+    half = float(student_quantile(0.5 + level / 2.0, n - 1)) * sd / math.sqrt(n)
     if mean != 0.0:
         rel = half / abs(mean)
     else:

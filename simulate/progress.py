@@ -47,9 +47,9 @@ class ProgressLine:
         mean = float(np.mean(values))
         text = f"{engine}: {replications} replications, cycle time {mean:.6g}"
         if values.size >= 2 and mean:
-            from scipy import stats
+            from .estimate import student_quantile
 
-            half = stats.t.ppf(0.975, values.size - 1) * np.std(values, ddof=1) / np.sqrt(
+            half = student_quantile(0.975, values.size - 1) * np.std(values, ddof=1) / np.sqrt(
                 values.size)
             text += f" ±{100 * half / abs(mean):.2g} %"
             if self.target:

@@ -137,12 +137,12 @@ def segment_bounds(checkpoints: np.ndarray, elements: int = 1, columns: int = 1)
 
 
 def _t_half_width(values: np.ndarray) -> np.ndarray:
-    from scipy import stats
+    from .estimate import student_quantile
 
     r = values.shape[0]
     if r < 2:
         return np.full(values.shape[1], np.nan)
-    return stats.t.ppf(0.975, r - 1) * values.std(axis=0, ddof=1) / math.sqrt(r)
+    return student_quantile(0.975, r - 1) * values.std(axis=0, ddof=1) / math.sqrt(r)
 
 
 def from_paths(graph: EventGraph, paths: PathSums, fronts: list[np.ndarray],

@@ -125,7 +125,7 @@ def random_unbounded(model: Model, seed: int, replications: Sequence[int], firin
     ``by_transition`` are the model run's cycle times of every transition, for the growth
     rate of unstable places.
     """
-    from scipy import stats
+    from .estimate import student_quantile
 
     graph = model.graph()
     parts = components(graph)
@@ -143,7 +143,7 @@ def random_unbounded(model: Model, seed: int, replications: Sequence[int], firin
     for c in parts.order:
         for u in preds[c]:
             np.maximum(reach[:, c], reach[:, u], out=reach[:, c])
-    quantile = stats.t.ppf(0.975, len(reps) - 1) if len(reps) > 1 else np.inf
+    quantile = student_quantile(0.975, len(reps) - 1) if len(reps) > 1 else np.inf
     out = []
     for p in parts.crossing.tolist():
         a = int(parts.labels[graph.source[p]])
