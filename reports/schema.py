@@ -487,6 +487,12 @@ def _sweep(document: Mapping[str, Any], ids: set[str]) -> None:
             raise ReportError(f"{item}.cycle_time", "is required at a live point")
 
 
+def _lists_every_transition(model: Mapping[str, Any]) -> bool:
+    """Whether the model section lists all the model's transitions: a large model lists only
+    its first ones (``model.elements_listed``), and its ids can then not be checked by name."""
+    return model.get("n_transitions") in (None, len(model["transitions"]))
+
+
 def _structure(document: Any) -> None:
     """The rules without which nothing can be looked up: kind, version, model, ids."""
     if not isinstance(document, Mapping):
@@ -516,9 +522,7 @@ def _structure(document: Any) -> None:
             raise ReportError(f"model.transitions[{i}].id",
                               f"the id {t['id']!r} is used twice; ids must be unique")
         seen.add(t["id"])
-    # A large model lists only its first transitions and places (model.elements_listed):
-    # a listed place may then join transitions that are not listed.
-    complete = model.get("n_transitions") in (None, len(model["transitions"]))
+    complete = _lists_every_transition(model)  # else a listed place may join unlisted ones
     for i, p in enumerate(model["places"]):
         if not isinstance(p, Mapping):
             raise ReportError(f"model.places[{i}]", "every place is an object")
@@ -602,8 +606,7 @@ def check_document(document: Any) -> None:
     elif not document.get("analysis") and not document.get("simulation"):
         raise ReportError("analysis", "a document needs an analysis or a simulation section")
     ids = {str(t["id"]) for t in model["transitions"]}
-    listed = len(model["transitions"])
-    complete = model.get("n_transitions") in (None, listed)
+    complete = _lists_every_transition(model)
     n_places = max(len(model["places"]), model.get("n_places") or 0)
     for key, check in _sections(ids, n_places, complete).items():
         if document.get(key) is not None:
