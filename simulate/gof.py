@@ -296,9 +296,9 @@ def detectable_change_t(se: float, df: float, reference: float, level: float,
     r""":math:`(t_{1-a/2,\nu} + t_{\text{power},\nu})\, s / |\text{reference}|`: the smallest
     relative change of ``reference`` a two-sided t test with standard error ``se`` detects with
     probability ``power``; None when ``reference`` is 0."""
-    from scipy.stats import t as student
+    from .estimate import student_quantile
 
     if reference == 0 or not math.isfinite(df):
         return None
-    q = float(student.ppf(1.0 - level / 2.0, df) + student.ppf(power, df))
+    q = float(student_quantile(1.0 - level / 2.0, df) + student_quantile(power, df))
     return q * se / abs(reference)

@@ -33,6 +33,7 @@ from typing import TYPE_CHECKING, Any
 import numpy as np
 
 from .errors import ArgumentError, ModelError
+from .estimate import student_quantile
 from .eventlog import EventLog, read_log
 from .gof import POWER, detectable_change_mean, detectable_change_t, holm, welch_t
 from .logcycle import (
@@ -390,9 +391,7 @@ def _cycle_time(model: Model, log: EventLog, exact: ExactCheck, *, precision: fl
         members = np.flatnonzero(labels == c)
         name = _component_name(model, members)
         lam, lam_se = float(model_estimate.estimate[c]), float(model_estimate.se[c])
-        from scipy.stats import t as student
-
-        lam_half = float(student.ppf(0.975, model_estimate.df)) * lam_se
+        lam_half = float(student_quantile(0.975, model_estimate.df)) * lam_se
         entry: dict[str, Any] = {"component": name,
                                  "transitions": [model.transition_ids[t] for t in members],
                                  "model": lam, "model_ci": [lam - lam_half, lam + lam_half]}

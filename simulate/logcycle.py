@@ -38,7 +38,7 @@ from typing import Any
 import numpy as np
 
 from ..algebra.eventgraph import strongly_connected_components
-from .estimate import batch_means, choose_batch_count, mser
+from .estimate import batch_means, choose_batch_count, mser, student_quantile
 from .eventlog import KEY_LIMIT, EventLog
 from .modelfile import Model
 
@@ -217,8 +217,6 @@ def _series(log: EventLog, labels: np.ndarray, wanted: np.ndarray, present: np.n
 def log_cycle_times(log: EventLog, labels: np.ndarray, wanted: np.ndarray,
                     present: np.ndarray) -> LogCycleTime:
     """The log's cycle time of each wanted component (see the module doc)."""
-    from scipy.stats import t as student
-
     # in units of the latest time: sums and squares cannot overflow, whatever the time unit
     scale = float(log.time.max()) or 1.0
     by_comp: dict[int, list[tuple[np.ndarray, np.ndarray]]] = {int(c): [] for c in wanted}
@@ -234,7 +232,7 @@ def log_cycle_times(log: EventLog, labels: np.ndarray, wanted: np.ndarray,
         if len(runs) == 1:
             result = _one_run(c, *runs[0])
         else:
-            result = _replications(c, runs, student)
+            result = _replications(c, runs)
         if isinstance(result, str):
             skipped[c] = result
         else:
@@ -256,9 +254,7 @@ def _one_run(c: int, ks: np.ndarray, ys: np.ndarray) -> ComponentCycleTime | str
                 f"{MIN_BATCH_VALUES} left for batch means")
     choice = choose_batch_count(rest)
     iv = batch_means(rest, n_batches=choice.n_batches)
-    from scipy.stats import t as student
-
-    se = iv.half_width / float(student.ppf(0.975, iv.n - 1))
+    se = iv.half_width / float(student_quantile(0.975, iv.n - 1))
     note = None
     if not choice.accepted or iv.batches_correlated:
         note = ("the batch means are still correlated: the log is short for its "
@@ -271,8 +267,7 @@ def _one_run(c: int, ks: np.ndarray, ys: np.ndarray) -> ComponentCycleTime | str
                               int(ks.size), note)
 
 
-def _replications(c: int, runs: list[tuple[np.ndarray, np.ndarray]],
-                  student: Any) -> ComponentCycleTime | str:
+def _replications(c: int, runs: list[tuple[np.ndarray, np.ndarray]]) -> ComponentCycleTime | str:
     common = min(ks.size for ks, _ in runs)
     mean_inc = np.mean([np.diff(ys[:common]) / np.diff(ks[:common]) for ks, ys in runs], axis=0)
     deleted = mser(mean_inc, 5).deleted if mean_inc.size >= 10 else 0
@@ -286,7 +281,7 @@ def _replications(c: int, runs: list[tuple[np.ndarray, np.ndarray]],
     v = np.asarray(values)
     n = v.size
     se = float(v.std(ddof=1)) / math.sqrt(n)
-    half = float(student.ppf(0.975, n - 1)) * se
+    half = float(student_quantile(0.975, n - 1)) * se
     note = None if n == len(runs) else (f"{len(runs) - n} replications too short after the "
                                         "warm-up were left out")
     return ComponentCycleTime(c, float(v.mean()), se, float(n - 1), float(v.mean()) - half,

@@ -65,6 +65,7 @@ from typing import Any
 import numpy as np
 
 from .durations import Distribution, SpecTable
+from .estimate import student_quantile
 from .gof import chi_square, ks_grouped, ks_p_value, window_mass, z_mean
 from .modelfile import Model
 from .tracecheck import ExactCheck, float_margin
@@ -164,8 +165,6 @@ def _observed_durations(model: Model, exact: ExactCheck) -> tuple[np.ndarray, np
 
 def judge_durations(model: Model, exact: ExactCheck, *, seed: int = 1) -> Judged:
     """Tests of the durations of every transition with a random law (see the module doc)."""
-    from scipy.stats import t as student
-
     log, r = exact.log, exact.resolution
     rows, d, source = _observed_durations(model, exact)
     t = log.transition[rows]
@@ -200,7 +199,7 @@ def judge_durations(model: Model, exact: ExactCheck, *, seed: int = 1) -> Judged
         mean = sums[e] / n
         m1 = mean / unit
         sd = unit * math.sqrt(max(squares[e] / n - m1 * m1, 0.0) * n / (n - 1))
-        half = float(student.ppf(0.975, n - 1)) * sd / math.sqrt(n)
+        half = float(student_quantile(0.975, n - 1)) * sd / math.sqrt(n)
         row.update(observed_mean=mean, observed_sd=sd, observed_mean_ci=[mean - half,
                                                                          mean + half])
         # rounded times blur each duration by two rounding errors, uniform on a grid step:
