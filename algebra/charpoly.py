@@ -58,6 +58,7 @@ from typing import Any
 import numpy as np
 from numpy.typing import ArrayLike
 
+from .assignment import best_assignment
 from .exceptions import InvalidArray, MaxPlusError, OutOfRange
 
 __all__ = [
@@ -135,13 +136,10 @@ def _best_permutation(W: np.ndarray) -> np.ndarray | None:
     # finite permutation: the solver prefers finite ones, and meets `big` only when forced.
     # No larger than needed, so that the solver's sums keep the digits of the real entries.
     big = lo - n * (hi - lo) - scale
-    # Imported here: scipy.optimize costs ~0.4 s at start-up and the CLI may never need it.
-    from scipy.optimize import linear_sum_assignment
-
-    rows, cols = linear_sum_assignment(np.where(finite, W, big), maximize=True)
-    if not finite[rows, cols].all():
+    cols = best_assignment(np.where(finite, W, big))
+    if not finite[np.arange(n), cols].all():
         return None
-    return cols.astype(np.int64)
+    return cols
 
 
 def tropical_permanent(A: ArrayLike) -> float:
@@ -169,9 +167,9 @@ def tropical_permanent(A: ArrayLike) -> float:
 
     Notes
     -----
-    One call of ``scipy.optimize.linear_sum_assignment(maximize=True)``, ``O(n^3)``. ε entries
-    are replaced by a finite number low enough that no optimal permutation uses one unless all
-    permutations must; the answer is then summed from the original entries.
+    One assignment problem (:func:`~cyclecheck.algebra.assignment.best_assignment`),
+    ``O(n^3)``. ε entries are replaced by a finite number low enough that no optimal permutation
+    uses one unless all permutations must; the answer is then summed from the original entries.
 
     References
     ----------
