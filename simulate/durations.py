@@ -554,13 +554,7 @@ class Sampler:
     def _prepare(self, kind: int, elements: Sequence[int], b: int) -> None:
         """Cache entries for block ``b`` of ``elements``, their generator states derived at
         once; entries already there are kept (and marked as recently used)."""
-        missing = []
-        for e in elements:
-            hit = self._cache.get((kind, e))
-            if hit is not None and hit.b == b:
-                self._cache.move_to_end((kind, e))
-            else:
-                missing.append(e)
+        missing = self._missing(kind, elements, b)
         if not missing:
             return
         big = max(self.replication, max(missing), b) >= 2**32
@@ -571,11 +565,53 @@ class Sampler:
             keys = np.empty((len(missing), 4), dtype=np.uint64)
             keys[:, 0], keys[:, 1], keys[:, 2], keys[:, 3] = self.replication, kind, missing, b
             states = pcg64_states(self.seed, keys)
-        for e, st in zip(missing, states, strict=True):
+        self._install(kind, missing, b, states)
+
+    def _missing(self, kind: int, elements: Sequence[int], b: int) -> list[int]:
+        """The elements without a cache entry for block ``b``; the others are marked as
+        recently used."""
+        missing = []
+        for e in elements:
+            hit = self._cache.get((kind, e))
+            if hit is not None and hit.b == b:
+                self._cache.move_to_end((kind, e))
+            else:
+                missing.append(e)
+        return missing
+
+    def _install(self, kind: int, elements: Sequence[int], b: int,
+                 states: Sequence[tuple[int, int]]) -> None:
+        for e, st in zip(elements, states, strict=True):
             self._cache[(kind, e)] = BlockStream(b, st, BLOCK)
             self._cache.move_to_end((kind, e))
         while len(self._cache) > self._max_cached:
             self._cache.popitem(last=False)
+
+    @staticmethod
+    def prepare_together(samplers: Sequence[Sampler], kind: int, first: int) -> None:
+        """Derive the generator states of the block holding firing ``first``, for every random
+        element of every sampler (replications of one seed), in one vectorized pass.
+
+        Speed only: :meth:`duration_block` and :meth:`hold_block` derive the states a
+        sampler lacks themselves, with the same numbers; a run of a few replications of a
+        small model would otherwise derive them a few keys at a time, at a fixed cost per call.
+        """
+        b = (_count(first, "first", 1) - 1) // BLOCK
+        todo = []
+        for s in samplers:
+            table = s.durations if kind == TRANSITION else s.holds
+            randoms = table.random_elements.tolist()
+            if randoms and len(randoms) <= s._max_cached and s._prepared.get(kind) != b:
+                todo.append((s, s._missing(kind, randoms, b)))
+        rows = [(s.replication, kind, e, b) for s, missing in todo for e in missing]
+        if len({s.seed for s, _ in todo}) != 1 or not rows or max(map(max, rows)) >= 2**32:
+            return  # nothing to do, or not one seed, or keys for numpy's SeedSequence
+        states = pcg64_states(todo[0][0].seed, np.array(rows, dtype=np.uint64))
+        i = 0
+        for s, missing in todo:
+            s._install(kind, missing, b, states[i : i + len(missing)])
+            s._prepared[kind] = b
+            i += len(missing)
 
     def _drawn(self, kind: int, table: SpecTable, e: int, b: int, upto: int) -> np.ndarray:
         """Block ``b`` of element ``e`` drawn at least up to entry ``upto`` (a view of the

@@ -36,7 +36,7 @@ from ..algebra.lineage import LINEAGE_MEMORY, LineageSweep, PathSums
 from ..algebra.recursion import RandomRecursion, choose_kernel, load_kernel, within
 from ..algebra.spectral import howard
 from ..algebra.stability import components as graph_components
-from .durations import BLOCK
+from .durations import BLOCK, PLACE, TRANSITION, Sampler
 from .errors import ArgumentError, ModelError
 from .estimate import (
     Interval,
@@ -302,6 +302,8 @@ def _recursion_group(model: Model, seed: int, replications: Sequence[int], firin
 
         def fetch(first: int, count: int) -> np.ndarray:
             out = buffer[:count]
+            Sampler.prepare_together(samplers, TRANSITION if kind == "duration_block" else PLACE,
+                                     first)
             for i, s in enumerate(samplers):
                 out[:, i, :] = getattr(s, kind)(first, count)
             return out

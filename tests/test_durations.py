@@ -290,6 +290,28 @@ def test_random_access_equals_contract(seed, r, requests):
                 assert got[k - first] == _contract_draw(specs, seed, r, kind, e, k)
 
 
+@settings(max_examples=25, deadline=None)
+@given(seed=st.integers(0, 2**64), reps=st.lists(st.integers(0, 2**33), min_size=1, max_size=12,
+                                                  unique=True),
+       first=st.integers(1, 3 * BLOCK), count=st.integers(1, 300))
+def test_states_prepared_together_equal_the_contract(seed, reps, first, count):
+    """Generator states derived for many replications at once (what a run of replications
+    does) give the numbers of the spawn-key contract, as each sampler alone does; replication
+    numbers beyond 32 bits leave the derivation to each sampler."""
+    together = [Sampler(SPECS_T, SPECS_P, seed, r) for r in reps]
+    for kind in (0, 1):
+        Sampler.prepare_together(together, kind, first)
+    for s in together:
+        alone = Sampler(SPECS_T, SPECS_P, seed, s.replication)
+        for name in ("duration_block", "hold_block"):
+            got = getattr(s, name)(first, count)
+            np.testing.assert_array_equal(got, getattr(alone, name)(first, count))
+        k = first + count - 1
+        assert s.duration_block(k, 1)[0, 2] == _contract_draw(SPECS_T, seed, s.replication,
+                                                              0, 2, k)
+        assert s.hold_block(k, 1)[0, 3] == _contract_draw(SPECS_P, seed, s.replication, 1, 3, k)
+
+
 def test_sequential_equals_bulk_and_blocks():
     """One firing at a time (the SimPy engine), one long request, the all-element blocks and
     requests in reverse order give the same numbers, even with a cache that keeps nothing."""
