@@ -98,7 +98,8 @@ class GraphAnalysis:
 
 
 def analyze_graph(
-    graph: EventGraph, *, charpoly: bool = True, transient_firings: int | None = None
+    graph: EventGraph, *, charpoly: bool = True, transient_firings: int | None = None,
+    threads: int | None = None,
 ) -> GraphAnalysis:
     """Cycle times, certificate, critical graph, cyclicity, slack, schedule, χ and transient.
 
@@ -113,6 +114,8 @@ def analyze_graph(
         Horizon for measuring the transient; by default as many firings as
         :data:`TRANSIENT_WORK_LIMIT` allows, between 20 and 2000, and none at all (not
         measured) above :data:`TRANSIENT_MAX_PLACES` places.
+    threads : int, optional
+        Threads of Howard's compiled iteration on large graphs (default: every core).
 
     Raises
     ------
@@ -122,11 +125,12 @@ def analyze_graph(
         If the certificate fails (a bug, never an input error).
     """
     with np.errstate(over="ignore"):  # near the float limit: OutOfRange, or saturated scales
-        return _analyze(graph, charpoly, transient_firings)
+        return _analyze(graph, charpoly, transient_firings, threads)
 
 
-def _analyze(graph: EventGraph, charpoly: bool, transient_firings: int | None) -> GraphAnalysis:
-    result = howard(graph)
+def _analyze(graph: EventGraph, charpoly: bool, transient_firings: int | None,
+             threads: int | None) -> GraphAnalysis:
+    result = howard(graph, threads=threads)
     cert = certify(graph, result)
     if not cert.holds:
         raise MaxPlusError(f"certificate failed: {cert}")
