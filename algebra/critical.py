@@ -28,9 +28,8 @@ import math
 from dataclasses import dataclass
 
 import numpy as np
-from scipy.sparse import csr_matrix
-from scipy.sparse.csgraph import breadth_first_order, connected_components, dijkstra
 
+from .digraph import breadth_first, shortest_distances, strong_components
 from .eventgraph import EventGraph, strongly_connected_components
 from .spectral import KERNEL_MIN_PLACES, HowardResult, _kernels, _policy_cycles, chain_sums
 
@@ -89,8 +88,7 @@ def critical_places(graph: EventGraph, result: HowardResult) -> np.ndarray:
     )
     n = graph.n_transitions
     src, dst = graph.source[tight], graph.target[tight]
-    adj = csr_matrix((np.ones(src.size, dtype=np.int8), (src, dst)), shape=(n, n))
-    count, labels = connected_components(adj, directed=True, connection="strong")
+    count, labels = strong_components(n, src, dst)
     sizes = np.bincount(labels, minlength=count)
     in_circuit = (labels[src] == labels[dst]) & ((sizes[labels[src]] > 1) | (src == dst))
     mask = np.zeros(graph.n_places, dtype=bool)
@@ -124,8 +122,7 @@ def cyclicity(graph: EventGraph, result: HowardResult, critical: np.ndarray | No
     n = graph.n_transitions
     src, dst = graph.source[critical], graph.target[critical]
     tok = graph.tokens[critical]
-    adj = csr_matrix((np.ones(src.size, dtype=np.int8), (src, dst)), shape=(n, n))
-    _, labels = connected_components(adj, directed=True, connection="strong")
+    _, labels = strong_components(n, src, dst)
     inside = labels[src] == labels[dst]
     src, dst, tok = src[inside], dst[inside], tok[inside]
     if src.size == 0:
@@ -136,11 +133,10 @@ def cyclicity(graph: EventGraph, result: HowardResult, critical: np.ndarray | No
     first_place: dict[tuple[int, int], int] = {}
     for s, t, m in zip(src.tolist(), dst.tolist(), tok.tolist(), strict=True):
         first_place.setdefault((s, t), m)
-    sub = csr_matrix((np.ones(src.size, dtype=np.int8), (src, dst)), shape=(n, n))
     comps = np.unique(labels[src])
     for comp in comps.tolist():
         start = int(src[labels[src] == comp][0])
-        nodes, preds = breadth_first_order(sub, start, directed=True, return_predecessors=True)
+        nodes, preds = breadth_first(n, src, dst, start)
         for node in nodes[1:].tolist():
             parent[node] = preds[node]
             link_tokens[node] = first_place[(int(preds[node]), node)]
@@ -206,9 +202,8 @@ def slack(graph: EventGraph, result: HowardResult) -> Slack:
         key = src * n + dst
         order = np.lexsort((ln, key))
         keep = order[np.r_[True, key[order][1:] != key[order][:-1]]]
-        adj = csr_matrix((ln[keep], (src[keep], dst[keep])), shape=(n, n))
         targets = np.unique(dst)
-        dist = dijkstra(adj, directed=True, indices=targets)
+        dist = shortest_distances(n, src[keep], dst[keep], ln[keep], targets)
         row = np.searchsorted(targets, dst)
         place_slack[idx] = ln + dist[row, src]
     else:

@@ -33,9 +33,8 @@ from dataclasses import dataclass, field
 from functools import cached_property
 
 import numpy as np
-from scipy.sparse import csr_matrix
-from scipy.sparse.csgraph import connected_components
 
+from .digraph import strong_components
 from .exceptions import GraphStructureError, NotLive, Unfed
 
 __all__ = [
@@ -164,11 +163,7 @@ class EventGraph:
     def components(self) -> tuple[int, np.ndarray]:
         """Strongly connected components, computed once (see
         :func:`strongly_connected_components`)."""
-        n = self.n_transitions
-        adj = csr_matrix(
-            (np.ones(self.n_places, dtype=np.int8), (self.source, self.target)), shape=(n, n)
-        )
-        count, labels = connected_components(adj, directed=True, connection="strong")
+        count, labels = strong_components(self.n_transitions, self.source, self.target)
         labels.setflags(write=False)
         return int(count), labels
 
@@ -236,9 +231,7 @@ def find_token_free_circuit(graph: EventGraph) -> list[int] | None:
     loops = src[src == dst]
     if loops.size:
         return [int(loops[0])]
-    n = graph.n_transitions
-    adj = csr_matrix((np.ones(src.size, dtype=np.int8), (src, dst)), shape=(n, n))
-    count, labels = connected_components(adj, directed=True, connection="strong")
+    count, labels = strong_components(graph.n_transitions, src, dst)
     sizes = np.bincount(labels, minlength=count)
     cyclic = np.flatnonzero(sizes > 1)
     if cyclic.size == 0:

@@ -41,9 +41,8 @@ References
 from __future__ import annotations
 
 import numpy as np
-from scipy.sparse import csr_matrix
-from scipy.sparse.csgraph import connected_components
 
+from .digraph import strong_components
 from .eventgraph import EventGraph, find_token_free_circuit
 from .exceptions import InvalidArray, NotLive, OutOfRange, PositiveCircuit
 
@@ -396,8 +395,7 @@ def max_cycle_mean_karp(a: object) -> np.ndarray:
         return lam
     finite = np.isfinite(A)
     heads, tails = np.nonzero(finite)
-    adj = csr_matrix((np.ones(heads.size, dtype=np.int8), (tails, heads)), shape=(n, n))
-    count, labels = connected_components(adj, directed=True, connection="strong")
+    count, labels = strong_components(n, tails, heads)
     for comp in range(count):
         nodes = np.flatnonzero(labels == comp)
         W = A[np.ix_(nodes, nodes)]

@@ -33,10 +33,9 @@ from __future__ import annotations
 from dataclasses import dataclass
 
 import numpy as np
-from scipy.sparse import csr_matrix
-from scipy.sparse.csgraph import connected_components, dijkstra
 
 from .critical import RTOL, critical_places
+from .digraph import shortest_distances, strong_components
 from .eventgraph import EventGraph
 from .spectral import HowardResult
 
@@ -113,8 +112,7 @@ def fixed_sensitivity(graph: EventGraph, result: HowardResult,
     inside = np.zeros(0, dtype=np.int64)
     if idx.size:
         src, dst = graph.source[idx], graph.target[idx]
-        adj = csr_matrix((np.ones(idx.size, dtype=np.int8), (src, dst)), shape=(n, n))
-        _, labels = connected_components(adj, directed=True, connection="strong")
+        _, labels = strong_components(n, src, dst)
         part = labels[src]  # every critical place lies on a circuit: both ends in one part
         arcs = np.bincount(part)
         nodes = np.bincount(labels[np.unique(dst)], minlength=arcs.size)
@@ -153,18 +151,16 @@ def _fewest_tokens(graph: EventGraph, part: np.ndarray) -> np.ndarray:
     nodes, inv = np.unique(np.r_[src, dst], return_inverse=True)
     s, d = inv[: part.size], inv[part.size :]
     k = nodes.size
-    # parallel places: the one with the fewest tokens (a csr matrix would add them up)
+    # parallel places: the one with the fewest tokens; token-free places are arcs too
     key = s * k + d
     order = np.lexsort((tok, key))
     keep = order[np.r_[True, key[order][1:] != key[order][:-1]]]
-    # explicit zeros stay edges of a csr matrix built this way: token-free places count
-    adj = csr_matrix((tok[keep].astype(np.float64), (s[keep], d[keep])), shape=(k, k))
     out = np.empty(part.size)
     rows = max(1, _DISTANCE_BLOCK // k)
     targets = np.unique(d)
     for a in range(0, targets.size, rows):
         chunk = targets[a : a + rows]
-        dist = dijkstra(adj, directed=True, indices=chunk)
+        dist = shortest_distances(k, s[keep], d[keep], tok[keep].astype(np.float64), chunk)
         sel = np.flatnonzero(np.isin(d, chunk))
         out[sel] = tok[sel] + dist[np.searchsorted(chunk, d[sel]), s[sel]]
     return out

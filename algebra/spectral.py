@@ -53,9 +53,8 @@ import math
 from dataclasses import dataclass
 
 import numpy as np
-from scipy.sparse import csr_matrix
-from scipy.sparse.csgraph import breadth_first_order
 
+from .digraph import breadth_first
 from .eventgraph import EventGraph, check_live
 from .exceptions import MaxPlusError, OutOfRange
 
@@ -233,8 +232,7 @@ class _SortedPlaces:
         # Super-source n, linked to every top transition; the graph's places after it.
         rows = np.concatenate([np.full(int(top.sum()), n), self.source])
         cols = np.concatenate([np.flatnonzero(top), self.target])
-        graph = csr_matrix((np.ones(rows.size, dtype=np.int8), (rows, cols)), shape=(n + 1, n + 1))
-        _, pred = breadth_first_order(graph, n, directed=True, return_predecessors=True)
+        _, pred = breadth_first(n + 1, rows, cols, n)
         moved = np.flatnonzero((pred[:n] >= 0) & ~top)
         if moved.size == 0:
             return policy
