@@ -19,7 +19,7 @@ import json
 import math
 import platform
 import sys
-from collections.abc import Mapping
+from collections.abc import Mapping, Sequence
 from importlib import metadata
 from pathlib import Path
 from typing import TYPE_CHECKING, Any
@@ -83,6 +83,22 @@ def finite_or_none(x: float | None) -> float | None:
     return x if math.isfinite(x) else None
 
 
+def _floats(values: Any, finite: bool = False) -> list[float | None]:
+    """``values`` as Python floats, one ``tolist`` instead of a call per element; with
+    ``finite``, None where JSON has no number (as :func:`finite_or_none`)."""
+    array = np.asarray(values, dtype=np.float64)
+    out: list[float | None] = array.tolist()
+    if finite:
+        for i in np.flatnonzero(~np.isfinite(array)).tolist():
+            out[i] = None
+    return out
+
+
+def _by_id(ids: Sequence[str], values: Any, finite: bool = False) -> dict[str, float | None]:
+    """``{id: value}`` in model order (see :func:`_floats`)."""
+    return dict(zip(ids, _floats(values, finite), strict=True))
+
+
 def _throughput(cycle_time: float) -> float | None:
     return 1.0 / cycle_time if cycle_time > 0 else None
 
@@ -134,11 +150,11 @@ def analysis_section(model: Model, analysis: GraphAnalysis) -> dict[str, Any]:
     hw = analysis.howard
     lam = analysis.cycle_time
     cert = analysis.certificate
-    by_transition = {ids[t]: float(hw.cycle_time[t]) for t in range(graph.n_transitions)}
+    by_transition = _by_id(ids, hw.cycle_time)
     circuits = [[ids[t] for t in c.transitions] for c in hw.circuits]
     circuit_places = [list(c.places) for c in hw.circuits]
-    slack_t = {ids[t]: finite_or_none(s) for t, s in enumerate(analysis.slack.transitions)}
-    slack_p = [finite_or_none(s) for s in analysis.slack.places[:MAX_LISTED]]
+    slack_t = _by_id(ids, analysis.slack.transitions, finite=True)
+    slack_p = _floats(analysis.slack.places[:MAX_LISTED], finite=True)
     doc: dict[str, Any] = {
         "cycle_time": lam,
         "cycle_time_ci": [lam, lam],
@@ -156,7 +172,7 @@ def analysis_section(model: Model, analysis: GraphAnalysis) -> dict[str, Any]:
         "critical_circuit_places": circuit_places,
         "critical_circuit_ratios": [c.ratio for c in hw.circuits],
         "critical_places": np.flatnonzero(analysis.critical).tolist()[:MAX_LISTED],
-        "eigenvector": {ids[t]: float(hw.bias[t]) for t in range(graph.n_transitions)},
+        "eigenvector": _by_id(ids, hw.bias),
         "slack": {"transitions": slack_t, "places": slack_p, "exact": analysis.slack.exact},
         "certificate": {
             "checked": cert.holds,
@@ -207,7 +223,7 @@ def estimate_section(model: Model, est: Estimate, lower: float) -> dict[str, Any
         "cycle_time": iv.estimate,
         "cycle_time_ci": [iv.low, iv.high],
         "throughput": 1.0 / iv.estimate if iv.estimate > 0 else None,
-        "cycle_time_by_transition": {ids[t]: float(v) for t, v in enumerate(est.by_transition)},
+        "cycle_time_by_transition": _by_id(ids, est.by_transition),
         "critical_circuits": [],
         "bounds": {
             "lower": lower,
@@ -277,8 +293,8 @@ def utilization_section(model: Model, per_server: np.ndarray,
     ids = model.transition_ids
     servers = self_loop_servers(model.graph())
     out: dict[str, Any] = {
-        "utilization": {ids[t]: finite_or_none(u) for t, u in enumerate(per_server)},
-        "servers": {ids[t]: (int(s) if s > 0 else None) for t, s in enumerate(servers)},
+        "utilization": _by_id(ids, per_server, finite=True),
+        "servers": dict(zip(ids, np.where(servers > 0, servers, None).tolist(), strict=True)),
         "utilization_definition": (
             "share of the time each of the transition's servers is busy firing: mean busy "
             "servers / servers, the servers being the tokens of its self-loop (n servers take "
@@ -286,7 +302,7 @@ def utilization_section(model: Model, per_server: np.ndarray,
             "as tokens allow (busy_servers gives their mean number in progress)"),
     }
     if busy is not None:
-        out["busy_servers"] = {ids[t]: float(b) for t, b in enumerate(busy)}
+        out["busy_servers"] = _by_id(ids, busy)
     return out
 
 
@@ -337,8 +353,8 @@ def sensitivity_section(model: Model, sens: SensitivityEstimate, critical_ids: s
     if sens.criticality is not None:
         crit = sens.criticality
         out["criticality"] = {
-            "places": [finite_or_none(c) for c in crit[n : n + MAX_LISTED]],
-            "transitions": {model.transition_ids[t]: finite_or_none(crit[t]) for t in range(n)},
+            "places": _floats(crit[n : n + MAX_LISTED], finite=True),
+            "transitions": _by_id(model.transition_ids, crit[:n], finite=True),
             "definition": ("share of the element's firings on the critical path of the cycle "
                            "time (for a place: of its target's firings that it set on that "
                            "path)"),
@@ -479,10 +495,9 @@ def _schedule_figure(model: Model, exact: GraphAnalysis) -> dict[str, Any]:
     g = exact.graph
     return {
         "cycle_time": exact.cycle_time,
-        "start": {ids[t]: float(exact.start[t]) for t in range(g.n_transitions)},
-        "duration": {ids[t]: float(g.duration[t]) for t in range(g.n_transitions)},
-        "cycle_time_by_transition": {ids[t]: float(exact.howard.cycle_time[t])
-                                     for t in range(g.n_transitions)},
+        "start": _by_id(ids, exact.start),
+        "duration": _by_id(ids, g.duration),
+        "cycle_time_by_transition": _by_id(ids, exact.howard.cycle_time),
     }
 
 
@@ -492,7 +507,7 @@ def _fixed_simulation_section(model: Model, run: FixedRun) -> dict[str, Any]:
     lam = float(run.cycle_time.max())
     return {
         "cycle_time": lam, "cycle_time_ci": [lam, lam], "throughput": _throughput(lam),
-        "cycle_time_by_transition": {ids[t]: float(v) for t, v in enumerate(run.cycle_time)},
+        "cycle_time_by_transition": _by_id(ids, run.cycle_time),
         "critical_circuits": [], "bounds": None,
         "firings_simulated": int(run.firings * model.n_transitions),
         "cyclicity": run.span, "exact": True, "time_unit": model.time_unit, "engine": "simpy",
