@@ -32,6 +32,7 @@ from ..algebra.spectral import HowardResult, howard
 from ..reports.schema import DOCUMENT_KIND, SCHEMA_VERSION
 from .estimate import replication_interval
 from .experiment import Estimate
+from .jsontext import CompactEncoder
 from .modelfile import Model
 from .sensitivity import (
     SensitivityEstimate,
@@ -737,10 +738,12 @@ def dumps(document: Mapping[str, Any]) -> str:
 
     Indented (two spaces) for people to read; a large document (the analysis of 10^5
     transitions, tens of MB) puts each top-level key on its own line with a compact value:
-    Python's encoder is compiled only for unindented text, which is 5-10 times faster there.
+    Python's encoder is compiled only for unindented text, which is 5-10 times faster there,
+    and the large maps by transition are written from arrays (:mod:`.jsontext`, the same text).
     """
     options: dict[str, Any] = {"allow_nan": False, "default": _json_default}
-    lines = [f"  {json.dumps(str(key))}: {json.dumps(value, separators=(',', ':'), **options)}"
+    encoder = CompactEncoder(_json_default)
+    lines = [f"  {json.dumps(str(key))}: {encoder.encode(value)}"
              for key, value in document.items()]
     if sum(map(len, lines)) <= PRETTY_LIMIT:
         return json.dumps(document, indent=2, **options)
