@@ -41,7 +41,7 @@ from typing import Any
 
 import numpy as np
 
-__all__ = ["ARROW_MIN", "MIN_FAST", "CompactEncoder", "float_texts"]
+__all__ = ["ARROW_MIN", "MIN_FAST", "CompactEncoder", "float_texts", "json_floats"]
 
 #: Smallest map written from arrays: smaller ones cost less through :func:`json.dumps` (and
 #: never import pyarrow, about 0.1 s; models this large are read with it anyway).
@@ -53,6 +53,17 @@ ARROW_MIN = 1000
 PROBE = (0.0, -0.0, 1.0, -7.0, 123.0, 0.1, 0.30000000000000004, 2 / 3, 100 / 3, 1.005, 5e-324,
          1e-4, 9.999999999999999e-05, 1e-05, 1e15, 1.5e15, 9999999999999998.0, 1e16, 1e22,
          1e23, 2.0**53, 2.0**53 + 2, 123456789.12345679, 1.7976931348623157e308)
+
+
+def json_floats(values: Any, finite: bool = False) -> list[float | None]:
+    """``values`` as a list of Python floats (one ``tolist``, not a call per element); with
+    ``finite``, None where JSON has no number (inf, NaN)."""
+    array = np.asarray(values, dtype=np.float64)
+    out: list[float | None] = array.tolist()
+    if finite:
+        for i in np.flatnonzero(~np.isfinite(array)).tolist():
+            out[i] = None
+    return out
 
 
 class CompactEncoder:

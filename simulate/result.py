@@ -32,11 +32,12 @@ from ..algebra.spectral import HowardResult, howard
 from ..reports.schema import DOCUMENT_KIND, SCHEMA_VERSION
 from .estimate import replication_interval
 from .experiment import Estimate
-from .jsontext import CompactEncoder
+from .jsontext import CompactEncoder, json_floats
 from .modelfile import Model
 from .sensitivity import (
     SensitivityEstimate,
     distinguishable,
+    element_entries,
     element_entry,
     fixed_model_sensitivity,
     ranked_candidates,
@@ -84,20 +85,9 @@ def finite_or_none(x: float | None) -> float | None:
     return x if math.isfinite(x) else None
 
 
-def _floats(values: Any, finite: bool = False) -> list[float | None]:
-    """``values`` as Python floats, one ``tolist`` instead of a call per element; with
-    ``finite``, None where JSON has no number (as :func:`finite_or_none`)."""
-    array = np.asarray(values, dtype=np.float64)
-    out: list[float | None] = array.tolist()
-    if finite:
-        for i in np.flatnonzero(~np.isfinite(array)).tolist():
-            out[i] = None
-    return out
-
-
 def _by_id(ids: Sequence[str], values: Any, finite: bool = False) -> dict[str, float | None]:
-    """``{id: value}`` in model order (see :func:`_floats`)."""
-    return dict(zip(ids, _floats(values, finite), strict=True))
+    """``{id: value}`` in model order, as :func:`~.jsontext.json_floats` writes the values."""
+    return dict(zip(ids, json_floats(values, finite), strict=True))
 
 
 def _throughput(cycle_time: float) -> float | None:
@@ -108,26 +98,21 @@ def model_section(model: Model) -> dict[str, Any]:
     """Name, units, size, file hash and the elements of the model."""
     graph = model.graph()
     n, m = graph.n_transitions, graph.n_places
+    ids, labels = model.transition_ids, model.transition_labels
+    k = min(n, MAX_LISTED)  # the columns taken at once, not element by element
     transitions = [
-        {
-            "id": model.transition_ids[t],
-            "label": model.transition_labels[t] or "",
-            "duration": model.durations[t].describe(),
-            "mean_duration": float(graph.duration[t]),
-        }
-        for t in range(min(n, MAX_LISTED))
+        {"id": ids[t], "label": labels[t] or "", "duration": text, "mean_duration": mean}
+        for t, text, mean in zip(range(k), model.durations.describe(k),
+                                 graph.duration[:k].tolist(), strict=True)
     ]
+    k = min(m, MAX_LISTED)
     places = [
-        {
-            "index": p,
-            "from": model.transition_ids[int(graph.source[p])],
-            "to": model.transition_ids[int(graph.target[p])],
-            "tokens": int(graph.tokens[p]),
-            "hold": model.holds[p].describe(),
-            "mean_hold": float(graph.hold[p]),
-            "label": model.place_labels[p] or "",
-        }
-        for p in range(min(m, MAX_LISTED))
+        {"index": p, "from": ids[u], "to": ids[t], "tokens": tokens, "hold": text,
+         "mean_hold": mean, "label": model.place_labels[p] or ""}
+        for p, u, t, tokens, text, mean in zip(
+            range(k), graph.source[:k].tolist(), graph.target[:k].tolist(),
+            graph.tokens[:k].tolist(), model.holds.describe(k), graph.hold[:k].tolist(),
+            strict=True)
     ]
     return {
         "name": model.name,
@@ -155,7 +140,7 @@ def analysis_section(model: Model, analysis: GraphAnalysis) -> dict[str, Any]:
     circuits = [[ids[t] for t in c.transitions] for c in hw.circuits]
     circuit_places = [list(c.places) for c in hw.circuits]
     slack_t = _by_id(ids, analysis.slack.transitions, finite=True)
-    slack_p = _floats(analysis.slack.places[:MAX_LISTED], finite=True)
+    slack_p = json_floats(analysis.slack.places[:MAX_LISTED], finite=True)
     doc: dict[str, Any] = {
         "cycle_time": lam,
         "cycle_time_ci": [lam, lam],
@@ -318,7 +303,7 @@ def sensitivity_section(model: Model, sens: SensitivityEstimate, critical_ids: s
         return {"sensitivity": [], "bottleneck": None, "sensitivity_method": sens.method}
     d = np.where(np.isfinite(sens.derivative), sens.derivative, -np.inf)
     order = np.lexsort((np.arange(d.size), -d))
-    entries = [element_entry(model, int(e), sens) for e in order[:MAX_LISTED]]
+    entries = element_entries(model, order[:MAX_LISTED], sens)
     out: dict[str, Any] = {"sensitivity": entries, "sensitivity_method": sens.method,
                            "sensitivity_exact": sens.exact,
                            "sensitivity_omitted": max(0, d.size - MAX_LISTED)}
@@ -354,7 +339,7 @@ def sensitivity_section(model: Model, sens: SensitivityEstimate, critical_ids: s
     if sens.criticality is not None:
         crit = sens.criticality
         out["criticality"] = {
-            "places": _floats(crit[n : n + MAX_LISTED], finite=True),
+            "places": json_floats(crit[n : n + MAX_LISTED], finite=True),
             "transitions": _by_id(model.transition_ids, crit[:n], finite=True),
             "definition": ("share of the element's firings on the critical path of the cycle "
                            "time (for a place: of its target's firings that it set on that "
