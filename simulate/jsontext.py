@@ -111,7 +111,7 @@ class CompactEncoder:
         if np.isinf(numbers).any() or (nan and nan != values.count(None)):
             return None  # an inf or a NaN among the values: json.dumps raises
         bits, where = np.unique(numbers.view(np.uint64), return_inverse=True)
-        texts = float_texts(bits.view(np.float64)).take(_arrow(where.ravel()))
+        texts = float_texts(bits.view(np.float64)).take(_arrow(where.ravel().astype(np.int64)))
         pairs = pc.binary_join_element_wise(keys, texts, _repeated("", len(values)))
         return "{" + _concatenated(pairs)[1:] + "}"  # the first key's comma dropped
 
@@ -209,15 +209,16 @@ def _strings(lengths: np.ndarray, data: Any) -> Any:
 
 
 def _layout(strings: Any) -> tuple[np.ndarray, np.ndarray]:
-    """Offsets (n + 1) and bytes of an Arrow large_string array without nulls."""
+    """Offsets (n + 1, from 0) and bytes of the strings of an Arrow large_string array
+    without nulls."""
     offsets = np.frombuffer(strings.buffers()[1], dtype=np.int64)
     offsets = offsets[strings.offset : strings.offset + len(strings) + 1]
     data = strings.buffers()[2]
-    return offsets, (np.frombuffer(data, dtype=np.uint8) if data is not None
-                     else np.zeros(0, dtype=np.uint8))
+    data = (np.frombuffer(data, dtype=np.uint8) if data is not None
+            else np.zeros(0, dtype=np.uint8))
+    return offsets - offsets[0], data[offsets[0] : offsets[-1]]
 
 
 def _concatenated(strings: Any) -> str:
     """The strings of an Arrow large_string array (ASCII, no nulls) one after the other."""
-    offsets, data = _layout(strings)
-    return data[offsets[0] : offsets[-1]].tobytes().decode("ascii")
+    return _layout(strings)[1].tobytes().decode("ascii")

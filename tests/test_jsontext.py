@@ -174,6 +174,16 @@ def test_the_probe_finds_a_formatter_that_differs() -> None:
             jsontext._arrow_agrees.cache_clear()
 
 
+def test_texts_of_a_sliced_arrow_array() -> None:
+    """The joined text and the exponent search read only the strings of the array, also when
+    it is a slice of a larger one (its bytes start further on in the buffer)."""
+    whole = jsontext._ascii(["1e+300", "ab", "cde", "2e-7"])
+    assert jsontext._concatenated(whole.slice(1, 2)) == "abcde"
+    assert jsontext._concatenated(whole.slice(4, 0)) == ""
+    offsets, data = jsontext._layout(whole.slice(1, 2))
+    assert offsets.tolist() == [0, 2, 5] and data.tobytes() == b"abcde"
+
+
 def _old_dumps(document: dict[str, object]) -> str:
     """The large-document text as it was written before the fast encoder: one top-level key a
     line, each value through Python's encoder."""
