@@ -120,10 +120,16 @@ class CompactEncoder:
         key is not a str."""
         keys = list(mapping)
         if keys != self._keys:  # the same str objects compare by identity: fast
-            if set(map(type, keys)) != {str}:
+            try:
+                joined = "".join(keys)
+            except TypeError:  # a key that is not a str: json.dumps converts it
                 return None
+            if (joined.isascii() and joined.isprintable() and '"' not in joined
+                    and "\\" not in joined):  # printable ASCII but " and \: no escapes
+                self._key_texts = _ascii(keys, ',"', '":')
+            else:
+                self._key_texts = _ascii(list(map(encode_basestring_ascii, keys)), ",", ":")
             self._keys = keys
-            self._key_texts = _ascii(list(map(encode_basestring_ascii, keys)), ",", ":")
         return self._key_texts
 
 

@@ -92,6 +92,21 @@ def test_adversarial_map_of_every_special_value_and_id(arrow: bool) -> None:
     assert '"-0.0"' not in text and ":-0.0," in text and ":0.0," in text  # zeros kept apart
 
 
+PRINTABLE = [chr(c) for c in range(0x20, 0x7f) if chr(c) not in '"\\']
+
+
+@pytest.mark.parametrize("odd", [None, '"', "\\", "\x7f", "\x1f", "\n", "é", "\u2028", "\ud83d"])
+def test_keys_without_escapes_and_with_one(odd: str | None) -> None:
+    """Keys of printable ASCII other than ``"`` and ``\\`` are written as they are; a single
+    key with a character to escape (DEL and control characters too, RFC 8259 §7; Python also
+    escapes every non-ASCII character) is escaped as Python escapes it."""
+    ids = [f"{c}{i}" for i, c in enumerate(PRINTABLE * 3)]
+    if odd is not None:
+        ids[len(ids) // 2] = f"x{odd}y"
+    mapping = dict.fromkeys(ids, 0.5)
+    assert fast(mapping) == reference(mapping)
+
+
 def test_zeros_of_both_signs_are_written_apart() -> None:
     """``-0.0 == 0.0`` but their texts differ: the distinct values are told apart by bits."""
     mapping = {"a": 0.0, "b": -0.0, "c": 0.0, "d": -0.0}
