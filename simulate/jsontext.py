@@ -13,16 +13,17 @@ are str and whose values are float or None is written here from arrays instead:
   4 times faster than ``float.__repr__``. Both write the shortest digits that read back to
   the same double, the nearest of them, ties to even (Python: David Gay's ``dtoa`` in mode 0;
   Arrow: the double-conversion library's ``ToShortest``, which chose Gay's tie rule; from
-  memory), so the digits are the same (no difference on 1.2·10^7 doubles, and
-  ``tests/test_jsontext.py`` checks 2·10^5 more on every run); only where the notations
-  differ does Python write the value: Arrow leaves out the ``.0`` of a
-  whole number (added), writes ``1e+15`` where Python writes ``1000000000000000.0`` and
-  ``0.00001`` where Python writes ``1e-05`` (Python's fixed notation holds for
-  ``1e-4 <= |x| < 1e16``: outside it, and wherever Arrow chose an exponent, ``float.__repr__``
-  writes the value). A probe of awkward values checks once per process that Arrow still
-  writes what Python writes; if not, Python writes every distinct value;
-* the keys are escaped once per document (``encode_basestring_ascii``, the encoder's own
-  function for ``ensure_ascii``) and shared by the maps with the same keys in the same order;
+  memory), so the digits are the same (no difference on 7·10^6 doubles that Arrow writes
+  without an exponent, and ``tests/test_jsontext.py`` checks 2·10^5 more on every run). Only
+  the notation differs: Arrow leaves out the ``.0`` of a whole number (added here), and
+  writes ``1e+15`` where Python writes ``1000000000000000.0`` and ``0.00001`` where Python
+  writes ``1e-05``. Python's fixed notation holds for ``1e-4 <= |x| < 1e16``; outside it, and
+  wherever Arrow chose an exponent, ``float.__repr__`` writes the value. A probe of awkward
+  values checks once per process that Arrow still writes what Python writes; if not, Python
+  writes every distinct value;
+* the keys are escaped once per document and shared by the maps with the same keys in the
+  same order: keys of printable ASCII without ``"`` and ``\\`` are written as they are, others
+  by ``encode_basestring_ascii`` (the encoder's own function for ``ensure_ascii``);
 * keys and values are joined by Arrow, in one pass.
 
 Everything else goes to :func:`json.dumps` itself: other values, containers other than dicts
