@@ -406,6 +406,14 @@ class SpecTable:
     def __iter__(self) -> Any:
         return (self[i] for i in range(len(self)))
 
+    def describe(self, stop: int | None = None) -> list[str]:
+        """``self[i].describe()`` of the first ``stop`` elements (all by default), each law
+        described once."""
+        stop = len(self) if stop is None else min(stop, len(self))
+        laws = [law.describe() for law in self.laws]
+        return [laws[code] if code >= 0 else Fixed.text(value) for value, code in
+                zip(self.values[:stop].tolist(), self.codes[:stop].tolist(), strict=True)]
+
     def __eq__(self, other: object) -> bool:
         if not isinstance(other, SpecTable):
             return NotImplemented

@@ -183,7 +183,12 @@ class Fixed(Distribution):
         return repr(float(self.value))
 
     def describe(self) -> str:
-        return _short(self.value)
+        return self.text(self.value)
+
+    @staticmethod
+    def text(value: float) -> str:
+        """:meth:`describe` of ``Fixed(value)``, without making one (tables of 10^5 values)."""
+        return _short(value)
 
 
 @dataclass(frozen=True)

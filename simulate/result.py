@@ -19,7 +19,7 @@ import json
 import math
 import platform
 import sys
-from collections.abc import Mapping
+from collections.abc import Mapping, Sequence
 from importlib import metadata
 from pathlib import Path
 from typing import TYPE_CHECKING, Any
@@ -32,10 +32,12 @@ from ..algebra.spectral import HowardResult, howard
 from ..reports.schema import DOCUMENT_KIND, SCHEMA_VERSION
 from .estimate import replication_interval
 from .experiment import Estimate
+from .jsontext import CompactEncoder, json_floats
 from .modelfile import Model
 from .sensitivity import (
     SensitivityEstimate,
     distinguishable,
+    element_entries,
     element_entry,
     fixed_model_sensitivity,
     ranked_candidates,
@@ -83,6 +85,11 @@ def finite_or_none(x: float | None) -> float | None:
     return x if math.isfinite(x) else None
 
 
+def _by_id(ids: Sequence[str], values: Any, finite: bool = False) -> dict[str, float | None]:
+    """``{id: value}`` in model order, as :func:`~.jsontext.json_floats` writes the values."""
+    return dict(zip(ids, json_floats(values, finite), strict=True))
+
+
 def _throughput(cycle_time: float) -> float | None:
     return 1.0 / cycle_time if cycle_time > 0 else None
 
@@ -91,26 +98,21 @@ def model_section(model: Model) -> dict[str, Any]:
     """Name, units, size, file hash and the elements of the model."""
     graph = model.graph()
     n, m = graph.n_transitions, graph.n_places
+    ids, labels = model.transition_ids, model.transition_labels
+    k = min(n, MAX_LISTED)  # the columns taken at once, not element by element
     transitions = [
-        {
-            "id": model.transition_ids[t],
-            "label": model.transition_labels[t] or "",
-            "duration": model.durations[t].describe(),
-            "mean_duration": float(graph.duration[t]),
-        }
-        for t in range(min(n, MAX_LISTED))
+        {"id": ids[t], "label": labels[t] or "", "duration": text, "mean_duration": mean}
+        for t, text, mean in zip(range(k), model.durations.describe(k),
+                                 graph.duration[:k].tolist(), strict=True)
     ]
+    k = min(m, MAX_LISTED)
     places = [
-        {
-            "index": p,
-            "from": model.transition_ids[int(graph.source[p])],
-            "to": model.transition_ids[int(graph.target[p])],
-            "tokens": int(graph.tokens[p]),
-            "hold": model.holds[p].describe(),
-            "mean_hold": float(graph.hold[p]),
-            "label": model.place_labels[p] or "",
-        }
-        for p in range(min(m, MAX_LISTED))
+        {"index": p, "from": ids[u], "to": ids[t], "tokens": tokens, "hold": text,
+         "mean_hold": mean, "label": model.place_labels[p] or ""}
+        for p, u, t, tokens, text, mean in zip(
+            range(k), graph.source[:k].tolist(), graph.target[:k].tolist(),
+            graph.tokens[:k].tolist(), model.holds.describe(k), graph.hold[:k].tolist(),
+            strict=True)
     ]
     return {
         "name": model.name,
@@ -134,11 +136,11 @@ def analysis_section(model: Model, analysis: GraphAnalysis) -> dict[str, Any]:
     hw = analysis.howard
     lam = analysis.cycle_time
     cert = analysis.certificate
-    by_transition = {ids[t]: float(hw.cycle_time[t]) for t in range(graph.n_transitions)}
+    by_transition = _by_id(ids, hw.cycle_time)
     circuits = [[ids[t] for t in c.transitions] for c in hw.circuits]
     circuit_places = [list(c.places) for c in hw.circuits]
-    slack_t = {ids[t]: finite_or_none(s) for t, s in enumerate(analysis.slack.transitions)}
-    slack_p = [finite_or_none(s) for s in analysis.slack.places[:MAX_LISTED]]
+    slack_t = _by_id(ids, analysis.slack.transitions, finite=True)
+    slack_p = json_floats(analysis.slack.places[:MAX_LISTED], finite=True)
     doc: dict[str, Any] = {
         "cycle_time": lam,
         "cycle_time_ci": [lam, lam],
@@ -156,7 +158,7 @@ def analysis_section(model: Model, analysis: GraphAnalysis) -> dict[str, Any]:
         "critical_circuit_places": circuit_places,
         "critical_circuit_ratios": [c.ratio for c in hw.circuits],
         "critical_places": np.flatnonzero(analysis.critical).tolist()[:MAX_LISTED],
-        "eigenvector": {ids[t]: float(hw.bias[t]) for t in range(graph.n_transitions)},
+        "eigenvector": _by_id(ids, hw.bias),
         "slack": {"transitions": slack_t, "places": slack_p, "exact": analysis.slack.exact},
         "certificate": {
             "checked": cert.holds,
@@ -207,7 +209,7 @@ def estimate_section(model: Model, est: Estimate, lower: float) -> dict[str, Any
         "cycle_time": iv.estimate,
         "cycle_time_ci": [iv.low, iv.high],
         "throughput": 1.0 / iv.estimate if iv.estimate > 0 else None,
-        "cycle_time_by_transition": {ids[t]: float(v) for t, v in enumerate(est.by_transition)},
+        "cycle_time_by_transition": _by_id(ids, est.by_transition),
         "critical_circuits": [],
         "bounds": {
             "lower": lower,
@@ -277,8 +279,8 @@ def utilization_section(model: Model, per_server: np.ndarray,
     ids = model.transition_ids
     servers = self_loop_servers(model.graph())
     out: dict[str, Any] = {
-        "utilization": {ids[t]: finite_or_none(u) for t, u in enumerate(per_server)},
-        "servers": {ids[t]: (int(s) if s > 0 else None) for t, s in enumerate(servers)},
+        "utilization": _by_id(ids, per_server, finite=True),
+        "servers": dict(zip(ids, np.where(servers > 0, servers, None).tolist(), strict=True)),
         "utilization_definition": (
             "share of the time each of the transition's servers is busy firing: mean busy "
             "servers / servers, the servers being the tokens of its self-loop (n servers take "
@@ -286,7 +288,7 @@ def utilization_section(model: Model, per_server: np.ndarray,
             "as tokens allow (busy_servers gives their mean number in progress)"),
     }
     if busy is not None:
-        out["busy_servers"] = {ids[t]: float(b) for t, b in enumerate(busy)}
+        out["busy_servers"] = _by_id(ids, busy)
     return out
 
 
@@ -301,7 +303,7 @@ def sensitivity_section(model: Model, sens: SensitivityEstimate, critical_ids: s
         return {"sensitivity": [], "bottleneck": None, "sensitivity_method": sens.method}
     d = np.where(np.isfinite(sens.derivative), sens.derivative, -np.inf)
     order = np.lexsort((np.arange(d.size), -d))
-    entries = [element_entry(model, int(e), sens) for e in order[:MAX_LISTED]]
+    entries = element_entries(model, order[:MAX_LISTED], sens)
     out: dict[str, Any] = {"sensitivity": entries, "sensitivity_method": sens.method,
                            "sensitivity_exact": sens.exact,
                            "sensitivity_omitted": max(0, d.size - MAX_LISTED)}
@@ -337,8 +339,8 @@ def sensitivity_section(model: Model, sens: SensitivityEstimate, critical_ids: s
     if sens.criticality is not None:
         crit = sens.criticality
         out["criticality"] = {
-            "places": [finite_or_none(c) for c in crit[n : n + MAX_LISTED]],
-            "transitions": {model.transition_ids[t]: finite_or_none(crit[t]) for t in range(n)},
+            "places": json_floats(crit[n : n + MAX_LISTED], finite=True),
+            "transitions": _by_id(model.transition_ids, crit[:n], finite=True),
             "definition": ("share of the element's firings on the critical path of the cycle "
                            "time (for a place: of its target's firings that it set on that "
                            "path)"),
@@ -479,10 +481,9 @@ def _schedule_figure(model: Model, exact: GraphAnalysis) -> dict[str, Any]:
     g = exact.graph
     return {
         "cycle_time": exact.cycle_time,
-        "start": {ids[t]: float(exact.start[t]) for t in range(g.n_transitions)},
-        "duration": {ids[t]: float(g.duration[t]) for t in range(g.n_transitions)},
-        "cycle_time_by_transition": {ids[t]: float(exact.howard.cycle_time[t])
-                                     for t in range(g.n_transitions)},
+        "start": _by_id(ids, exact.start),
+        "duration": _by_id(ids, g.duration),
+        "cycle_time_by_transition": _by_id(ids, exact.howard.cycle_time),
     }
 
 
@@ -492,7 +493,7 @@ def _fixed_simulation_section(model: Model, run: FixedRun) -> dict[str, Any]:
     lam = float(run.cycle_time.max())
     return {
         "cycle_time": lam, "cycle_time_ci": [lam, lam], "throughput": _throughput(lam),
-        "cycle_time_by_transition": {ids[t]: float(v) for t, v in enumerate(run.cycle_time)},
+        "cycle_time_by_transition": _by_id(ids, run.cycle_time),
         "critical_circuits": [], "bounds": None,
         "firings_simulated": int(run.firings * model.n_transitions),
         "cyclicity": run.span, "exact": True, "time_unit": model.time_unit, "engine": "simpy",
@@ -722,10 +723,12 @@ def dumps(document: Mapping[str, Any]) -> str:
 
     Indented (two spaces) for people to read; a large document (the analysis of 10^5
     transitions, tens of MB) puts each top-level key on its own line with a compact value:
-    Python's encoder is compiled only for unindented text, which is 5-10 times faster there.
+    Python's encoder is compiled only for unindented text, which is 5-10 times faster there,
+    and the large maps by transition are written from arrays (:mod:`.jsontext`, the same text).
     """
     options: dict[str, Any] = {"allow_nan": False, "default": _json_default}
-    lines = [f"  {json.dumps(str(key))}: {json.dumps(value, separators=(',', ':'), **options)}"
+    encoder = CompactEncoder(_json_default)
+    lines = [f"  {json.dumps(str(key))}: {encoder.encode(value)}"
              for key, value in document.items()]
     if sum(map(len, lines)) <= PRETTY_LIMIT:
         return json.dumps(document, indent=2, **options)

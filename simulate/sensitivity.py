@@ -35,6 +35,7 @@ from ..algebra.lineage import PathSums, path_estimates
 from ..algebra.sensitivity import fixed_sensitivity
 from ..algebra.spectral import HowardResult, howard
 from ..algebra.stability import Components
+from .jsontext import json_floats
 
 __all__ = [
     "MAX_FRONTIERS",
@@ -43,6 +44,7 @@ __all__ = [
     "SensitivityEstimate",
     "bottleneck_index",
     "distinguishable",
+    "element_entries",
     "element_entry",
     "fixed_model_sensitivity",
     "from_paths",
@@ -208,16 +210,26 @@ def distinguishable(sens: SensitivityEstimate, first: int, second: int) -> bool:
 
 def element_entry(model: Any, e: int, sens: SensitivityEstimate) -> dict[str, Any]:
     """The JSON entry of element ``e`` (transition, or place ``e − n``)."""
+    return element_entries(model, [e], sens)[0]
+
+
+def element_entries(model: Any, elements: Any, sens: SensitivityEstimate
+                    ) -> list[dict[str, Any]]:
+    """The JSON entries of ``elements``, in their order (see :func:`element_entry`): the
+    numbers of all of them taken at once, None where not finite."""
     n = model.n_transitions
-    entry: dict[str, Any] = ({"element": "transition", "id": model.transition_ids[e]} if e < n
-                             else {"element": "place", "index": e - n})
-    entry["derivative"] = _finite(sens.derivative[e])
-    entry["ci"] = [_finite(sens.low[e]), _finite(sens.high[e])]
-    if sens.criticality is not None:
-        entry["path_criticality"] = _finite(sens.criticality[e])
-    return entry
-
-
-def _finite(x: float) -> float | None:
-    x = float(x)
-    return x if math.isfinite(x) else None
+    chosen = np.asarray(elements, dtype=np.int64)
+    derivative, low, high = (json_floats(v[chosen], finite=True)
+                             for v in (sens.derivative, sens.low, sens.high))
+    criticality = (None if sens.criticality is None
+                   else json_floats(sens.criticality[chosen], finite=True))
+    entries = []
+    for i, e in enumerate(chosen.tolist()):
+        entry: dict[str, Any] = ({"element": "transition", "id": model.transition_ids[e]}
+                                 if e < n else {"element": "place", "index": e - n})
+        entry["derivative"] = derivative[i]
+        entry["ci"] = [low[i], high[i]]
+        if criticality is not None:
+            entry["path_criticality"] = criticality[i]
+        entries.append(entry)
+    return entries

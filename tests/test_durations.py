@@ -436,6 +436,15 @@ def test_spec_table():
         SpecTable(np.array([-1.0]))
 
 
+def test_spec_table_describes_its_elements_as_they_describe_themselves():
+    """``describe(stop)``: the text of each of the first elements, laws and numbers alike."""
+    table = SpecTable.from_specs([*SPECS_T, 0.1234567, 1e-7, 2.0, SPECS_T[0], 123456789.0])
+    texts = [table[i].describe() for i in range(len(table))]
+    assert table.describe() == texts
+    assert table.describe(3) == texts[:3] and table.describe(100) == texts
+    assert SpecTable(np.zeros(0)).describe() == []
+
+
 # ----------------------------------------------------------------------------- how draws are made
 
 
