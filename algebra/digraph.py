@@ -3,11 +3,11 @@ r"""Strongly connected components, breadth-first search and shortest paths on ar
 The analyses walk directed graphs given as arrays of arcs (``source[i] -> target[i]`` on nodes
 ``0 .. n - 1``): the transitions of an event graph and its places, or a subgraph. Large graphs
 go to ``scipy.sparse.csgraph`` (compiled). Importing ``scipy.sparse`` costs about 0.3 s, more
-than the whole analysis of a model of a few thousand places: up to :data:`PYTHON_MAX_WORK` arcs
-(or arc visits, for shortest paths from several nodes) the same algorithms run here in plain
-Python, on the same adjacency order, so that they give scipy's answers exactly: the same
-component labels, the same search order and predecessors, the same distances. The tests hold
-each function to scipy's on random graphs.
+than the whole analysis of a model of a few thousand places: up to :data:`PYTHON_MAX_WORK`
+nodes and arcs (or arc visits, for shortest paths from several nodes) the same algorithms run
+here in plain Python, on the same adjacency order, so that they give scipy's answers exactly:
+the same component labels, the same search order and predecessors, the same distances. The
+tests hold each function to scipy's on random graphs.
 
 Adjacency order is scipy's for a ``csr_matrix`` built from the arcs: per node, the distinct
 targets in increasing order (parallel arcs are one edge).
@@ -36,7 +36,7 @@ __all__ = ["NO_PREDECESSOR", "PYTHON_MAX_WORK", "breadth_first", "shortest_dista
            "strong_components"]
 
 PYTHON_MAX_WORK: int = 20_000
-"""Most arcs (arc visits for :func:`shortest_distances`) handled in plain Python; scipy's
+"""Most nodes and arcs (arc visits for :func:`shortest_distances`) handled in plain Python; scipy's
 compiled routines beyond. At this size one pass takes about 0.02 s here; an analysis makes a
 handful (the whole graph, its token-free and critical parts), well below the 0.3 s of importing
 ``scipy.sparse``, which larger graphs pay once for passes a hundred times faster."""
@@ -89,7 +89,7 @@ def strong_components(n: int, source: ArrayLike, target: ArrayLike) -> tuple[int
     (3, [2, 2, 1, 0])
     """
     src, dst = _arcs(n, source, target)
-    if src.size > PYTHON_MAX_WORK:
+    if n + src.size > PYTHON_MAX_WORK:
         from scipy.sparse.csgraph import connected_components
 
         count, labels = connected_components(_csr(n, src, dst), directed=True,
@@ -169,7 +169,7 @@ def breadth_first(n: int, source: ArrayLike, target: ArrayLike,
     ([0, 1, 2, 3], [-9999, 0, 0, 2])
     """
     src, dst = _arcs(n, source, target)
-    if src.size > PYTHON_MAX_WORK:
+    if n + src.size > PYTHON_MAX_WORK:
         from scipy.sparse.csgraph import breadth_first_order
 
         order, pred = breadth_first_order(_csr(n, src, dst), start, directed=True,
@@ -220,7 +220,7 @@ def shortest_distances(n: int, source: ArrayLike, target: ArrayLike, length: Arr
     src, dst = _arcs(n, source, target)
     ln = np.asarray(length, dtype=np.float64).ravel()
     starts_at = np.asarray(origins, dtype=np.int64).ravel()
-    if starts_at.size * max(src.size, 1) > PYTHON_MAX_WORK:
+    if n + starts_at.size * src.size > PYTHON_MAX_WORK:
         from scipy.sparse.csgraph import dijkstra
 
         # explicit zeros stay edges of a csr matrix built this way

@@ -168,6 +168,13 @@ class EventGraph:
         return int(count), labels
 
     @cached_property
+    def token_free_circuit(self) -> tuple[int, ...] | None:
+        """A circuit of places without tokens, computed once (see
+        :func:`find_token_free_circuit`)."""
+        circuit = _token_free_circuit(self)
+        return None if circuit is None else tuple(circuit)
+
+    @cached_property
     def in_degree(self) -> np.ndarray:
         """Number of input places of each transition."""
         return np.bincount(self.target, minlength=self.n_transitions)
@@ -226,21 +233,30 @@ def find_token_free_circuit(graph: EventGraph) -> list[int] | None:
     Such a circuit is a deadlock: none of its transitions can ever fire. Self-loops without a
     token count as circuits of length one.
     """
+    circuit = graph.token_free_circuit
+    return None if circuit is None else list(circuit)
+
+
+def _token_free_circuit(graph: EventGraph) -> list[int] | None:
     empty = graph.tokens == 0
     src, dst = graph.source[empty], graph.target[empty]
     loops = src[src == dst]
     if loops.size:
         return [int(loops[0])]
-    count, labels = strong_components(graph.n_transitions, src, dst)
+    # Only the transitions these places join can lie on such a circuit: the components of
+    # that smaller graph come in the order of the whole one's (a transition without such a
+    # place is a component of its own, which changes no other's place in the order).
+    nodes, ends = np.unique(np.concatenate([src, dst]), return_inverse=True)
+    count, labels = strong_components(nodes.size, ends[: src.size], ends[src.size :])
     sizes = np.bincount(labels, minlength=count)
     cyclic = np.flatnonzero(sizes > 1)
     if cyclic.size == 0:
         return None
     # Walk inside one cyclic component until a transition repeats: that closes a circuit.
     comp = cyclic[0]
-    inside = (labels[src] == comp) & (labels[dst] == comp)
+    inside = (labels[ends[: src.size]] == comp) & (labels[ends[src.size :]] == comp)
     succ = dict(zip(src[inside].tolist(), dst[inside].tolist(), strict=True))
-    start = int(np.flatnonzero(labels == comp)[0])
+    start = int(nodes[np.flatnonzero(labels == comp)[0]])
     seen: dict[int, int] = {}
     walk: list[int] = []
     node = start
