@@ -98,8 +98,7 @@ class GraphAnalysis:
 
 
 def analyze_graph(
-    graph: EventGraph, *, charpoly: bool = True, transient_firings: int | None = None,
-    threads: int | None = None,
+    graph: EventGraph, *, charpoly: bool = True, transient_firings: int | None = None
 ) -> GraphAnalysis:
     """Cycle times, certificate, critical graph, cyclicity, slack, schedule, χ and transient.
 
@@ -114,8 +113,6 @@ def analyze_graph(
         Horizon for measuring the transient; by default as many firings as
         :data:`TRANSIENT_WORK_LIMIT` allows, between 20 and 2000, and none at all (not
         measured) above :data:`TRANSIENT_MAX_PLACES` places.
-    threads : int, optional
-        Threads of Howard's compiled iteration on large graphs (default: every core).
 
     Raises
     ------
@@ -125,12 +122,11 @@ def analyze_graph(
         If the certificate fails (a bug, never an input error).
     """
     with np.errstate(over="ignore"):  # near the float limit: OutOfRange, or saturated scales
-        return _analyze(graph, charpoly, transient_firings, threads)
+        return _analyze(graph, charpoly, transient_firings)
 
 
-def _analyze(graph: EventGraph, charpoly: bool, transient_firings: int | None,
-             threads: int | None) -> GraphAnalysis:
-    result = howard(graph, threads=threads)
+def _analyze(graph: EventGraph, charpoly: bool, transient_firings: int | None) -> GraphAnalysis:
+    result = howard(graph)
     cert = certify(graph, result)
     if not cert.holds:
         raise MaxPlusError(f"certificate failed: {cert}")

@@ -1,9 +1,8 @@
 r"""Compiled kernels of the algebra's per-pass work on large graphs (numba).
 
 Howard's policy iteration (:func:`cyclecheck.algebra.spectral.howard`) runs here, whole, as
-one compiled loop: the value determination of a policy, the policy improvement (a loop over
-transitions run on several threads: :func:`set_threads`) and the spreading of the largest
-ratio. The certificate (:func:`cyclecheck.algebra.critical.certify`)
+one compiled loop: the value determination of a policy, the policy improvement and the
+spreading of the largest ratio. The certificate (:func:`cyclecheck.algebra.critical.certify`)
 sums along the policy's paths with :func:`path_sums`, the same walk. The numpy
 implementation in :mod:`~cyclecheck.algebra.spectral` stays callable (``howard(graph,
 kernel="numpy")``) and is the twin of this one in the tests; Karp, brute force over circuits
@@ -48,7 +47,7 @@ from numba.core.caching import NullCache
 
 __all__ = ["CACHED", "STATUS_NOT_CONVERGED", "STATUS_OK", "STATUS_OVERFLOW",
            "STATUS_TOKEN_FREE", "cache_available", "disable_cache", "howard_iterate", "path_sums",
-           "policy_circuits", "set_threads"]
+           "policy_circuits"]
 
 _BIG = float(np.finfo(np.float64).max)  # the scales of the tolerances saturate here
 
@@ -77,19 +76,6 @@ CACHED = cache_available()
 def _jit(fn):  # type: ignore[no-untyped-def]
     # fastmath stays off: the kernels must round exactly as IEEE arithmetic does.
     return numba.njit(cache=CACHED, nogil=True)(fn)
-
-
-def _jit_parallel(fn):  # type: ignore[no-untyped-def]
-    # Loops over transitions whose iterations are independent (each writes its own entry and
-    # counts into a reduction): the same results on any number of threads.
-    return numba.njit(cache=CACHED, nogil=True, parallel=True)(fn)
-
-
-def set_threads(threads: int | None) -> None:
-    """Threads of the parallel loops from now on: ``threads`` (at most numba's limit, the
-    machine's cores or ``NUMBA_NUM_THREADS``), every one for ``None``."""
-    limit = numba.config.NUMBA_NUM_THREADS
-    numba.set_num_threads(limit if threads is None else max(1, min(int(threads), limit)))
 
 
 @_jit
@@ -295,12 +281,12 @@ def howard_iterate(source, target, weight, tokens, starts, max_weight, out_start
             return STATUS_NOT_CONVERGED, iterations, eta, bias, scale, is_root
 
 
-@_jit_parallel
+@_jit
 def _improve_eta(source, starts, eta, policy, rtol):  # type: ignore[no-untyped-def]
     """The eta step: each transition takes the first input place whose source has the largest
     eta, if that beats its own place by more than rounding. True if a place changed."""
-    changed = 0
-    for t in numba.prange(policy.size):
+    changed = False
+    for t in range(policy.size):
         lo = starts[t]
         best = eta[source[lo]]
         arg = lo
@@ -312,19 +298,19 @@ def _improve_eta(source, starts, eta, policy, rtol):  # type: ignore[no-untyped-
         q = policy[t]
         if _exceeds(best, eta[source[q]], 0.0, rtol) and arg != q:
             policy[t] = arg
-            changed += 1
-    return changed > 0
+            changed = True
+    return changed
 
 
-@_jit_parallel
+@_jit
 def _improve_value(source, weight, tokens, starts, max_weight, eta, bias, policy, uniform,
                    rtol):  # type: ignore[no-untyped-def]
     """The value step: each transition takes the first input place of largest
     ``w - eta m + v_source`` among those whose source has its eta (all of them when
     ``uniform``), if that beats its own place by more than rounding. True if a place changed.
     One pass over the places, no array of values."""
-    changed = 0
-    for t in numba.prange(policy.size):
+    changed = False
+    for t in range(policy.size):
         e = eta[t]
         q = policy[t]
         best = -np.inf
@@ -343,8 +329,8 @@ def _improve_value(source, weight, tokens, starts, max_weight, eta, bias, policy
                 current = v
         if _exceeds(best, current, max_weight[t], rtol) and arg != q:
             policy[t] = arg
-            changed += 1
-    return changed > 0
+            changed = True
+    return changed
 
 
 @_jit

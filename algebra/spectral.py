@@ -333,7 +333,7 @@ def _exceeds(new: np.ndarray, old: np.ndarray, scale: np.ndarray | float = 0.0) 
 
 
 def howard(graph: EventGraph, *, max_iterations: int | None = None,
-           kernel: str = "auto", threads: int | None = None) -> HowardResult:
+           kernel: str = "auto") -> HowardResult:
     """Cycle time of every transition of a live event graph by Howard policy iteration.
 
     Parameters
@@ -348,9 +348,6 @@ def howard(graph: EventGraph, *, max_iterations: int | None = None,
         vectorized version of this module; ``"auto"`` (default): numba from
         :data:`KERNEL_MIN_PLACES` places on (numpy when numba cannot be imported). Both give
         the same cycle times and circuits; biases agree to rounding.
-    threads : int, optional
-        Threads of the compiled policy improvement (default: every core); the same result on
-        any number.
 
     Returns
     -------
@@ -395,7 +392,6 @@ def howard(graph: EventGraph, *, max_iterations: int | None = None,
     if kernel == "numba" and compiled is None:
         raise ImportError("kernel='numba' needs numba: pip install numba")
     if compiled is not None:
-        compiled.set_threads(threads)
         return _howard_compiled(compiled, graph, places, policy, limit)
     iterations = 0
     eta_steps = 0  # consecutive improvements of eta

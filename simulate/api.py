@@ -157,7 +157,7 @@ def analyze(model: ModelLike, *, seed: int | None = DEFAULT_SEED,
     loaded = _model(model)
     from ..algebra.analysis import analyze_graph
 
-    exact = analyze_graph(loaded.graph(), threads=settings.workers)
+    exact = analyze_graph(loaded.graph())
     est = None
     if loaded.is_random:
         settings = settings.replace(precision=settings.precision or DEFAULT_PRECISION)

@@ -93,18 +93,6 @@ def test_kernel_twins_on_random_graphs(n, m, seed):
     _assert_twins(_random_graph(n, m, seed))
 
 
-@pytest.mark.parametrize(("n", "m", "seed"), [(3000, 10_000, 4), (20_000, 60_000, 5)])
-def test_kernel_threads_give_the_same_result(n, m, seed):
-    """The policy improvement runs on several threads: one thread and two visit the same
-    policies and give the same numbers bit for bit (each transition's choice is its own)."""
-    graph = _random_graph(n, m, seed)
-    one, two = (howard(graph, kernel="numba", threads=k) for k in (1, 2))
-    assert one.iterations == two.iterations
-    for field in ("policy", "cycle_time", "bias", "bias_scale"):
-        assert getattr(one, field).tobytes() == getattr(two, field).tobytes()
-    _assert_twins(graph)
-
-
 def test_kernel_twins_when_the_ratio_spreads():
     """Two components, one upstream of a long chain: the largest ratio is spread downstream
     (the step that runs after eight eta improvements in a row)."""
