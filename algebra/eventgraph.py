@@ -108,8 +108,10 @@ class EventGraph:
             if (raw.size and raw.dtype.kind not in "iu"  # integer arrays need no test
                     and not np.all(np.equal(np.mod(raw, 1), 0))):
                 raise GraphStructureError(f"{name} must hold integers")
-            arr = raw.astype(np.int64)
-            arr.setflags(write=False)
+            arr = _frozen(raw)
+            if arr is None:
+                arr = raw.astype(np.int64)
+                arr.setflags(write=False)
             set_(self, name, arr)
         if m and (self.source.min() < 0 or self.source.max() >= n):
             raise GraphStructureError(f"source must lie in 0..{n - 1}")
@@ -186,8 +188,27 @@ class EventGraph:
         return EventGraph(duration, self.source, self.target, self.tokens, hold, self.names)
 
 
+def _frozen(values: object, dtype: type = np.int64) -> np.ndarray | None:
+    """``values`` itself when it is a contiguous read-only array of ``dtype`` whose memory no
+    array can write (every array it views is read-only too), else None (then a copy is made).
+
+    Such arrays (a loaded model's) are shared instead of copied: nothing can change them.
+    """
+    if not (type(values) is np.ndarray and values.dtype == dtype
+            and values.flags.c_contiguous):
+        return None
+    base: object = values
+    while isinstance(base, np.ndarray):
+        if base.flags.writeable:
+            return None
+        base = base.base
+    return values if base is None else None
+
+
 def _float_array(values: object, name: str) -> np.ndarray:
-    arr = np.array(values, dtype=np.float64)
+    arr = _frozen(values, np.float64)
+    if arr is None:
+        arr = np.array(values, dtype=np.float64)
     if arr.ndim != 1:
         raise GraphStructureError(f"{name} must be one-dimensional, got shape {arr.shape}")
     if not np.all(np.isfinite(arr)):

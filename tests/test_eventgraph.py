@@ -52,3 +52,24 @@ def test_names_become_str():
     assert ring([0, 1]).names == ()
     with pytest.raises(GraphStructureError, match="names must have 2 entries"):
         ring([0, 1], ("only",))
+
+
+def test_read_only_arrays_are_shared_writable_ones_copied():
+    """An array nothing can write (read-only, viewing only read-only arrays) is kept without a
+    copy; a writable one, or a read-only view of a writable one, is copied, so that a later
+    write by the caller does not change the graph."""
+    frozen = np.array([0, 1, 1, 0], dtype=np.int64)
+    frozen.setflags(write=False)
+    src, dst = frozen[:2], frozen[2:]
+    hold = np.array([0.0, 0.5])
+    hold.setflags(write=False)
+    g = EventGraph([1.0, 2.0], src, dst, [0, 1], hold)
+    assert g.source is src and g.target is dst and g.hold is hold
+    mutable = np.array([0, 1], dtype=np.int64)
+    view = mutable[:]
+    view.setflags(write=False)
+    durations = np.array([1.0, 2.0])
+    g = EventGraph(durations, view, [1, 0], [0, 1], [0.0, 0.5])
+    mutable[0], durations[0] = 1, 9.0
+    assert g.source.tolist() == [0, 1] and g.duration.tolist() == [1.0, 2.0]
+    assert not g.source.flags.writeable and not g.duration.flags.writeable
