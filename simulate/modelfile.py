@@ -327,7 +327,10 @@ def _lookup(ids: Any, wanted: Any) -> np.ndarray:
     found = index_in(wanted)
     missing = np.flatnonzero(found < 0)
     if missing.size:
-        retry = arrow_call("take", wanted, pa.array(missing))
+        # from buffers: pa.array of a numpy array imports pandas
+        rows = np.ascontiguousarray(missing, dtype=np.int64)
+        picks = pa.Array.from_buffers(pa.int64(), rows.size, [None, pa.py_buffer(rows)])
+        retry = arrow_call("take", wanted, picks)
         found[missing] = index_in(arrow_call("utf8_trim_whitespace", retry))
     return found
 
