@@ -82,6 +82,7 @@ from .tables import (
     cell,
     chunks,
     numeric,
+    string_array,
     write_csv_model,
 )
 
@@ -360,8 +361,7 @@ def _joined_text(parts: list[Any], arrow: bool) -> Any:
     import pyarrow as pa
 
     arrays = [a for p in parts
-              for a in ([pa.array(p.tolist(), type=pa.string())] if isinstance(p, np.ndarray)
-                        else chunks(p))]
+              for a in ([string_array(p.tolist())] if isinstance(p, np.ndarray) else chunks(p))]
     return pa.chunked_array(arrays, type=pa.string())
 
 
