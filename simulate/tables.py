@@ -1,4 +1,4 @@
-r"""The CSV tables of a model file: reading them with pandas (vectorized checks), and writing them.
+r"""The CSV tables of a model file: reading them with pyarrow (vectorized checks), and writing them.
 
 The ``[[transitions]]`` and ``[[places]]`` entries of the TOML file and each CSV table are read
 into rows (:class:`_Rows`) that :func:`cyclecheck.simulate.modelfile.load_model` joins and
