@@ -153,7 +153,6 @@ def all_empty(column: Any) -> bool:
     return all(len(c) == 0 or _offsets(c)[-1] == _offsets(c)[0] for c in chunks(column))
 
 
-
 @dataclass
 class _Rows:
     """Transitions or places read from one source: the TOML entries or one CSV table."""
