@@ -39,11 +39,13 @@ from .exceptions import GraphStructureError, NotLive, Unfed
 
 __all__ = [
     "MAX_TOKENS",
+    "PEEL_ROUNDS",
     "EventGraph",
     "check_live",
     "find_token_free_circuit",
     "self_loop_servers",
     "strongly_connected_components",
+    "token_free_acyclic",
 ]
 
 
@@ -104,10 +106,13 @@ class EventGraph:
             raw = np.asarray(getattr(self, name))
             if raw.ndim != 1 or raw.shape[0] != m:
                 raise GraphStructureError(f"{name} must have shape ({m},), got {raw.shape}")
-            if raw.size and not np.all(np.equal(np.mod(raw, 1), 0)):
+            if (raw.size and raw.dtype.kind not in "iu"  # integer arrays need no test
+                    and not np.all(np.equal(np.mod(raw, 1), 0))):
                 raise GraphStructureError(f"{name} must hold integers")
-            arr = raw.astype(np.int64)
-            arr.setflags(write=False)
+            arr = _frozen(raw)
+            if arr is None:
+                arr = raw.astype(np.int64)
+                arr.setflags(write=False)
             set_(self, name, arr)
         if m and (self.source.min() < 0 or self.source.max() >= n):
             raise GraphStructureError(f"source must lie in 0..{n - 1}")
@@ -117,7 +122,10 @@ class EventGraph:
             raise GraphStructureError("tokens must be >= 0")
         if m and self.tokens.max() > MAX_TOKENS:
             raise GraphStructureError(f"tokens must be at most 2^53 = {MAX_TOKENS}")
-        names = tuple(map(str, self.names)) if len(self.names) else ()
+        names = self.names
+        # A tuple of str is kept as it is (testing the types is 3x faster than str() on each).
+        if not (type(names) is tuple and set(map(type, names)) <= {str}):
+            names = tuple(map(str, names)) if len(names) else ()
         if names and len(names) != n:
             raise GraphStructureError(f"names must have {n} entries, got {len(names)}")
         set_(self, "names", names)
@@ -184,8 +192,27 @@ class EventGraph:
         return EventGraph(duration, self.source, self.target, self.tokens, hold, self.names)
 
 
+def _frozen(values: object, dtype: type = np.int64) -> np.ndarray | None:
+    """``values`` itself when it is a contiguous read-only array of ``dtype`` whose memory no
+    array can write (every array it views is read-only too), else None (then a copy is made).
+
+    Such arrays (a loaded model's) are shared instead of copied: nothing can change them.
+    """
+    if not (type(values) is np.ndarray and values.dtype == dtype
+            and values.flags.c_contiguous):
+        return None
+    base: object = values
+    while isinstance(base, np.ndarray):
+        if base.flags.writeable:
+            return None
+        base = base.base
+    return values if base is None else None
+
+
 def _float_array(values: object, name: str) -> np.ndarray:
-    arr = np.array(values, dtype=np.float64)
+    arr = _frozen(values, np.float64)
+    if arr is None:
+        arr = np.array(values, dtype=np.float64)
     if arr.ndim != 1:
         raise GraphStructureError(f"{name} must be one-dimensional, got shape {arr.shape}")
     if not np.all(np.isfinite(arr)):
@@ -280,6 +307,39 @@ def check_live(graph: EventGraph) -> None:
     unfed = np.flatnonzero(graph.in_degree == 0)
     if unfed.size:
         raise Unfed(unfed.tolist())
-    circuit = find_token_free_circuit(graph)
+    circuit = None if token_free_acyclic(graph) else find_token_free_circuit(graph)
     if circuit is not None:
         raise NotLive(circuit)
+
+
+PEEL_ROUNDS = 32
+"""Rounds of :func:`token_free_acyclic` before it leaves the question to the components."""
+
+
+def token_free_acyclic(graph: EventGraph, rounds: int = PEEL_ROUNDS) -> bool:
+    """True when the token-free places close no circuit, shown by peeling; False when
+    peeling cannot tell (then :func:`find_token_free_circuit` decides).
+
+    Each round removes the token-free places whose input transition no token-free place
+    enters, or whose output transition none leaves: such a place lies on no circuit. When
+    none is left, there is no circuit; when a round removes none, every place left lies on a
+    walk that never ends, so there is one. A token-free path of ``2 r`` places takes ``r``
+    rounds: live models have short ones (a long one, a line of buffers all empty, is left to
+    the components after ``rounds`` rounds). Vectorized: it spares the components (and their
+    imports) when the answer is "no circuit", the usual one.
+    """
+    empty = graph.tokens == 0
+    src, dst = graph.source[empty], graph.target[empty]
+    n = graph.n_transitions
+    for _ in range(rounds):
+        if not src.size:
+            return True
+        entered = np.zeros(n, dtype=bool)
+        entered[dst] = True
+        left = np.zeros(n, dtype=bool)
+        left[src] = True
+        keep = entered[src] & left[dst]
+        if keep.all():
+            return False
+        src, dst = src[keep], dst[keep]
+    return not src.size

@@ -339,7 +339,7 @@ class SpecTable:
         if cods.shape != (n,):
             raise ArgumentError(f"codes must have shape ({n},), got {cods.shape}")
         self.laws = tuple(laws)
-        if n and (cods.min() < -1 or cods.max() >= len(self.laws)):
+        if codes is not None and n and (cods.min() < -1 or cods.max() >= len(self.laws)):
             raise ArgumentError(f"codes must lie in -1..{len(self.laws) - 1}")
         if any(not isinstance(law, Distribution) for law in self.laws):
             raise ArgumentError("laws must be Distribution instances")
@@ -357,7 +357,10 @@ class SpecTable:
         if not np.all(np.isfinite(vals)) or (n and vals.min() < 0):
             raise ArgumentError("fixed values must be finite and >= 0")
         random_law = np.array([law.is_random for law in self.laws] + [False])
-        self._random = np.flatnonzero(random_law[cods])  # code -1 picks the final False
+        if random_law.any():
+            self._random = np.flatnonzero(random_law[cods])  # code -1 picks the final False
+        else:  # no random law: no element to look at
+            self._random = np.zeros(0, dtype=np.intp)
         for a in (vals, cods, self._random):
             a.setflags(write=False)
         self.values, self.codes = vals, cods
@@ -386,6 +389,8 @@ class SpecTable:
     @classmethod
     def concat(cls, tables: Sequence[SpecTable]) -> SpecTable:
         """The elements of ``tables`` one after the other (laws shared where equal)."""
+        if len(tables) == 1 and len(set(tables[0].laws)) == len(tables[0].laws):
+            return tables[0]  # what the loop below would build again: its laws are distinct
         index: dict[Distribution, int] = {}
         parts = []
         for t in tables:

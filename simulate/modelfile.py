@@ -76,8 +76,13 @@ from .tables import (
     _csv_transitions,
     _read_file,
     _Rows,
+    all_empty,
+    arrow_call,
+    arrow_compute,
     cell,
+    chunks,
     numeric,
+    string_array,
     write_csv_model,
 )
 
@@ -311,15 +316,23 @@ def _lookup(ids: Any, wanted: Any) -> np.ndarray:
     if isinstance(ids, np.ndarray):
         index = {t: i for i, t in enumerate(ids.tolist())}
         return np.array([index.get(t, -1) for t in wanted.tolist()], dtype=np.int64)
-    import pyarrow.compute as pc
+    import pyarrow as pa
+
+    value_set = ids.combine_chunks() if isinstance(ids, pa.ChunkedArray) else ids
+    options = arrow_compute().SetLookupOptions(value_set=value_set)
 
     def index_in(values: Any) -> np.ndarray:
-        return numeric(pc.index_in(values, value_set=ids), fill=-1).astype(np.int64)
+        return numeric(arrow_call("index_in", values, options=options), fill=-1,
+                       dtype=np.int64)
 
     found = index_in(wanted)
     missing = np.flatnonzero(found < 0)
     if missing.size:
-        found[missing] = index_in(pc.utf8_trim_whitespace(wanted.take(missing)))
+        # from buffers: pa.array of a numpy array imports pandas
+        rows = np.ascontiguousarray(missing, dtype=np.int64)
+        picks = pa.Array.from_buffers(pa.int64(), rows.size, [None, pa.py_buffer(rows)])
+        retry = arrow_call("take", wanted, picks)
+        found[missing] = index_in(arrow_call("utf8_trim_whitespace", retry))
     return found
 
 
@@ -331,9 +344,7 @@ def _first_duplicate(ids: Any) -> tuple[int, int] | None:
                 return seen[t], j
             seen[t] = j
         return None
-    import pyarrow.compute as pc
-
-    if len(pc.unique(ids)) == len(ids):
+    if len(arrow_call("unique", ids)) == len(ids):
         return None
     import pandas as pd
 
@@ -343,23 +354,22 @@ def _first_duplicate(ids: Any) -> tuple[int, int] | None:
 
 
 def _joined_text(parts: list[Any], arrow: bool) -> Any:
-    """Text columns of several parts one after the other: an Arrow array when ``arrow``."""
+    """Text columns of several parts one after the other: a chunked Arrow array when
+    ``arrow`` (the chunks of the parts, not copied)."""
     if not arrow:
         return np.concatenate(parts) if parts else np.zeros(0, dtype=object)
     import pyarrow as pa
 
-    arrays = [p if isinstance(p, pa.Array) else pa.array(p.tolist(), type=pa.string())
-              for p in parts]
-    return pa.concat_arrays(arrays) if arrays else pa.array([], type=pa.string())
+    arrays = [a for p in parts
+              for a in ([string_array(p.tolist())] if isinstance(p, np.ndarray) else chunks(p))]
+    return pa.chunked_array(arrays, type=pa.string())
 
 
 def _strings(column: Any) -> tuple[str, ...]:
     """A text column as a tuple of str (a column of empty labels without a loop)."""
     if isinstance(column, np.ndarray):
         return tuple(column.tolist())
-    import pyarrow.compute as pc
-
-    if len(column) == 0 or pc.max(pc.utf8_length(column)).as_py() == 0:
+    if all_empty(column):
         return ("",) * len(column)
     return tuple(column.to_pylist())
 
@@ -429,20 +439,23 @@ def load_model(path: str | os.PathLike[str]) -> Model:
         again = f", again {rows_b.position(b)}" if rows_b.line is None else ""
         raise _locate(trows, dup[1], f'duplicate transition id "{cell(ids, dup[1])}": first '
                                      f"defined {rows_a.position(a)} of {where}{again}")
-    ends = []
-    for key, name in (("from", "ids"), ("to", "dst")):
-        wanted = _joined_text([getattr(r, name) for r in prows], arrow)
-        found = _lookup(ids, wanted)
-        unknown = np.flatnonzero(found < 0)
+    wanted = {key: _joined_text([getattr(r, name) for r in prows], arrow)
+              for key, name in (("from", "ids"), ("to", "dst"))}
+    m = len(wanted["from"])
+    found = _lookup(ids, _joined_text([wanted["from"], wanted["to"]], arrow))  # both ends at once
+    found.setflags(write=False)
+    ends = [found[:m], found[m:]]
+    for key, end in zip(wanted, ends, strict=True):
+        unknown = np.flatnonzero(end < 0)
         if unknown.size:
             p = int(unknown[0])
             names = ids.tolist() if isinstance(ids, np.ndarray) else ids.to_pylist()
-            hint = did_you_mean(cell(wanted, p), names) if len(ids) <= _SUGGEST_LIMIT else ""
+            word = cell(wanted[key], p)
+            hint = did_you_mean(word, names) if len(ids) <= _SUGGEST_LIMIT else ""
             more = f" ({unknown.size - 1} more places like this)" if unknown.size > 1 else ""
-            raise _locate(prows, p, f'{key} = "{cell(wanted, p)}" is not a transition id'
-                                    f"{hint}{more}")
-        ends.append(found)
+            raise _locate(prows, p, f'{key} = "{word}" is not a transition id{hint}{more}')
     files = [(path, toml_bytes)] + [(r.file, r.data) for r in trows + prows if r.line]
+    digests = [hashlib.sha256(data).digest() for _, data in files]  # each file hashed once
     model = Model(
         name=field["name"],
         time_unit=field["time_unit"],
@@ -456,8 +469,8 @@ def load_model(path: str | os.PathLike[str]) -> Model:
         place_labels=_strings(_joined_text([r.labels for r in prows], arrow)),
         durations=SpecTable.concat([r.specs for r in trows if r.specs is not None]),
         holds=SpecTable.concat([r.specs for r in prows if r.specs is not None]),
-        sha256=_digest(files),
-        sources=tuple((str(f), hashlib.sha256(d).hexdigest()) for f, d in files),
+        sha256=hashlib.sha256(b"".join(digests)).hexdigest(),
+        sources=tuple((str(f), d.hex()) for (f, _), d in zip(files, digests, strict=True)),
     )
     try:
         check_live(model.graph())
@@ -481,9 +494,3 @@ def _frozen(a: np.ndarray) -> np.ndarray:
     a.setflags(write=False)
     return a
 
-
-def _digest(files: list[tuple[Path, bytes]]) -> str:
-    h = hashlib.sha256()
-    for _, data in files:
-        h.update(hashlib.sha256(data).digest())
-    return h.hexdigest()

@@ -1,4 +1,4 @@
-r"""The CSV tables of a model file: reading them with pandas (vectorized checks), and writing them.
+r"""The CSV tables of a model file: reading them with pyarrow (vectorized checks), and writing them.
 
 The ``[[transitions]]`` and ``[[places]]`` entries of the TOML file and each CSV table are read
 into rows (:class:`_Rows`) that :func:`cyclecheck.simulate.modelfile.load_model` joins and
@@ -29,11 +29,14 @@ Reading
 Tables are read by ``pyarrow.csv`` (multi-threaded, every column as text), numbers converted by
 one vectorized cast per column, ids kept as Arrow strings so that
 :func:`cyclecheck.simulate.modelfile.load_model` maps them to indices by one hashing pass
-(``pyarrow.compute.index_in``); no Python loop runs per row. Line numbers are counted only when
-a message needs one. A file that pyarrow would read otherwise than the rules above (a line of
-blanks, a quoted cell after blanks, the header below blank lines) or cannot read (a ragged line)
-goes through pandas instead, the reader these rules were written for, after a check of the field
-count of every line.
+(Arrow's ``index_in``); no Python loop runs per row. Columns stay in the chunks the reader made
+(joining them would copy every cell once more); cells are trimmed only when the file holds a
+blank or a tab at all. Arrow's functions are called by name (:func:`arrow_call`) without
+importing ``pyarrow.compute``. Line numbers are counted only when a message needs one. A file
+that pyarrow would read otherwise than the rules above (a line of blanks, a quoted cell after
+blanks, the header below blank lines) or cannot read (a ragged line) goes through pandas
+instead, the reader these rules were written for, after a check of the field count of every
+line.
 
 The field count of each line comes from one vectorized pass over the bytes (commas and line
 ends outside quotes), which agrees with pandas' reading whenever every quote that opens a
@@ -82,10 +85,72 @@ def _read_file(path: Path, what: str) -> tuple[bytes, str]:
 
 
 def cell(column: Any, i: int) -> str:
-    """Entry ``i`` of a text column, a numpy object array or an Arrow string array."""
+    """Entry ``i`` of a text column, a numpy object array or an Arrow string array (chunked or
+    not)."""
     value = column[i]
     return value.as_py() if hasattr(value, "as_py") else value
 
+
+# --------------------------------------------------------------------------- Arrow arrays
+
+
+def arrow_compute() -> Any:
+    """The module of Arrow's compute functions: ``call_function`` and the option classes.
+
+    ``pyarrow.compute`` builds a Python wrapper with a docstring for each of Arrow's ~300
+    functions when it is imported (about 50 ms of every run that reads a table); the reader
+    calls a handful by name, through ``pyarrow._compute``, the module the public one
+    re-exports them from (the public one where a pyarrow lacks it).
+    """
+    try:
+        import pyarrow._compute as compute
+    except ImportError:  # pragma: no cover - a pyarrow that moved its internals
+        import pyarrow.compute as compute
+    return compute
+
+
+def arrow_call(name: str, *args: Any, options: Any = None) -> Any:
+    """Arrow's compute function ``name`` on ``args`` (arrays, chunked or not)."""
+    return arrow_compute().call_function(name, list(args), options)
+
+
+def string_array(values: Sequence[str]) -> pa.Array:
+    """An Arrow string array of Python strings, built from buffers (``pa.array`` imports
+    pandas, about 0.3 s)."""
+    import pyarrow as pa
+
+    encoded = [v.encode() for v in values]
+    offsets = np.zeros(len(encoded) + 1, dtype=np.int32)
+    np.cumsum([len(e) for e in encoded], out=offsets[1:])
+    return pa.Array.from_buffers(pa.string(), len(encoded),
+                                 [None, pa.py_buffer(offsets), pa.py_buffer(b"".join(encoded))])
+
+
+def chunks(array: Any) -> list[Any]:
+    """The arrays of an Arrow array: its chunks, or itself when it is not chunked."""
+    return array.chunks if hasattr(array, "num_chunks") else [array]
+
+
+def _offsets(chunk: Any) -> np.ndarray:
+    """Cell ``i`` of an Arrow string array is bytes ``offsets[i]:offsets[i + 1]`` of its data."""
+    return np.frombuffer(chunk.buffers()[1], dtype=np.int32, count=len(chunk) + 1,
+                         offset=chunk.offset * 4)
+
+
+def empty_cells(column: Any) -> np.ndarray:
+    """Rows of an Arrow string column (no nulls) whose cell is empty, read off the offsets."""
+    found, first = [], 0
+    for chunk in chunks(column):
+        if len(chunk):
+            off = _offsets(chunk)
+            found.append(np.flatnonzero(off[1:] == off[:-1]) + first)
+        first += len(chunk)
+    return np.concatenate(found) if found else np.zeros(0, dtype=np.int64)
+
+
+def all_empty(column: Any) -> bool:
+    """True when every cell of an Arrow string column is empty (or it has no cells)."""
+    return all(len(c) == 0 or _offsets(c)[-1] == _offsets(c)[0] for c in chunks(column))
 
 
 @dataclass
@@ -353,20 +418,48 @@ def _lines(data: bytes, text: str, rows: int) -> Callable[[int], int]:
     return line
 
 
+@dataclass
+class _Table:
+    """A CSV table as read: its columns as Arrow string arrays, chunked or not (whichever reader
+    split the lines), its number of rows, row -> line number, the file's bytes, and whether
+    they hold a blank or a tab at all (else no cell needs trimming)."""
+
+    columns: dict[str, Any]
+    rows: int
+    line: Callable[[int], int]
+    data: bytes
+    blanks: bool
+
+    def text(self, name: str, strip: bool) -> Any:
+        """A text column as an Arrow string array: "" where the column is missing; leading
+        blanks dropped as pandas' reader does (all blanks when ``strip``)."""
+        import pyarrow as pa
+
+        if name not in self.columns:  # empty strings from buffers (pa.scalar imports pandas)
+            offsets = pa.py_buffer(np.zeros(self.rows + 1, dtype=np.int32))
+            return pa.Array.from_buffers(pa.string(), self.rows,
+                                         [None, offsets, pa.py_buffer(b"")])
+        col = self.columns[name]
+        if not self.blanks:
+            return col
+        trim = arrow_compute().TrimOptions(" \t" if strip else " ")
+        return arrow_call("utf8_trim" if strip else "utf8_ltrim", col, options=trim)
+
+
 def _read_csv(path: Path, required: tuple[str, ...], optional: tuple[str, ...],
-              key: str, toml: Path) -> tuple[dict[str, Any], int, Callable[[int], int], bytes]:
-    """The columns of a table as Arrow string arrays (whichever reader split the lines), the
-    number of rows, row -> line number, and the file's bytes."""
+              key: str, toml: Path) -> _Table:
+    """A table read by pyarrow, or by pandas where pyarrow would split it otherwise."""
     if not path.exists():
         raise ModelError(f"no such file (named by {key} in {toml})", file=path)
     data, text = _read_file(path, "CSV table")
     header, start = _header(text, required + optional, required, path)
     table = _arrow_table(data, header, start)
+    blanks = b" " in data or b"\t" in data
     if table is not None:
-        columns = {c: table.column(c).combine_chunks() for c in header}
-        return columns, table.num_rows, _lines(data, text, table.num_rows), data
+        return _Table({c: table.column(c) for c in header}, table.num_rows,
+                      _lines(data, text, table.num_rows), data, blanks)
     df, line = _pandas_table(data, text, header, path)
-    return {c: _arrow(df[c]) for c in header}, len(df), line, data
+    return _Table({c: _arrow(df[c]) for c in header}, len(df), line, data, blanks)
 
 
 def _pandas_table(data: bytes, text: str, header: list[str],
@@ -407,25 +500,9 @@ def _arrow(column: pd.Series) -> pa.Array:
     return pa.array(column.astype(str).to_numpy(dtype=object), type=pa.string())
 
 
-def _text_column(columns: dict[str, Any], name: str, rows: int, strip: bool) -> Any:
-    """A text column as an Arrow string array: "" where the column is missing; leading blanks
-    dropped as pandas' reader does (all blanks when ``strip``)."""
-    import pyarrow as pa
-    import pyarrow.compute as pc
-
-    if name not in columns:  # empty strings from buffers (pa.scalar would import pandas)
-        offsets = pa.py_buffer(np.zeros(rows + 1, dtype=np.int32))
-        return pa.Array.from_buffers(pa.string(), rows, [None, offsets, pa.py_buffer(b"")])
-    col = columns[name]
-    return pc.utf8_trim(col, " \t") if strip else pc.utf8_ltrim(col, " ")
-
-
 def _require(values: Any, name: str, fail: Any) -> None:
-    import pyarrow.compute as pc
-
-    lengths = pc.utf8_length(values)
-    if len(values) and pc.min(lengths).as_py() == 0:
-        empty = np.flatnonzero(lengths.to_numpy(zero_copy_only=False) == 0)
+    empty = empty_cells(values)
+    if empty.size:
         fail(int(empty[0]), f"{name} is empty", empty.size)
 
 
@@ -442,34 +519,43 @@ def _cast(column: Any, dtype: Any) -> np.ndarray | None:
     """An Arrow text column converted by one vectorized cast, or None where a cell is not
     such a number (then the column is read as text, cell by cell, for the message)."""
     import pyarrow as pa
-    import pyarrow.compute as pc
 
-    options = pc.CastOptions.safe(dtype)
+    compute = arrow_compute()
+    options = compute.CastOptions.safe(dtype)
     for attempt in (column, None):
         try:
-            col = attempt if attempt is not None else pc.utf8_trim(column, " \t")
-            return numeric(pc.call_function("cast", [col], options))
+            col = attempt if attempt is not None else arrow_call(
+                "utf8_trim", column, options=compute.TrimOptions(" \t"))
+            return numeric(arrow_call("cast", col, options=options))
         except (pa.ArrowInvalid, pa.ArrowNotImplementedError):
             continue
     return None
 
 
-def numeric(array: Any, fill: float | None = None) -> np.ndarray:
-    """A numeric Arrow array as a numpy array (a copy), nulls replaced by ``fill``.
+def numeric(array: Any, fill: float | None = None, dtype: Any = None) -> np.ndarray:
+    """A numeric Arrow array (chunked or not) as a numpy array (a copy), nulls replaced by
+    ``fill``, converted to ``dtype`` if given.
 
     Read from its buffers: ``to_numpy``, ``np.asarray``, ``pa.scalar`` or ``fill_null`` import
     pandas on their way (about 0.3 s of start-up), which a model without laws never needs.
     """
-    dtype = np.dtype(array.type.to_pandas_dtype())
-    validity, data = array.buffers()[:2]
-    out = np.frombuffer(data, dtype=dtype, count=len(array),
-                        offset=array.offset * dtype.itemsize).copy()
-    if array.null_count:
-        if fill is None:
-            raise ValueError("the array has nulls and no fill value was given")
-        bits = np.unpackbits(np.frombuffer(validity, dtype=np.uint8), bitorder="little")
-        out[~bits[array.offset:array.offset + len(array)].astype(bool)] = fill
-    return out
+    own = np.dtype(array.type.to_pandas_dtype())
+    parts = []
+    for chunk in chunks(array):
+        validity, data = chunk.buffers()[:2]
+        if not len(chunk):
+            continue
+        part = np.frombuffer(data, dtype=own, count=len(chunk),
+                             offset=chunk.offset * own.itemsize).astype(dtype or own)
+        if chunk.null_count:
+            if fill is None:
+                raise ValueError("the array has nulls and no fill value was given")
+            bits = np.unpackbits(np.frombuffer(validity, dtype=np.uint8), bitorder="little")
+            part[~bits[chunk.offset:chunk.offset + len(chunk)].astype(bool)] = fill
+        parts.append(part)
+    if len(parts) == 1:
+        return parts[0]
+    return np.concatenate(parts) if parts else np.zeros(0, dtype=dtype or own)
 
 
 def _spec_column(columns: dict[str, Any], name: str, fail: Any) -> SpecTable:
@@ -480,7 +566,8 @@ def _spec_column(columns: dict[str, Any], name: str, fail: Any) -> SpecTable:
     # The fast path: numbers only. NaN stays text: "nan" in a cell is reported as written.
     if values is not None and not np.isnan(values).any():
         _finite_nonneg(values, name, lambda r: shown(float(values[r])), fail)
-        return SpecTable(values + 0.0)
+        values += 0.0  # -0.0 becomes 0.0 (values is a copy of the column)
+        return SpecTable(values)
     import pandas as pd  # cell by cell: laws, blanks, or a message to write
 
     text = pd.Series(col.to_numpy(zero_copy_only=False), dtype=object).str.strip()
@@ -550,29 +637,26 @@ def _failer(rows: _Rows) -> Callable[[int, str, int], None]:
 
 
 def _csv_transitions(path: Path, toml: Path, first: int = 0) -> _Rows:
-    columns, count, line, data = _read_csv(path, ("id", "duration"), ("label",),
-                                           "transitions_csv", toml)
-    ids = _text_column(columns, "id", count, strip=True)
-    rows = _Rows(path, ids, labels=_text_column(columns, "label", count, strip=False),
-                 line=line, data=data, first=first)
+    table = _read_csv(path, ("id", "duration"), ("label",), "transitions_csv", toml)
+    ids = table.text("id", strip=True)
+    rows = _Rows(path, ids, labels=table.text("label", strip=False), line=table.line,
+                 data=table.data, first=first)
     fail = _failer(rows)
     _require(ids, "id", fail)
-    rows.specs = _spec_column(columns, "duration", fail)
+    rows.specs = _spec_column(table.columns, "duration", fail)
     return rows
 
 
 def _csv_places(path: Path, toml: Path, first: int = 0) -> _Rows:
-    columns, count, line, data = _read_csv(path, ("from", "to", "tokens", "hold"), ("label",),
-                                           "places_csv", toml)
-    rows = _Rows(path, _text_column(columns, "from", count, strip=False),
-                 _text_column(columns, "to", count, strip=False),
-                 labels=_text_column(columns, "label", count, strip=False),
-                 line=line, data=data, first=first)
+    table = _read_csv(path, ("from", "to", "tokens", "hold"), ("label",), "places_csv", toml)
+    rows = _Rows(path, table.text("from", strip=False), table.text("to", strip=False),
+                 labels=table.text("label", strip=False), line=table.line, data=table.data,
+                 first=first)
     fail = _failer(rows)
     _require(rows.ids, "from", fail)
     _require(rows.dst, "to", fail)
-    rows.tokens = _token_column(columns, fail)
-    rows.specs = _spec_column(columns, "hold", fail)
+    rows.tokens = _token_column(table.columns, fail)
+    rows.specs = _spec_column(table.columns, "hold", fail)
     return rows
 
 

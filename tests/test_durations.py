@@ -426,6 +426,14 @@ def test_spec_table():
     assert both == SpecTable.from_specs([*SPECS_T, SPECS_T[0], *SPECS_P])
     assert both != table and table != SpecTable.from_specs([1.0] * 5)
     assert not SpecTable(np.array([1.0, 2.0])).is_random
+    fixed = SpecTable(np.array([1.0, 2.0]), [-1, -1])
+    assert fixed.random_elements.tolist() == [] and fixed.random_elements.dtype == np.intp
+    # one table: itself when its laws are distinct; a law given twice is merged
+    assert SpecTable.concat([table]) is table
+    twice = SpecTable(np.zeros(3), [0, 1, -1], (parse_spec(SPECS_T[0]), parse_spec(SPECS_T[0])))
+    merged = SpecTable.concat([twice])
+    assert merged.laws == (parse_spec(SPECS_T[0]),) and merged.codes.tolist() == [0, 0, -1]
+    assert merged == twice and merged.random_elements.tolist() == [0, 1]
     # a fixed law given as a law is stored as a number
     laws = (parse_spec("fixed(value=2)"), parse_spec(SPECS_T[0]))
     coded = SpecTable(np.zeros(3), [0, 1, -1], laws)
