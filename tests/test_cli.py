@@ -238,3 +238,24 @@ def test_simulate_may_overwrite_its_own_trace(tmp_path: Path) -> None:
     assert run(*args).returncode == 0
     out = run(*args)
     assert out.returncode == 0, out.stderr
+
+
+def test_the_program_leaves_with_everything_written(tmp_path: Path) -> None:
+    """The console script skips the interpreter's teardown (``cli.run``): the printed document
+    is whole, the saved files are complete, the exit code is the command's, and a reader that
+    stops early (``| head``) gets no traceback."""
+    save, page = tmp_path / "result.json", tmp_path / "page.html"
+    out = run("check", str(MODELS / "kanban_loop.toml"), "--json", "--save", str(save),
+              "--report", str(page), "--quiet")
+    assert out.returncode == 0, out.stderr
+    assert json.loads(out.stdout) == json.loads(save.read_text(encoding="utf-8"))
+    assert page.read_text(encoding="utf-8").rstrip().endswith("</html>")
+    proc = subprocess.Popen([str(SCRIPT), "analyze", str(MODELS / "packaging_cell.toml"),
+                             "--json"], stdout=subprocess.PIPE, stderr=subprocess.PIPE)
+    assert proc.stdout is not None and proc.stderr is not None
+    first = proc.stdout.readline()
+    proc.stdout.close()  # the reader goes away, as `head -1` does
+    err = proc.stderr.read().decode()
+    proc.wait(timeout=300)
+    assert first.strip() == b"{"
+    assert "Traceback" not in err
