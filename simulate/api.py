@@ -147,7 +147,6 @@ def analyze(model: ModelLike, *, seed: int | None = DEFAULT_SEED,
     >>> doc["cycle_time"], doc["cyclicity"]
     (17.375, 4)
     """
-    from .experiment import DEFAULT_PRECISION, estimate_with_executor
     from .result import analysis_document
 
     settings = RunSettings.resolve(seed=seed, precision=precision, replications=replications,
@@ -160,6 +159,10 @@ def analyze(model: ModelLike, *, seed: int | None = DEFAULT_SEED,
     exact = analyze_graph(loaded.graph())
     est = None
     if loaded.is_random:
+        # Imported here: the experiments (process pools, the recursion) cost a fixed model
+        # about 0.1 s of start-up for nothing.
+        from .experiment import DEFAULT_PRECISION, estimate_with_executor
+
         settings = settings.replace(precision=settings.precision or DEFAULT_PRECISION)
         with _progress_line(settings, settings.precision) as line:
             est = estimate_with_executor(loaded, "recursion", settings,

@@ -31,7 +31,6 @@ from ..algebra.critical import critical_places
 from ..algebra.spectral import HowardResult, howard
 from ..reports.schema import DOCUMENT_KIND, SCHEMA_VERSION
 from .estimate import replication_interval
-from .experiment import Estimate
 from .jsontext import CompactEncoder, json_floats
 from .modelfile import Model
 from .sensitivity import (
@@ -47,6 +46,7 @@ from .stability import fixed_unbounded, random_unbounded
 
 if TYPE_CHECKING:  # the runners' own types: the documents import no engine and no runner
     from .compare import Comparison, FixedRun
+    from .experiment import Estimate
     from .grid import Grid
     from .sweep import PointOutcome
 
