@@ -159,6 +159,19 @@ def test_trace_of_simulate_agrees(tmp_path: Path) -> None:
     assert log.read_text().splitlines()[0].startswith("transition,firing")
     out = run("trace", str(MODELS / "shuttle_loop.toml"), str(log))
     assert out.returncode == 0, out.stdout + out.stderr
+    # One transition's completions a second late disagree with the model: exit 1 from the
+    # installed program too (cli.run passes the command's code on).
+    header, *rows = log.read_text().splitlines()
+    late = rows[0].split(",")[0]
+    shifted = []
+    for row in rows:
+        transition, firing, start, time = row.split(",")
+        if transition == late:
+            time = repr(float(time) + 1.0)
+        shifted.append(",".join([transition, firing, start, time]))
+    log.write_text("\n".join([header, *shifted]) + "\n")
+    out = run("trace", str(MODELS / "shuttle_loop.toml"), str(log))
+    assert out.returncode == 1, out.stdout + out.stderr
 
 
 def test_interrupt_leaves_no_output(tmp_path: Path) -> None:
