@@ -28,7 +28,7 @@ import numpy as np
 
 from ..algebra.analysis import GraphAnalysis
 from ..algebra.critical import critical_places
-from ..algebra.spectral import HowardResult, howard
+from ..algebra.spectral import HowardResult
 from ..reports.schema import DOCUMENT_KIND, SCHEMA_VERSION
 from .estimate import replication_interval
 from .jsontext import CompactEncoder, json_floats
@@ -200,8 +200,11 @@ def analysis_section(model: Model, analysis: GraphAnalysis) -> dict[str, Any]:
     return doc
 
 
-def estimate_section(model: Model, est: Estimate, lower: float) -> dict[str, Any]:
-    """Keys of DESIGN.md for an estimate from replications."""
+def estimate_section(model: Model, est: Estimate, mean_value: HowardResult) -> dict[str, Any]:
+    """Keys of DESIGN.md for an estimate from replications; ``mean_value``, Howard's result on
+    the mean durations (the lower bound, the critical circuits the derivatives are set
+    against), as the caller has it already."""
+    lower = mean_value.max_cycle_time
     ids = model.transition_ids
     iv = est.interval
     crit_p = est.criticality_places
@@ -255,9 +258,7 @@ def estimate_section(model: Model, est: Estimate, lower: float) -> dict[str, Any
                            "arrived last); a local measure, not the bottleneck: see sensitivity"),
         }
     if est.sensitivity is not None:
-        graph = model.graph()
-        mean_value = howard(graph)
-        critical = critical_places(graph, mean_value)
+        critical = critical_places(model.graph(), mean_value)
         section.update(sensitivity_section(
             model, est.sensitivity, {ids[t] for c in mean_value.circuits for t in c.transitions},
             set(np.flatnonzero(critical).tolist()), iv.estimate))
@@ -266,7 +267,7 @@ def estimate_section(model: Model, est: Estimate, lower: float) -> dict[str, Any
             unbounded = random_unbounded(model, est.seed, est.batch.replications.tolist(),
                                          est.firings, est.warmup_firings, est.by_transition)
         else:
-            unbounded = fixed_unbounded(model, howard(model.graph()).cycle_time)
+            unbounded = fixed_unbounded(model, mean_value.cycle_time)
         section.update(stability_section(unbounded))
     return section
 
@@ -387,7 +388,7 @@ def random_analysis_section(model: Model, exact: GraphAnalysis, est: Estimate) -
     section["mean_value_cycle_time"] = section["cycle_time"]
     # A random graph has no periodic regime: the transient belongs to the mean durations.
     section["mean_value_transient_firings"] = section.pop("transient_firings")
-    section.update(estimate_section(model, est, exact.cycle_time))
+    section.update(estimate_section(model, est, exact.howard))
     section["critical_circuits"] = [[model.transition_ids[t] for t in c.transitions]
                                     for c in exact.howard.circuits]
     section["critical_circuits_basis"] = "mean durations"
@@ -432,7 +433,7 @@ def simulation_document(model: Model, est: Estimate, mean_value: HowardResult, p
     """The document of ``simulate``: the SimPy engine's estimate; for fixed durations also the
     structure the theory knows (cyclicity, critical circuits)."""
     doc = _base(model, "simulate")
-    doc.update(estimate_section(model, est, mean_value.max_cycle_time))
+    doc.update(estimate_section(model, est, mean_value))
     if not model.is_random:
         # Fixed durations: the simulation is exact up to the transient; the structure is known.
         doc["bounds"] = None
@@ -522,7 +523,7 @@ def comparison_document(model: Model, comparison: Comparison,
         settings_part = settings_section(settings, None, 1, sim.firings)  # type: ignore[union-attr]
     else:
         analysis = random_analysis_section(model, exact, rec)
-        simulation = estimate_section(model, sim, exact.cycle_time)  # type: ignore[arg-type]
+        simulation = estimate_section(model, sim, exact.howard)  # type: ignore[arg-type]
         figures = {"running_estimate": analysis["running_estimate"],
                    "replication_estimates": {"recursion": analysis["per_replication"],
                                              "simulation": simulation["per_replication"]},
